@@ -1,0 +1,331 @@
+"""Price lists: conductor and labour prices per metre, aligned with a conductor catalogue.
+
+A price list is a CSV file (format in ``costdata/README.md``): ``# key: value`` comment
+lines record the currency, the length unit, the metal prices the list was priced at
+and the source; then one row per material and size with the price of one conductor
+per length unit, the labour to pull one parallel set of a circuit per length unit, and
+the conductor's metal mass per length unit (area × density). Giving today's metal
+price re-indexes the metal part: price += (today − basis) × metal mass.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+from types import MappingProxyType
+from typing import Protocol
+
+import numpy as np
+import numpy.typing as npt
+
+from sizer.errors import ScenarioError, UnitError
+from sizer.units import MATERIALS, parse_length_m, parse_material, parse_money, parse_size
+
+COLUMNS = ("material", "size", "conductor_price", "labour", "metal_kg")
+# Header keys holding the metal price each material's list was priced at.
+BASIS_KEYS: dict[str, str] = {"Cu": "copper_price_basis", "Al": "aluminium_price_basis"}
+# The scenario's [prices] field that re-indexes each metal (for error locations).
+REINDEX_FIELDS: dict[str, str] = {"Cu": "copper", "Al": "aluminium"}
+COSTDATA_DIR = Path(__file__).resolve().parents[2] / "costdata"
+
+_HEADER = re.compile(r"^#\s*(?P<key>[A-Za-z_]+)\s*:\s*(?P<value>.*?)\s*$")
+
+FloatArray = npt.NDArray[np.float64]
+
+
+class SizeCatalogue(Protocol):
+    """What a price list needs of a conductor catalogue: its name and ordered sizes."""
+
+    @property
+    def name(self) -> str: ...  # noqa: D102
+
+    @property
+    def sizes(self) -> tuple[str, ...]: ...  # noqa: D102
+
+
+@dataclass(frozen=True)
+class PriceList:
+    """Prices in ``currency`` per metre, one array entry per catalogue size (NaN = not sold).
+
+    ``conductor_per_m``: one conductor; ``labour_per_m``: pulling one parallel set of a
+    circuit, per metre of route; ``metal_kg_per_m``: conductor metal mass of one
+    conductor; ``metal_per_kg``: the metal price the conductor prices now stand at.
+    """
+
+    currency: str
+    source: str
+    catalogue: str
+    sizes: tuple[str, ...]
+    conductor_per_m: Mapping[str, FloatArray]
+    labour_per_m: Mapping[str, FloatArray]
+    metal_kg_per_m: Mapping[str, FloatArray]
+    metal_per_kg: Mapping[str, float]
+
+    def conductor(self, material: str) -> FloatArray:
+        """Price of one conductor per metre over the catalogue's sizes."""
+        return self.conductor_per_m[_material(material)]
+
+    def labour(self, material: str) -> FloatArray:
+        """Labour per metre of route for one parallel set, over the catalogue's sizes."""
+        return self.labour_per_m[_material(material)]
+
+    def metal_kg(self, material: str) -> FloatArray:
+        """Metal mass of one conductor per metre (kg/m) over the catalogue's sizes."""
+        return self.metal_kg_per_m[_material(material)]
+
+    def sold(self, material: str) -> npt.NDArray[np.bool_]:
+        """True where the list prices that size in that material."""
+        return ~np.isnan(self.conductor(material))
+
+
+def _material(material: str) -> str:
+    if material not in MATERIALS:
+        raise UnitError(f"unknown conductor material {material!r} (use \"Cu\" or \"Al\")")
+    return material
+
+
+@dataclass(frozen=True)
+class _Row:
+    line: int
+    material: str
+    index: int
+    conductor: float
+    labour: float
+    metal_kg: float
+
+
+def load_price_list(
+    path: str | Path,
+    catalogue: SizeCatalogue,
+    currency: str,
+    copper_per_kg: float | None = None,
+    aluminium_per_kg: float | None = None,
+) -> PriceList:
+    """Read a price list CSV into per-metre arrays aligned with ``catalogue.sizes``.
+
+    ``currency`` is the project's; the file must be in it. ``copper_per_kg`` and
+    ``aluminium_per_kg`` (project currency per kg) re-index the metal part of the
+    conductor prices from the basis recorded in the file. Raises ScenarioError naming
+    the file and the field on any problem.
+    """
+    file = str(path)
+    currency = currency.strip().upper()
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ScenarioError(f"cannot read the price list: {exc}", file=file) from exc
+
+    header, table = _split(text)
+
+    def fail(message: str, field: str | None = None) -> ScenarioError:
+        return ScenarioError(message, file=file, field=field)
+
+    file_currency = header.get("currency")
+    if not file_currency:
+        raise fail("the header must say the currency, e.g. '# currency: USD'", "currency")
+    if file_currency.strip().upper() != currency:
+        raise fail(f"prices are in {file_currency} but the project uses {currency}; use a "
+                   f"price list in {currency} or change the project currency", "currency")
+    unit = header.get("length_unit")
+    if not unit:
+        raise fail("the header must say the length unit, e.g. '# length_unit: ft'",
+                   "length_unit")
+    try:
+        m_per_unit = parse_length_m(f"1 {unit}")
+    except UnitError as exc:
+        raise fail(f"{unit!r} is not a length unit", "length_unit") from exc
+    if not m_per_unit > 0:
+        raise fail(f"{unit!r} is not a length unit", "length_unit")
+
+    basis: dict[str, float] = {}
+    for mat, key in BASIS_KEYS.items():
+        if key in header:
+            try:
+                basis[mat] = parse_money(header[key], currency, per="kg")
+            except UnitError as exc:
+                raise fail(f"{exc.message} (write e.g. '9.50 {currency}/kg')", key) from exc
+            if not (math.isfinite(basis[mat]) and basis[mat] > 0):
+                raise fail(f"metal price basis must be positive, got {header[key]!r}", key)
+
+    rows = _rows(table, catalogue, file)
+    n = len(catalogue.sizes)
+    conductor: dict[str, FloatArray] = {mat: np.full(n, np.nan) for mat in MATERIALS}
+    labour: dict[str, FloatArray] = {mat: np.full(n, np.nan) for mat in MATERIALS}
+    metal_kg: dict[str, FloatArray] = {mat: np.full(n, np.nan) for mat in MATERIALS}
+    for row in rows:
+        conductor[row.material][row.index] = row.conductor
+        labour[row.material][row.index] = row.labour
+        metal_kg[row.material][row.index] = row.metal_kg
+    _check_complete(rows, catalogue, file)
+
+    metal_per_kg: dict[str, float] = {mat: basis.get(mat, math.nan) for mat in MATERIALS}
+    for mat, new in (("Cu", copper_per_kg), ("Al", aluminium_per_kg)):
+        listed = ~np.isnan(conductor[mat])
+        if new is None or not listed.any():
+            continue
+        field = REINDEX_FIELDS[mat]
+        if isinstance(new, bool) or not (isinstance(new, int | float) and math.isfinite(new)
+                                         and new > 0):
+            raise ScenarioError(f"the metal price must be a positive number per kg, got {new!r}",
+                                field=field)
+        if mat not in basis:
+            raise fail(f"cannot re-index {mat} to {new:g} {currency}/kg: the file does not say "
+                       f"the price it was priced at ('# {BASIS_KEYS[mat]}: ...')",
+                       BASIS_KEYS[mat])
+        conductor[mat] = conductor[mat] + (new - basis[mat]) * metal_kg[mat]
+        low = listed & ~(conductor[mat] > 0)
+        if low.any():
+            size = catalogue.sizes[int(np.flatnonzero(low)[0])]
+            raise ScenarioError(
+                f"{mat} at {new:g} {currency}/kg makes the {size} price not positive "
+                f"(the list was priced at {basis[mat]:g} {currency}/kg)", file=file, field=field)
+        metal_per_kg[mat] = float(new)
+
+    def per_m(arrays: dict[str, FloatArray]) -> Mapping[str, FloatArray]:
+        out: dict[str, FloatArray] = {}
+        for mat, arr in arrays.items():
+            arr = arr / m_per_unit
+            arr.setflags(write=False)
+            out[mat] = arr
+        return MappingProxyType(out)
+
+    described = header.get("source", "")
+    return PriceList(
+        currency=currency,
+        source=f"{Path(path).name}: {described}" if described else Path(path).name,
+        catalogue=catalogue.name,
+        sizes=tuple(catalogue.sizes),
+        conductor_per_m=per_m(conductor),
+        labour_per_m=per_m(labour),
+        metal_kg_per_m=per_m(metal_kg),
+        metal_per_kg=MappingProxyType(metal_per_kg),
+    )
+
+
+def _split(text: str) -> tuple[dict[str, str], list[tuple[int, str]]]:
+    """Split a price file into its ``# key: value`` header and its numbered table lines."""
+    header: dict[str, str] = {}
+    table: list[tuple[int, str]] = []
+    for number, line in enumerate(text.splitlines(), start=1):
+        stripped = line.strip()
+        if not stripped:
+            continue
+        if stripped.startswith("#"):
+            if m := _HEADER.match(stripped):
+                header[m["key"].lower()] = m["value"]
+            continue
+        table.append((number, line))
+    return header, table
+
+
+def _rows(table: list[tuple[int, str]], catalogue: SizeCatalogue, file: str) -> list[_Row]:
+    """Parse and check the table lines; one _Row per material and size."""
+
+    def fail(message: str, field: str | None = None) -> ScenarioError:
+        return ScenarioError(message, file=file, field=field)
+
+    if not table:
+        raise fail("no column names and no price rows")
+    parsed = list(csv.reader([line for _, line in table]))
+    columns = [c.strip().lower() for c in parsed[0]]
+    for name in COLUMNS:
+        if name not in columns:
+            raise fail(f"missing column '{name}' (columns: {', '.join(COLUMNS)})", name)
+    at = {name: columns.index(name) for name in COLUMNS}
+    position = {size: k for k, size in enumerate(catalogue.sizes)}
+    rows: list[_Row] = []
+    seen: dict[tuple[str, int], int] = {}
+    for (line, _), cells in zip(table[1:], parsed[1:], strict=True):
+        if len(cells) < len(columns):
+            raise fail(f"line {line}: {len(cells)} values for {len(columns)} columns")
+        cell = {name: cells[at[name]].strip() for name in COLUMNS}
+        try:
+            mat = parse_material(cell["material"])
+        except UnitError as exc:
+            raise fail(f"line {line}: {exc.message}", "material") from exc
+        try:
+            size = parse_size(cell["size"])
+        except UnitError as exc:
+            raise fail(f"line {line}: {exc.message}", "size") from exc
+        if size not in position:
+            raise fail(f"line {line}: size {size} is not in the {catalogue.name} catalogue "
+                       f"({catalogue.sizes[0]} … {catalogue.sizes[-1]})", "size")
+        k = position[size]
+        if (mat, k) in seen:
+            raise fail(f"line {line}: {mat} {size} is listed twice (also line "
+                       f"{seen[mat, k]})", "size")
+        seen[mat, k] = line
+        values = {}
+        for name, minimum, strict in (("conductor_price", 0.0, True), ("labour", 0.0, False),
+                                      ("metal_kg", 0.0, True)):
+            try:
+                value = float(cell[name])
+            except ValueError:
+                raise fail(f"line {line} ({mat} {size}): {cell[name]!r} is not a number",
+                           name) from None
+            if not math.isfinite(value) or value < minimum or (strict and value == minimum):
+                need = "positive" if strict else "zero or more"
+                raise fail(f"line {line} ({mat} {size}): {cell[name]!r} must be {need}", name)
+            values[name] = value
+        rows.append(_Row(line, mat, k, values["conductor_price"], values["labour"],
+                         values["metal_kg"]))
+    if not rows:
+        raise fail("no price rows")
+    return rows
+
+
+def _check_complete(rows: list[_Row], catalogue: SizeCatalogue, file: str) -> None:
+    """Each listed material runs without a gap from its smallest size to the largest."""
+    largest = len(catalogue.sizes) - 1
+    for mat in MATERIALS:
+        listed = {row.index for row in rows if row.material == mat}
+        if not listed:
+            continue
+        missing = sorted(set(range(min(listed), largest + 1)) - listed)
+        if missing:
+            names = ", ".join(catalogue.sizes[k] for k in missing[:6])
+            more = f" and {len(missing) - 6} more" if len(missing) > 6 else ""
+            raise ScenarioError(
+                f"{mat}: no price for {names}{more} (a material is priced from its smallest "
+                f"listed size up to {catalogue.sizes[largest]} without gaps)",
+                file=file, field="size")
+
+
+def bundled_price_list_path(name: str) -> Path:
+    """Path of a price list shipped in ``costdata/`` of the source checkout.
+
+    Accepts ``"demo-us.csv"``, ``"demo-us"`` or ``"costdata/demo-us.csv"``.
+    """
+    rel = Path(name)
+    if rel.parts and rel.parts[0] == COSTDATA_DIR.name:
+        rel = Path(*rel.parts[1:]) if len(rel.parts) > 1 else Path()
+    if rel.suffix == "" and rel.name:
+        rel = rel.with_suffix(".csv")
+    candidate = COSTDATA_DIR / rel
+    if rel.name and candidate.is_file():
+        return candidate
+    shipped = sorted(p.name for p in COSTDATA_DIR.glob("*.csv")) if COSTDATA_DIR.is_dir() else []
+    listing = ", ".join(shipped) if shipped else f"none found in {COSTDATA_DIR}"
+    raise ScenarioError(f"no bundled price list {name!r} (bundled: {listing})", field="catalogue")
+
+
+def resolve_price_list(text: str, scenario_dir: str | Path) -> Path:
+    """Find the price list a scenario names: beside the scenario first, then bundled."""
+    given = Path(text).expanduser()
+    if given.is_absolute():
+        if given.is_file():
+            return given
+        raise ScenarioError(f"price list {text!r} not found", field="catalogue")
+    local = Path(scenario_dir) / given
+    if local.is_file():
+        return local
+    try:
+        return bundled_price_list_path(text)
+    except ScenarioError as exc:
+        raise ScenarioError(f"price list {text!r} not found in {Path(scenario_dir)} "
+                            f"nor among the bundled lists ({exc.message})",
+                            field="catalogue") from None
