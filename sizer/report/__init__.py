@@ -1,0 +1,1 @@
+"""Reports of a finished design: tables, plots, HTML, CSV/XLSX and JSON files."""

@@ -1,0 +1,144 @@
+"""Files written from a finished design: JSON results and CSV/XLSX schedules.
+
+Every file is written to a temporary file beside its target and renamed into place, so
+an interrupted run never leaves a half-written output. Data files carry no timestamps
+and their floats are rounded, so the same input gives byte-identical files.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import os
+import tempfile
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import asdict, is_dataclass
+from pathlib import Path
+from typing import Any
+
+from sizer.errors import ScenarioError
+from sizer.model import Design
+
+DECIMALS = 6
+# A leading character a spreadsheet would read as a formula.
+_FORMULA_LEAD = ("=", "+", "-", "@", "\t", "\r")
+
+
+def clean(value: Any) -> Any:
+    """JSON-safe copy: floats rounded, non-finite to None, dataclasses to dicts."""
+    if is_dataclass(value) and not isinstance(value, type):
+        value = asdict(value)
+    if isinstance(value, float):
+        if not math.isfinite(value):
+            return None
+        rounded = round(value, DECIMALS)
+        return 0.0 if rounded == 0 else rounded
+    if isinstance(value, Mapping):
+        return {str(k): clean(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [clean(v) for v in value]
+    if hasattr(value, "item") and callable(value.item):  # numpy scalars
+        return clean(value.item())
+    return value
+
+
+def design_document(design: Design, extra: Mapping[str, Any] | None = None) -> dict[str, Any]:
+    """The stable JSON document of DESIGN.md "Results" for a design."""
+    doc: dict[str, Any] = {
+        "status": design.status,
+        "objective": design.objective,
+        "rules": design.rules,
+        "currency": design.currency,
+        "engine": design.engine,
+        "proven_optimal": design.proven_optimal,
+        "gap": design.gap,
+        "totals": {
+            "capex": design.totals.capex,
+            "loss_pv": design.totals.loss_pv,
+            "lifecycle": design.totals.lifecycle,
+            "loss_kwh_per_year": design.totals.loss_kwh_per_year,
+        },
+        "segments": [asdict(s) for s in design.segments],
+    }
+    if design.diagnosis:
+        doc["diagnosis"] = list(design.diagnosis)
+    if design.status in ("compliant", "violations"):
+        doc["violations"] = [asdict(v) for v in design.violations]
+    if design.notes:
+        doc["notes"] = list(design.notes)
+    if extra:
+        doc.update(extra)
+    return clean(doc)
+
+
+def json_text(doc: Any) -> str:
+    """Deterministic JSON text: sorted keys, two-space indent, final newline."""
+    return json.dumps(clean(doc), sort_keys=True, indent=2, ensure_ascii=False) + "\n"
+
+
+def safe_cell(value: Any) -> Any:
+    """Neutralise text a spreadsheet would evaluate (a leading =, +, -, @)."""
+    if isinstance(value, str) and value.startswith(_FORMULA_LEAD):
+        return "'" + value
+    return value
+
+
+def csv_text(header: Sequence[str], rows: Iterable[Sequence[Any]]) -> str:
+    """CSV text with every cell quoted-as-needed and formula-like text neutralised."""
+    buf = io.StringIO()
+    writer = csv.writer(buf, lineterminator="\n")
+    writer.writerow(header)
+    for row in rows:
+        writer.writerow([safe_cell(_fmt(v)) for v in row])
+    return buf.getvalue()
+
+
+def _fmt(value: Any) -> Any:
+    if isinstance(value, float):
+        return "" if not math.isfinite(value) else f"{value:.{DECIMALS}g}"
+    return "" if value is None else value
+
+
+SCHEDULE_COLUMNS = (
+    "id", "parent", "kind", "voltage_v", "phases", "length_m", "current_a", "ocpd_a",
+    "material", "size", "sets", "egc", "ampacity_a", "temp_c", "vd_pct", "path_vd_pct",
+    "loadflow_drop_pct", "fault_ka", "r_ohm", "x_ohm", "capex", "loss_kw", "loss_pv", "pinned",
+)
+
+
+def schedule_csv(design: Design) -> str:
+    """The per-segment schedule as CSV text."""
+    rows = ([getattr(s, c) for c in SCHEDULE_COLUMNS] for s in design.segments)
+    return csv_text(SCHEDULE_COLUMNS, rows)
+
+
+def atomic_write(path: str | Path, data: str | bytes, *, protect: Sequence[Path] = ()) -> Path:
+    """Write ``data`` to ``path`` through a temporary file in the same folder.
+
+    Refuses to overwrite any path in ``protect`` (the input scenario). The previous file
+    stays intact until the new one is complete.
+    """
+    target = Path(path)
+    resolved = target.resolve()
+    if any(resolved == Path(p).resolve() for p in protect):
+        raise ScenarioError("refusing to overwrite the input scenario", file=str(target))
+    if target.is_dir():
+        raise ScenarioError("is a folder, not a file name", file=str(target))
+    folder = resolved.parent
+    if not folder.is_dir():
+        raise ScenarioError("its folder does not exist", file=str(target))
+    mode = "wb" if isinstance(data, bytes) else "w"
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+    try:
+        with os.fdopen(fd, mode, **({} if mode == "wb" else {"encoding": "utf-8",
+                                                               "newline": ""})) as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, resolved)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+    return target
