@@ -1,0 +1,597 @@
+"""Rule profiles: one electrical code's sizing rules as data, loaded into a frozen RuleProfile.
+
+A profile is a TOML file (limits, factors, rules, each with its source) plus CSV tables
+(ampacity, equipment grounding conductor, the size order with areas) in this directory.
+Every CSV opens with ``#`` lines naming its standard, table, edition and status.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+import tomllib
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from functools import cache
+from itertools import pairwise
+from pathlib import Path
+from types import MappingProxyType
+from typing import Any
+
+import numpy as np
+
+from sizer.errors import ScenarioError, UnitError
+from sizer.units import MATERIALS, parse_size
+
+PROFILES: tuple[str, ...] = ("nec", "cec", "iec")
+INSTALLATIONS: tuple[str, ...] = ("conduit", "steel_conduit", "tray", "buried", "free_air")
+CATALOGUES: tuple[str, ...] = ("awg", "metric")
+EGC_RULES: tuple[str, ...] = ("device_rating", "phase_area")
+DROP_KINDS: tuple[str, ...] = ("branch", "feeder", "total")
+
+MM2_PER_CMIL = math.pi / 4 * 0.0254**2  # area of a circle one mil (0.0254 mm) across
+_HERE = Path(__file__).parent
+
+
+@dataclass(frozen=True)
+class TerminalRule:
+    """Default termination temperature (NEC 110.14(C)(1)) when the scenario gives none.
+
+    Circuits rated at most ``low_max_ocpd_a``, or conductors no larger than
+    ``low_max_size``, are limited to the ``low_c`` column; all others to ``high_c``.
+    """
+
+    low_c: float
+    high_c: float
+    low_max_ocpd_a: float
+    low_max_size: str
+    source: str
+
+
+@dataclass(frozen=True, eq=False)
+class RuleProfile:
+    """An electrical code's sizing rules; every value comes from the profile's TOML and CSVs.
+
+    Arrays are read-only; sizes are indexed in ``sizes`` order, which is the order of the
+    catalogue named by ``catalogue``. Instances compare and hash by identity (profiles
+    are cached), so they can be passed to cached functions.
+    """
+
+    name: str                                # "nec" | "cec" | "iec" (or a custom file's name)
+    title: str
+    edition: str
+    path: str                                # the TOML file it was read from
+    catalogue: str                           # "awg" | "metric"
+    frequency_hz: float
+    notes: tuple[str, ...]                   # assumptions and stand-ins, for reports
+    sources: Mapping[str, str]               # topic -> standard, clause, edition, status
+    # voltage drop, % of nominal
+    drop_branch_pct: float
+    drop_feeder_pct: float
+    drop_total_pct: float
+    # design current
+    unknown_load_factor: float               # x device rating when no load is given
+    continuous_factor: float                 # x continuous load for the ampacity before adjustment
+    # sizes (canonical names, ascending area) and their areas
+    sizes: tuple[str, ...]
+    size_area_mm2: np.ndarray                # float [n_sizes]; AWG from Table 8 circular mils
+    # ampacity
+    insulation_temps_c: tuple[float, ...]    # insulation ratings the profile allows
+    column_temps_c: tuple[float, ...]        # temperature columns of the ampacity table, ascending
+    methods: tuple[str, ...]                 # table methods ("310.16", "B1", "C", "E", "D1")
+    installation_methods: Mapping[str, str]  # installation word -> method
+    reference_ambient_c: Mapping[str, float]  # method -> ambient of its table
+    ambient_credit_min_c: float              # colder ambients get no more credit than this
+    # (method, material) -> A, shape [n_columns, n_sizes], NaN where the table has none
+    ampacity_tables_a: Mapping[tuple[str, str], np.ndarray]
+    grouping_conductors_per_group: int       # 1: count conductors (NEC); 3: count circuits (IEC)
+    # (largest count in the band, factor), ascending, the last band up to inf
+    grouping_bands: tuple[tuple[float, float], ...]
+    terminal_rule: TerminalRule | None       # None: no default terminal limit
+    # protection
+    standard_ratings_a: tuple[float, ...]    # ascending
+    next_size_up_max_a: float | None         # None: device must not exceed the ampacity
+    small_conductor_max_ocpd_a: tuple[tuple[str, str, float], ...]  # (material, size, max device A)
+    # equipment grounding (protective) conductor
+    egc_rule: str                            # "device_rating" | "phase_area"
+    egc_table: tuple[tuple[float, str, str], ...]  # device_rating: (device <= A, Cu size, Al size)
+    egc_table_area_mm2: tuple[tuple[float, float], ...]  # same rows: (Cu area, Al area)
+    egc_proportional: bool                   # NEC 250.122(B)
+    # phase_area rule: (phase area <= mm2, fraction of phase, fixed mm2), need = fraction S + fixed
+    egc_phase_bands: tuple[tuple[float, float, float], ...]
+    # other limits
+    min_parallel_size: str | None            # None: no minimum
+    default_clearing_time_s: float
+    short_circuit_final_c: tuple[tuple[float, float], ...]  # (insulation rating, final temp)
+    motor_start_dip_pct: float
+    _size_lookup: Mapping[str, int] = field(init=False, repr=False)
+
+    def __post_init__(self) -> None:
+        lookup = {s: i for i, s in enumerate(self.sizes)}
+        object.__setattr__(self, "_size_lookup", MappingProxyType(lookup))
+        problems = _problems(self)
+        if problems:
+            raise ScenarioError(f"rule profile '{self.name}': " + "; ".join(problems),
+                                file=self.path)
+
+    # --- small helpers every caller needs -------------------------------------------
+
+    def size_index(self, size: str) -> int:
+        """Index of a canonical size name in this profile's size order."""
+        try:
+            return self._size_lookup[size]
+        except KeyError:
+            raise UnitError(
+                f"size {size!r} is not in the '{self.catalogue}' sizes of rule profile "
+                f"'{self.name}'"
+            ) from None
+
+    def indices(self, size_index: object) -> tuple[np.ndarray, np.ndarray]:
+        """``(safe, valid)`` for an integer array of size indices.
+
+        ``valid`` marks indices inside the size list; ``safe`` replaces the others by 0
+        so they can index tables (the caller masks them with NaN/False). Negative
+        indices are invalid here, never counted from the end.
+        """
+        idx = np.asarray(size_index)
+        if idx.dtype.kind not in "iu":
+            raise TypeError(f"size_index must be integers, got dtype {idx.dtype}")
+        valid = (idx >= 0) & (idx < len(self.sizes))
+        return np.where(valid, idx, 0), valid
+
+    def method(self, installation: str) -> str:
+        """Table method used for an installation word (e.g. "conduit" -> "B1" in iec)."""
+        try:
+            return self.installation_methods[installation]
+        except KeyError:
+            raise ScenarioError(
+                f"unknown installation {installation!r} (use one of {', '.join(INSTALLATIONS)})"
+            ) from None
+
+    def drop_limit_pct(self, kind: str) -> float:
+        """Voltage-drop limit in % for "branch", "feeder" or "total"."""
+        if kind not in DROP_KINDS:
+            raise ScenarioError(f"unknown voltage-drop kind {kind!r} (use branch, feeder, total)")
+        return float(getattr(self, f"drop_{kind}_pct"))
+
+    def final_temperature_c(self, insulation_c: float) -> float:
+        """Short-circuit final temperature in degC for an insulation rating."""
+        for rating, final in self.short_circuit_final_c:
+            if math.isclose(rating, insulation_c):
+                return final
+        raise ScenarioError(self._insulation_message(insulation_c))
+
+    def check_insulation(self, insulation_c: float) -> float:
+        """Return ``insulation_c`` if the profile allows it, else raise ScenarioError."""
+        for rating in self.insulation_temps_c:
+            if math.isclose(rating, insulation_c):
+                return rating
+        raise ScenarioError(self._insulation_message(insulation_c))
+
+    def _insulation_message(self, insulation_c: float) -> str:
+        allowed = ", ".join(f"{t:g} degC" for t in self.insulation_temps_c)
+        return (f"insulation rated {insulation_c:g} degC is not in rule profile "
+                f"'{self.name}' (allowed: {allowed})")
+
+
+def check_material(material: str) -> str:
+    """Return ``material`` if it is "Cu" or "Al", else raise UnitError."""
+    if material not in MATERIALS:
+        raise UnitError(f"unknown conductor material {material!r} (use \"Cu\" or \"Al\")")
+    return material
+
+
+# --- self-checks --------------------------------------------------------------------
+
+
+def _problems(p: RuleProfile) -> list[str]:
+    """Everything wrong with a profile, as short sentences (empty when it is sound)."""
+    out: list[str] = []
+    n = len(p.sizes)
+    if p.catalogue not in CATALOGUES:
+        out.append(f"catalogue must be one of {CATALOGUES}, got {p.catalogue!r}")
+    if not p.frequency_hz > 0:
+        out.append("frequency_hz must be positive")
+    for kind in DROP_KINDS:
+        v = getattr(p, f"drop_{kind}_pct")
+        if not 0 < v <= 100:
+            out.append(f"drop {kind} limit must be in (0, 100] %, got {v}")
+    if max(p.drop_branch_pct, p.drop_feeder_pct) > p.drop_total_pct:
+        out.append("a branch or feeder drop limit exceeds the total limit")
+    if not 0 < p.unknown_load_factor <= 1:
+        out.append(f"unknown_load_factor must be in (0, 1], got {p.unknown_load_factor}")
+    if not 1 <= p.continuous_factor <= 2:
+        out.append(f"continuous_factor must be in [1, 2], got {p.continuous_factor}")
+    if n == 0 or len(set(p.sizes)) != n:
+        out.append("sizes must be a non-empty list without repeats")
+    area = p.size_area_mm2
+    if area.shape != (n,) or not np.all(np.isfinite(area)) or np.any(np.diff(area) <= 0):
+        out.append("size areas must be finite and strictly ascending in size order")
+    if list(p.column_temps_c) != sorted(set(p.column_temps_c)):
+        out.append("ampacity columns must be distinct temperatures")
+    for t in p.insulation_temps_c:
+        if t not in p.column_temps_c:
+            out.append(f"insulation {t:g} degC has no ampacity column")
+    if set(p.installation_methods) != set(INSTALLATIONS):
+        out.append(f"[ampacity.methods] must map exactly the installations {INSTALLATIONS}")
+    for inst, m in p.installation_methods.items():
+        if m not in p.methods:
+            out.append(f"installation {inst!r} maps to method {m!r}, which has no table")
+    for m in p.methods:
+        ref = p.reference_ambient_c.get(m)
+        if ref is None:
+            out.append(f"method {m!r} has no reference ambient")
+        elif not p.ambient_credit_min_c < ref < min(p.column_temps_c):
+            out.append(f"method {m!r}: reference ambient must lie between the credit floor "
+                       "and the lowest column temperature")
+    for (m, mat), table in p.ampacity_tables_a.items():
+        if m not in p.methods or mat not in MATERIALS:
+            out.append(f"ampacity table for unknown method/material {m!r}/{mat!r}")
+        if table.shape != (len(p.column_temps_c), n):
+            out.append(f"ampacity table {m}/{mat} has shape {table.shape}, "
+                       f"expected {(len(p.column_temps_c), n)}")
+        elif np.any(table[np.isfinite(table)] <= 0):
+            out.append(f"ampacity table {m}/{mat} has a value <= 0")
+    if p.grouping_conductors_per_group < 1:
+        out.append("grouping conductors_per_group must be >= 1")
+    counts = [b[0] for b in p.grouping_bands]
+    factors = [b[1] for b in p.grouping_bands]
+    if not counts or counts[-1] != math.inf or any(b <= a for a, b in pairwise(counts)):
+        out.append("grouping bands must ascend and end with inf")
+    if any(not 0 < f <= 1 for f in factors) or any(b > a for a, b in pairwise(factors)):
+        out.append("grouping factors must lie in (0, 1] and never rise with the count")
+    if p.terminal_rule is not None:
+        tr = p.terminal_rule
+        if tr.low_c not in p.column_temps_c or tr.high_c not in p.column_temps_c:
+            out.append("terminal rule temperatures must be ampacity columns")
+        if tr.low_max_size not in p.sizes:
+            out.append(f"terminal rule size {tr.low_max_size!r} is not a profile size")
+    r = p.standard_ratings_a
+    if not r or r[0] <= 0 or any(b <= a for a, b in pairwise(r)):
+        out.append("standard ratings must be positive and strictly ascending")
+    if p.next_size_up_max_a is not None and not p.next_size_up_max_a > 0:
+        out.append("next_size_up_max_a must be positive (leave it out for none)")
+    for mat, size, limit in p.small_conductor_max_ocpd_a:
+        if mat not in MATERIALS or size not in p.sizes or not limit > 0:
+            out.append(f"bad small-conductor limit {(mat, size, limit)}")
+    if p.egc_rule not in EGC_RULES:
+        out.append(f"egc rule must be one of {EGC_RULES}, got {p.egc_rule!r}")
+    if p.egc_rule == "device_rating":
+        limits = [row[0] for row in p.egc_table]
+        if not limits or any(b <= a for a, b in pairwise(limits)):
+            out.append("EGC table must list ascending device ratings")
+        for cu_mm2, al_mm2 in p.egc_table_area_mm2:
+            if not (cu_mm2 > 0 and al_mm2 > 0):
+                out.append("EGC table has a size without an area")
+                break
+    if p.egc_rule == "phase_area":
+        tops = [b[0] for b in p.egc_phase_bands]
+        if not tops or tops[-1] != math.inf or any(b <= a for a, b in pairwise(tops)):
+            out.append("EGC phase-area bands must ascend and end with inf")
+        if p.egc_proportional:
+            out.append("the proportional EGC increase applies to the device_rating rule only")
+    if p.min_parallel_size is not None and p.min_parallel_size not in p.sizes:
+        out.append(f"min_parallel_size {p.min_parallel_size!r} is not a profile size")
+    if not 0 < p.default_clearing_time_s <= 5:
+        out.append("default_clearing_time_s must be in (0, 5] s (the adiabatic range)")
+    finals = dict(p.short_circuit_final_c)
+    for t in p.insulation_temps_c:
+        if t not in finals or not finals[t] > t:
+            out.append(f"insulation {t:g} degC needs a short-circuit final temperature above it")
+    if not 0 < p.motor_start_dip_pct < 100:
+        out.append("motor_start_dip_pct must be in (0, 100)")
+    return out
+
+
+# --- loading ------------------------------------------------------------------------
+
+
+class _Section:
+    """Strict reader of one TOML table: unknown keys are errors (they are usually typos)."""
+
+    def __init__(self, data: Mapping[str, Any], where: str, file: str) -> None:
+        if not isinstance(data, Mapping):
+            raise ScenarioError(f"[{where}] must be a table", file=file)
+        self.data = dict(data)
+        self.where = where
+        self.file = file
+
+    def _fail(self, key: str, message: str) -> ScenarioError:
+        return ScenarioError(message, file=self.file, field=f"{self.where}.{key}".lstrip("."))
+
+    def take(self, key: str, kind: type | tuple[type, ...], default: Any = ...) -> Any:
+        if key not in self.data:
+            if default is ...:
+                raise self._fail(key, "is missing")
+            return default
+        value = self.data.pop(key)
+        if kind is float and isinstance(value, int) and not isinstance(value, bool):
+            value = float(value)
+        if not isinstance(value, kind) or (isinstance(value, bool) and kind is not bool):
+            raise self._fail(key, f"has the wrong type ({type(value).__name__})")
+        return value
+
+    def sub(self, key: str) -> _Section:
+        return _Section(self.take(key, dict), f"{self.where}.{key}".lstrip("."), self.file)
+
+    def optional_sub(self, key: str) -> _Section | None:
+        return self.sub(key) if key in self.data else None
+
+    def floats(self, key: str) -> tuple[float, ...]:
+        values = self.take(key, list)
+        try:
+            return tuple(float(v) for v in values)
+        except (TypeError, ValueError):
+            raise self._fail(key, "must be a list of numbers") from None
+
+    def finish(self) -> None:
+        if self.data:
+            raise self._fail(sorted(self.data)[0], "is not a known key")
+
+
+def _read_csv(path: Path) -> tuple[list[str], list[list[str]], str]:
+    """Header, rows and the ``# source:`` text of a data CSV; ScenarioError if unreadable."""
+    try:
+        text = path.read_text(encoding="utf-8")
+    except OSError as exc:
+        raise ScenarioError(f"cannot read rule table: {exc}", file=str(path)) from None
+    source = ""
+    lines = []
+    for line in text.splitlines():
+        if line.startswith("#"):
+            body = line.lstrip("#").strip()
+            if body.lower().startswith("source:") and not source:
+                source = body[len("source:"):].strip()
+        elif line.strip():
+            lines.append(line)
+    if not source:
+        raise ScenarioError("rule table has no '# source:' line", file=str(path))
+    rows = list(csv.reader(lines))
+    if not rows:
+        raise ScenarioError("rule table is empty", file=str(path))
+    header, body_rows = rows[0], rows[1:]
+    for row in body_rows:
+        if len(row) != len(header):
+            raise ScenarioError(f"row {row} does not match header {header}", file=str(path))
+    return header, body_rows, source
+
+
+def _number(text: str, path: Path) -> float:
+    """A CSV cell as a float; an empty cell is NaN (no value in the table)."""
+    if not text.strip():
+        return math.nan
+    try:
+        return float(text)
+    except ValueError:
+        raise ScenarioError(f"not a number: {text!r}", file=str(path)) from None
+
+
+def _canonical(size: str, path: Path) -> str:
+    try:
+        name = parse_size(size)
+    except UnitError as exc:
+        raise ScenarioError(str(exc), file=str(path)) from None
+    if name != size:
+        raise ScenarioError(f"size {size!r} must be written canonically as {name!r}",
+                            file=str(path))
+    return name
+
+
+def _read_sizes(path: Path) -> tuple[tuple[str, ...], np.ndarray, str]:
+    header, rows, source = _read_csv(path)
+    if header == ["size", "area_cmil"]:
+        scale = MM2_PER_CMIL
+    elif header == ["size", "area_mm2"]:
+        scale = 1.0
+    else:
+        raise ScenarioError("size table needs columns size,area_cmil or size,area_mm2",
+                            file=str(path))
+    sizes = tuple(_canonical(r[0], path) for r in rows)
+    area = np.array([_number(r[1], path) * scale for r in rows])
+    return sizes, area, source
+
+
+def _read_ampacity(
+    path: Path, sizes: tuple[str, ...]
+) -> tuple[tuple[float, ...], tuple[str, ...], dict[tuple[str, str], np.ndarray], str]:
+    """Ampacity CSV with columns ``METHOD:MATERIAL:COLUMN_degC``, rows in profile size order."""
+    header, rows, source = _read_csv(path)
+    if header[0] != "size" or tuple(r[0] for r in rows) != sizes:
+        raise ScenarioError("ampacity rows must list exactly the profile sizes, in order",
+                            file=str(path))
+    keys: list[tuple[str, str, float]] = []
+    for col in header[1:]:
+        parts = col.split(":")
+        if len(parts) != 3 or parts[1] not in MATERIALS:
+            raise ScenarioError(f"column {col!r} is not METHOD:MATERIAL:TEMP", file=str(path))
+        keys.append((parts[0], parts[1], _number(parts[2], path)))
+    if len(set(keys)) != len(keys):
+        raise ScenarioError("repeated ampacity column", file=str(path))
+    temps = tuple(sorted({k[2] for k in keys}))
+    methods = tuple(dict.fromkeys(k[0] for k in keys))
+    tables: dict[tuple[str, str], np.ndarray] = {}
+    for j, (method, material, temp) in enumerate(keys):
+        table = tables.setdefault((method, material), np.full((len(temps), len(sizes)), np.nan))
+        table[temps.index(temp)] = [_number(r[j + 1], path) for r in rows]
+    for table in tables.values():
+        table.flags.writeable = False
+    return temps, methods, tables, source
+
+
+def _size_area_mm2(size: str, sizes: tuple[str, ...], area: np.ndarray, path: Path) -> float:
+    """Area of a size named in a table; kcmil sizes beyond the catalogue from their name."""
+    if size in sizes:
+        return float(area[sizes.index(size)])
+    if size.endswith(" kcmil"):
+        return float(size.split()[0]) * 1000 * MM2_PER_CMIL
+    raise ScenarioError(f"size {size!r} is neither a profile size nor a kcmil size",
+                        file=str(path))
+
+
+def _read_egc(
+    path: Path, sizes: tuple[str, ...], area: np.ndarray
+) -> tuple[tuple[tuple[float, str, str], ...], tuple[tuple[float, float], ...], str]:
+    header, rows, source = _read_csv(path)
+    if header != ["ocpd_max_a", "Cu", "Al"]:
+        raise ScenarioError("EGC table needs columns ocpd_max_a,Cu,Al", file=str(path))
+    table = tuple((_number(r[0], path), _canonical(r[1], path), _canonical(r[2], path))
+                  for r in rows)
+    areas = tuple((_size_area_mm2(cu, sizes, area, path), _size_area_mm2(al, sizes, area, path))
+                  for _, cu, al in table)
+    return table, areas, source
+
+
+def _bands(values: Any, width: int, what: str, file: str) -> tuple[tuple[float, ...], ...]:
+    try:
+        rows = tuple(tuple(float(x) for x in row) for row in values)
+    except (TypeError, ValueError):
+        raise ScenarioError(f"{what} must be a list of [number, ...] rows", file=file) from None
+    if any(len(row) != width for row in rows):
+        raise ScenarioError(f"{what} rows must have {width} numbers each", file=file)
+    return rows
+
+
+def read_profile(path: str | Path) -> RuleProfile:
+    """Read a rule-profile TOML (and the CSVs it names, beside it) into a RuleProfile."""
+    path = Path(path)
+    file = str(path)
+    try:
+        with path.open("rb") as fh:
+            data = tomllib.load(fh)
+    except OSError as exc:
+        raise ScenarioError(f"cannot read rule profile: {exc}", file=file) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ScenarioError(f"not valid TOML: {exc}", file=file) from None
+    top = _Section(data, "", file)
+    here = path.parent
+    sources: dict[str, str] = {}
+
+    name = top.take("name", str)
+    title = top.take("title", str)
+    edition = top.take("edition", str)
+    catalogue = top.take("catalogue", str)
+    frequency_hz = top.take("frequency_hz", float)
+    notes = tuple(str(x) for x in top.take("notes", list, []))
+
+    vd = top.sub("voltage_drop")
+    drop = {k: vd.take(f"{k}_pct", float) for k in DROP_KINDS}
+    sources["voltage_drop"] = vd.take("source", str)
+    vd.finish()
+
+    dc = top.sub("design_current")
+    unknown_load_factor = dc.take("unknown_load_factor", float)
+    sources["unknown_load"] = dc.take("unknown_load_source", str)
+    continuous_factor = dc.take("continuous_factor", float)
+    sources["continuous"] = dc.take("continuous_source", str)
+    dc.finish()
+
+    amp = top.sub("ampacity")
+    sizes, area, sources["sizes"] = _read_sizes(here / amp.take("sizes", str))
+    temps, methods, tables, sources["ampacity_table"] = _read_ampacity(
+        here / amp.take("table", str), sizes)
+    insulation = amp.floats("insulation_temps_c")
+    credit_min = amp.take("ambient_credit_min_c", float)
+    sources["ampacity"] = amp.take("source", str)
+    sources["ambient"] = amp.take("ambient_source", str)
+    meth = amp.sub("methods")
+    ref = amp.sub("reference_ambient_c")
+    installation_methods = {k: meth.take(k, str) for k in list(meth.data)}
+    reference_ambient = {k: ref.take(k, float) for k in list(ref.data)}
+    amp.finish()
+
+    grp = top.sub("grouping")
+    per_group = grp.take("conductors_per_group", int)
+    grouping = _bands(grp.take("bands", list), 2, "grouping bands", file)
+    sources["grouping"] = grp.take("source", str)
+    grp.finish()
+
+    terminal_rule = None
+    if (term := top.optional_sub("terminals")) is not None:
+        terminal_rule = TerminalRule(
+            low_c=term.take("low_c", float), high_c=term.take("high_c", float),
+            low_max_ocpd_a=term.take("low_max_ocpd_a", float),
+            low_max_size=term.take("low_max_size", str), source=term.take("source", str))
+        sources["terminals"] = terminal_rule.source
+        term.finish()
+
+    prot = top.sub("protection")
+    ratings = prot.floats("standard_ratings_a")
+    sources["standard_ratings"] = prot.take("standard_ratings_source", str)
+    next_size_up = prot.take("next_size_up_max_a", float, None)
+    sources["next_size_up"] = prot.take("next_size_up_source", str)
+    sources["small_conductors"] = prot.take("small_conductors_source", str)
+    small = []
+    for i, row in enumerate(prot.take("small_conductors", list, [])):
+        s = _Section(row, f"protection.small_conductors[{i}]", file)
+        small.append((s.take("material", str), s.take("size", str), s.take("max_ocpd_a", float)))
+        s.finish()
+    prot.finish()
+
+    egc = top.sub("egc")
+    egc_rule = egc.take("rule", str)
+    egc_proportional = egc.take("proportional", bool)
+    sources["egc"] = egc.take("source", str)
+    egc_table: tuple[tuple[float, str, str], ...] = ()
+    egc_areas: tuple[tuple[float, float], ...] = ()
+    phase_bands: tuple[tuple[float, ...], ...] = ()
+    if egc_rule == "device_rating":
+        egc_table, egc_areas, sources["egc_table"] = _read_egc(
+            here / egc.take("table", str), sizes, area)
+    elif egc_rule == "phase_area":
+        phase_bands = _bands(egc.take("bands", list), 3, "EGC bands", file)
+    egc.finish()
+
+    min_parallel = None
+    if (par := top.optional_sub("parallel")) is not None:
+        min_parallel = par.take("min_size", str)
+        sources["parallel"] = par.take("source", str)
+        par.finish()
+
+    sc = top.sub("short_circuit")
+    clearing = sc.take("default_clearing_time_s", float)
+    finals = _bands(sc.take("final_temperature_c", list), 2, "final temperatures", file)
+    sources["short_circuit"] = sc.take("source", str)
+    sc.finish()
+
+    ms = top.sub("motor_start")
+    dip = ms.take("max_dip_pct", float)
+    sources["motor_start"] = ms.take("source", str)
+    ms.finish()
+    top.finish()
+
+    area.flags.writeable = False
+    return RuleProfile(
+        name=name, title=title, edition=edition, path=file, catalogue=catalogue,
+        frequency_hz=frequency_hz, notes=notes, sources=MappingProxyType(sources),
+        drop_branch_pct=drop["branch"], drop_feeder_pct=drop["feeder"],
+        drop_total_pct=drop["total"],
+        unknown_load_factor=unknown_load_factor, continuous_factor=continuous_factor,
+        sizes=sizes, size_area_mm2=area,
+        insulation_temps_c=insulation, column_temps_c=temps, methods=methods,
+        installation_methods=MappingProxyType(installation_methods),
+        reference_ambient_c=MappingProxyType(reference_ambient),
+        ambient_credit_min_c=credit_min, ampacity_tables_a=MappingProxyType(tables),
+        grouping_conductors_per_group=per_group,
+        grouping_bands=tuple((b[0], b[1]) for b in grouping),
+        terminal_rule=terminal_rule,
+        standard_ratings_a=ratings, next_size_up_max_a=next_size_up,
+        small_conductor_max_ocpd_a=tuple(small),
+        egc_rule=egc_rule, egc_table=egc_table, egc_table_area_mm2=egc_areas,
+        egc_proportional=egc_proportional,
+        egc_phase_bands=tuple((b[0], b[1], b[2]) for b in phase_bands),
+        min_parallel_size=min_parallel, default_clearing_time_s=clearing,
+        short_circuit_final_c=tuple((b[0], b[1]) for b in finals),
+        motor_start_dip_pct=dip,
+    )
+
+
+@cache
+def load_profile(name: str) -> RuleProfile:
+    """The bundled profile "nec", "cec" or "iec", or a profile TOML file by path; cached."""
+    if name in PROFILES:
+        return read_profile(_HERE / f"{name}.toml")
+    if name.endswith(".toml"):
+        return read_profile(name)
+    raise ScenarioError(
+        f"unknown rule profile {name!r} (use one of {', '.join(PROFILES)} or a .toml file)",
+        field="rules")
