@@ -4,10 +4,12 @@ from __future__ import annotations
 
 import argparse
 import sys
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import contextmanager
+from pathlib import Path
 
 from sizer import CAUTION
-from sizer.errors import SizerError
+from sizer.errors import ScenarioError, SizerError
 
 Command = Callable[[argparse.Namespace], int]
 
@@ -33,6 +35,192 @@ def _cmd_loads(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_reach(args: argparse.Namespace) -> int:
+    from sizer.reach import conductor_reach
+    from sizer.units import (
+        M_PER_FT,
+        parse_conductor,
+        parse_percent,
+        parse_quantity,
+        parse_temperature_c,
+    )
+
+    def located(field: str, parse: Callable[[str], object], text: str | None) -> object:
+        if text is None:
+            return None
+        try:
+            return parse(text)
+        except ScenarioError as exc:
+            raise exc.located(field=field) from None
+
+    result = conductor_reach(
+        located("--conductor", parse_conductor, args.conductor),  # type: ignore[arg-type]
+        voltage_v=located("--voltage", lambda t: parse_quantity(t, "V"), args.voltage),
+        phases=args.phases,
+        limit_pct=located("--limit", parse_percent, args.limit),
+        insulation_c=located("--insulation", parse_temperature_c, args.insulation),
+        current_a=located("--current", lambda t: parse_quantity(t, "A"), args.current),
+        ocpd_a=located("--ocpd", lambda t: parse_quantity(t, "A"), args.ocpd),
+        power_factor=_power_factor(args.power_factor),
+        ambient_c=located("--ambient", parse_temperature_c, args.ambient),
+        rules=args.rules,
+        installation=args.installation,
+        terminal_c=located("--terminals", parse_temperature_c, args.terminals),
+        conductor_temperature_c=located("--conductor-temperature", parse_temperature_c,
+                                        args.conductor_temperature),
+    )  # type: ignore[arg-type]
+    if args.json:
+        from sizer.report.export import json_text
+
+        print(json_text({
+            "reach_m": result.reach_m,
+            "design_current_a": result.design_current_a,
+            "ampacity_a": result.ampacity_a,
+            "conductor_temperature_c": result.conductor_temperature_c,
+            "r_ohm_per_km": result.r_ohm_per_km,
+            "x_ohm_per_km": result.x_ohm_per_km,
+        }), end="")
+        return 0
+    print(f"{args.conductor} at {result.design_current_a:.1f} A, {args.voltage} "
+          f"{args.phases}-phase, drop limit {args.limit}:")
+    print(f"  reach        {result.reach_m:.1f} m ({result.reach_m / M_PER_FT:.0f} ft)")
+    print(f"  ampacity     {result.ampacity_a:.0f} A ({args.rules})")
+    print(f"  running at   {result.conductor_temperature_c:.1f} degC "
+          f"({result.conductor_temperature_c * 9 / 5 + 32:.0f} degF)")
+    print(f"  R {result.r_ohm_per_km:.4f} ohm/km ({result.r_ohm_per_km * 0.3048:.4f} ohm/kft), "
+          f"X {result.x_ohm_per_km:.4f} ohm/km ({result.x_ohm_per_km * 0.3048:.4f} ohm/kft)")
+    print(CAUTION)
+    return 0
+
+
+def _outputs(args: argparse.Namespace) -> list[Path]:
+    """Output paths named on the command line, checked before any work is done."""
+    outs = [Path(p) for p in (getattr(args, "json", None), getattr(args, "csv", None),
+                              getattr(args, "report", None), getattr(args, "xlsx", None))
+            if isinstance(p, str)]
+    scenario = Path(args.file).resolve()
+    for out in outs:
+        if out.resolve() == scenario:
+            raise ScenarioError("refusing to overwrite the input scenario", file=str(out))
+        if not out.resolve().parent.is_dir():
+            raise ScenarioError("its folder does not exist", file=str(out))
+    return outs
+
+
+def _write_design_files(args: argparse.Namespace, design, scenario, extra=None) -> None:  # type: ignore[no-untyped-def]
+    from sizer.report.export import atomic_write, design_document, json_text, schedule_csv
+
+    protect = [Path(args.file)]
+    if getattr(args, "json", None):
+        atomic_write(args.json, json_text(design_document(design, extra)), protect=protect)
+    if getattr(args, "csv", None):
+        atomic_write(args.csv, schedule_csv(design), protect=protect)
+    if getattr(args, "xlsx", None):
+        from sizer.report.export import write_xlsx
+
+        write_xlsx(args.xlsx, design, protect=protect)
+
+
+def _prepare(args: argparse.Namespace, *, keep_pins: bool = False):  # type: ignore[no-untyped-def]
+    from sizer.optimize import prepare
+    from sizer.scenario import load_scenario
+
+    scenario = load_scenario(args.file)
+    return prepare(scenario, keep_pins=keep_pins)
+
+
+def _cmd_solve(args: argparse.Namespace) -> int:
+    from sizer.optimize import Objective
+    from sizer.report.terminal import summary
+    from sizer.workflow import solve_verified
+
+    _outputs(args)
+    with _progress(args) as say:
+        say("reading the scenario and building candidates")
+        prep = _prepare(args)
+        say(f"solving {len(prep.segments)} segments, {len(prep.table)} candidates")
+        design, _ver = solve_verified(prep, Objective(args.objective), engine=args.engine,
+                                      solver=args.solver, time_limit_s=args.time_limit)
+        say("writing files")
+        _write_design_files(args, design, prep.scenario)
+        if args.report and design.segments:
+            from sizer.report.html import write_report
+
+            write_report(args.report, prep, design, protect=[Path(args.file)],
+                         progress=say)
+    print(summary(design, prep.scenario.title))
+    return 0 if design.segments else (1 if design.status == "infeasible" else 2)
+
+
+def _cmd_check(args: argparse.Namespace) -> int:
+    from sizer.optimize import check
+    from sizer.report.terminal import summary
+    from sizer.workflow import verify_design, with_verification
+
+    _outputs(args)
+    prep = _prepare(args, keep_pins=True)
+    design = check(prep, engine=args.engine, solver=args.solver)
+    if design.segments:
+        import numpy as np
+
+        choice = np.asarray(design.choice, dtype=np.int64)
+        design = with_verification(prep, design, choice, verify_design(prep, choice))
+        if design.violations:
+            from dataclasses import replace
+
+            design = replace(design, status="violations")
+    _write_design_files(args, design, prep.scenario)
+    print(summary(design, prep.scenario.title))
+    return 0 if design.status == "compliant" else 1
+
+
+def _cmd_frontier(args: argparse.Namespace) -> int:
+    from sizer.report.export import atomic_write, json_text
+    from sizer.workflow import frontier
+
+    _outputs(args)
+    with _progress(args) as say:
+        prep = _prepare(args)
+        points = frontier(prep, args.points, engine=args.engine, solver=args.solver,
+                          time_limit_s=args.time_limit, progress=say)
+    cur = prep.scenario.currency
+    if not points:
+        print("no feasible design: run `sizer solve` for the diagnosis")
+        return 1
+    print(f"{prep.scenario.title} — upfront cost against the present value of losses")
+    print(f"{'upfront ' + cur:>16} {'loss PV ' + cur:>16} {'lifetime ' + cur:>16}  method")
+    for p in points:
+        proven = "" if p.proven_optimal else " (not proven)"
+        print(f"{p.capex:16,.0f} {p.loss_pv:16,.0f} {p.lifecycle:16,.0f}  {p.method}{proven}")
+    print(CAUTION)
+    if args.json:
+        doc = {"currency": cur, "rules": prep.profile.name, "points": [
+            {"capex": p.capex, "loss_pv": p.loss_pv, "lifecycle": p.lifecycle,
+             "method": p.method, "parameter": p.parameter,
+             "proven_optimal": p.proven_optimal} for p in points]}
+        atomic_write(args.json, json_text(doc), protect=[Path(args.file)])
+    return 0
+
+
+@contextmanager
+def _progress(args: argparse.Namespace) -> Iterator[Callable[[str], None]]:
+    """Progress lines on stderr for long work (quiet with --quiet)."""
+    if getattr(args, "quiet", False) or not sys.stderr.isatty():
+        yield lambda _msg: None
+        return
+    from rich.console import Console
+
+    console = Console(stderr=True)
+    with console.status("working") as status:
+        yield lambda msg: status.update(msg)
+
+
+def _power_factor(value: float) -> float:
+    if not 0 < value <= 1:
+        raise ScenarioError(f"must be in (0, 1], got {value}", field="--power-factor")
+    return value
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser for every subcommand."""
     parser = argparse.ArgumentParser(
@@ -45,6 +233,56 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("loads", help="read a scenario and print every segment's design current")
     p.add_argument("file", help="scenario file (.toml, or .csv schedule)")
     p.set_defaults(run=_cmd_loads)
+
+    def solver_options(p: argparse.ArgumentParser) -> None:
+        p.add_argument("--engine", default="auto", choices=("auto", "tree", "milp"))
+        p.add_argument("--solver", default="cbc", choices=("cbc", "highs"))
+        p.add_argument("--time-limit", type=float, default=None,
+                       help="seconds for the MILP; the best design found is returned")
+        p.add_argument("--quiet", action="store_true", help="no progress display")
+
+    p = sub.add_parser("solve", help="size every run of a scenario at least cost")
+    p.add_argument("file", help="scenario file")
+    p.add_argument("--objective", default="lifecycle", choices=("capex", "lifecycle"))
+    p.add_argument("--json", help="write the results document here")
+    p.add_argument("--csv", help="write the schedule as CSV here")
+    p.add_argument("--xlsx", help="write the schedule as XLSX here (needs sizer[xlsx])")
+    p.add_argument("--report", help="write the HTML report here")
+    solver_options(p)
+    p.set_defaults(run=_cmd_solve)
+
+    p = sub.add_parser("check", help="check the design as pinned against the rules")
+    p.add_argument("file", help="scenario file")
+    p.add_argument("--json", help="write the results document here")
+    p.add_argument("--csv", help="write the schedule as CSV here")
+    solver_options(p)
+    p.set_defaults(run=_cmd_check)
+
+    p = sub.add_parser("frontier", help="upfront cost against the present value of losses")
+    p.add_argument("file", help="scenario file")
+    p.add_argument("--points", type=int, default=12)
+    p.add_argument("--json", help="write the frontier here")
+    solver_options(p)
+    p.set_defaults(run=_cmd_frontier)
+
+    p = sub.add_parser("reach", help="how far one conductor can run within a drop limit")
+    p.add_argument("--conductor", required=True, help='e.g. "4 AWG Cu" or "2x 500 kcmil Al"')
+    p.add_argument("--insulation", required=True, help='insulation rating, e.g. "90 degC"')
+    load = p.add_mutually_exclusive_group(required=True)
+    load.add_argument("--current", help='design current, e.g. "50 A"')
+    load.add_argument("--ocpd", help="device rating; the profile's unknown-load rule applies")
+    p.add_argument("--voltage", required=True, help='circuit voltage, e.g. "240 V"')
+    p.add_argument("--phases", type=int, choices=(1, 3), required=True)
+    p.add_argument("--limit", required=True, help='drop limit, e.g. "3 %%"')
+    p.add_argument("--power-factor", type=float, default=0.9)
+    p.add_argument("--ambient", default="30 degC")
+    p.add_argument("--rules", default="nec", choices=("nec", "cec", "iec"))
+    p.add_argument("--installation", default="conduit")
+    p.add_argument("--terminals", help="terminal rating; default: the profile's terminal rule")
+    p.add_argument("--conductor-temperature",
+                   help="fix the conductor temperature instead of deriving it from the load")
+    p.add_argument("--json", action="store_true", help="print the answer as JSON")
+    p.set_defaults(run=_cmd_reach)
     return parser
 
 
