@@ -14,9 +14,12 @@ from typing import Literal
 import numpy as np
 
 from sizer.errors import ScenarioError
-from sizer.units import ConductorSpec, LoadSpec
+from sizer.units import MATERIALS, ConductorSpec, LoadSpec
 
 SegmentKind = Literal["feeder", "branch"]
+
+# Plausible ambient temperatures for a cable route, degC.
+AMBIENT_RANGE_C = (-40.0, 80.0)
 
 
 def _check(ok: bool, message: str, node: str | None, field_name: str) -> None:
@@ -78,15 +81,48 @@ class Transformer:
     impedance_pct: float
     x_r: float
     secondary_phases: int = 3
+    # No-load (core) loss as % of rating. 0.5 % is a stated assumption, typical of LV
+    # dry-type units of 15-500 kVA (common practice, from memory); give the nameplate value.
+    core_loss_pct: float = 0.5
+
+    def __post_init__(self) -> None:
+        _check(finite_positive(self.rating_va), "must be a positive apparent power", None,
+               "transformer.rating")
+        _check(finite_positive(self.secondary_v), "must be a positive voltage", None,
+               "transformer.secondary")
+        _check(math.isfinite(self.impedance_pct) and 0 < self.impedance_pct < 100,
+               "must be a percentage above 0 and below 100 %", None, "transformer.impedance")
+        _check(finite_positive(self.x_r), "must be a positive number", None, "transformer.x_r")
+        _check(self.secondary_phases in (1, 3), "must be 1 or 3", None,
+               "transformer.secondary_phases")
+        _check(math.isfinite(self.core_loss_pct) and 0 <= self.core_loss_pct < 10,
+               "must be between 0 and 10 %", None, "transformer.core_loss")
+
+    @property
+    def r_pct(self) -> float:
+        """Resistance on the transformer's own rating: R% = Z% / √(1 + (X/R)²)."""
+        return self.impedance_pct / math.sqrt(1.0 + self.x_r * self.x_r)
+
+    @property
+    def x_pct(self) -> float:
+        """Leakage reactance on the transformer's own rating: X% = R% · X/R."""
+        return self.r_pct * self.x_r
 
 
 @dataclass(frozen=True)
 class Motor:
     """A motor load; its starting demand is checked for voltage dip."""
 
-    power_w: float
+    power_w: float             # rating, taken as the running input power (see loads.py)
     start_multiple: float = 6.0
     start_pf: float = 0.3
+
+    def __post_init__(self) -> None:
+        _check(finite_positive(self.power_w), "must be a positive power", None, "motor")
+        _check(math.isfinite(self.start_multiple) and 1 <= self.start_multiple <= 20,
+               "must be between 1 and 20", None, "motor.start_multiple")
+        _check(math.isfinite(self.start_pf) and 0 < self.start_pf <= 1, "must be in (0, 1]",
+               None, "motor.start_pf")
 
 
 @dataclass(frozen=True)
@@ -101,6 +137,20 @@ class CableSettings:
     grouping: int | None = None        # current-carrying conductors in the raceway
     max_sets: int = 4
 
+    def __post_init__(self) -> None:
+        _check(len(self.materials) > 0 and all(m in MATERIALS for m in self.materials),
+               "must be one or more of \"Cu\", \"Al\"", None, "materials")
+        _check(finite_positive(self.insulation_c), "must be a positive temperature", None,
+               "insulation")
+        if self.terminals_c is not None:
+            _check(finite_positive(self.terminals_c), "must be a positive temperature", None,
+                   "terminals")
+        _check(math.isfinite(self.ambient_c) and AMBIENT_RANGE_C[0] <= self.ambient_c
+               <= AMBIENT_RANGE_C[1], "must be between -40 degC and 80 degC", None, "ambient")
+        if self.grouping is not None:
+            _check(self.grouping >= 1, "must be at least 1", None, "grouping")
+        _check(self.max_sets >= 1, "must be at least 1", None, "max_sets")
+
 
 @dataclass(frozen=True)
 class Source:
@@ -111,6 +161,15 @@ class Source:
     phases: int
     fault_current_a: float | None = None
     x_r: float = 10.0
+
+    def __post_init__(self) -> None:
+        _check(bool(self.id), "must not be empty", None, "id")
+        _check(finite_positive(self.voltage_v), "must be a positive voltage", self.id, "voltage")
+        _check(self.phases in (1, 3), "must be 1 or 3", self.id, "phases")
+        if self.fault_current_a is not None:
+            _check(finite_positive(self.fault_current_a), "must be a positive current",
+                   self.id, "fault_current")
+        _check(finite_positive(self.x_r), "must be a positive number", self.id, "x_r")
 
 
 @dataclass(frozen=True)
@@ -133,6 +192,25 @@ class Node:
     motor: Motor | None = None
     clearing_time_s: float | None = None
     neutral: bool | None = None   # None: decided from the loads below (see loads.py)
+    description: str = ""         # free text from the scenario, shown in reports
+
+    def __post_init__(self) -> None:
+        # The dataclass checks its own fields; whole-tree checks live in sizer.validation.
+        _check(bool(self.id), "must not be empty", None, "id")
+        _check(bool(self.parent), "must name the parent node", self.id, "parent")
+        _check(finite_positive(self.length_m), "must be a positive length", self.id, "length")
+        _check(finite_positive(self.voltage_v), "must be a positive voltage", self.id,
+               "voltage")
+        _check(self.phases in (1, 3), "must be 1 or 3", self.id, "phases")
+        _check(math.isfinite(self.power_factor) and 0 < self.power_factor <= 1,
+               "must be in (0, 1]", self.id, "power_factor")
+        _check(math.isfinite(self.demand_factor) and 0 < self.demand_factor <= 1,
+               "must be in (0, 1]", self.id, "demand_factor")
+        if self.ocpd_a is not None:
+            _check(finite_positive(self.ocpd_a), "must be a positive current", self.id, "ocpd")
+        if self.clearing_time_s is not None:
+            _check(finite_positive(self.clearing_time_s), "must be a positive time", self.id,
+                   "clearing_time")
 
 
 @dataclass(frozen=True)
@@ -173,8 +251,11 @@ class Segment:
     power_factor: float
     demand_va: complex         # P + jQ carried by the segment (demand factors applied)
     own_load_va: complex       # the node's own load, for the load flow
-    neutral: bool
+    neutral: bool              # a neutral is run (1-phase line-to-neutral: it is the return)
     is_leaf: bool
+    # 1-phase between a line and the neutral (120 V on 208Y/120, 277 V on 480Y/277); a
+    # 1-phase segment with ``neutral`` and not this is a 3-wire circuit (two lines + N).
+    line_to_neutral: bool = False
 
     @property
     def id(self) -> str:
@@ -287,6 +368,7 @@ class Design:
     diagnosis: tuple[str, ...] = ()
     violations: tuple[Violation, ...] = ()
     notes: tuple[str, ...] = ()
+    choice: tuple[int, ...] = field(default=(), repr=False)  # candidate rows, not exported
 
     def worst_path_drop_pct(self) -> float:
         """The largest source-to-end drop over all segments (estimate)."""

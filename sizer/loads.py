@@ -1,0 +1,242 @@
+"""Design currents of every segment: each load, the sums up the tree, the device ratings.
+
+Every segment is the run from a node's parent to the node. Currents are line currents in
+A at the segment's own voltage; powers in W, VA (complex P + jQ, lagging power factors).
+The rules, each where a designer expects it:
+
+- **A load** is a current (A: the circuit's line current), a real power (W, kW, hp: at
+  the node's power factor) or an apparent power (VA, kVA). 1-phase: I = S / V with V the
+  circuit voltage (line to neutral or line to line, as the node says); 3-phase:
+  I = S / (√3 · V_LL).
+- **A motor** without a ``load`` runs at its rating taken as input power at the node's
+  power factor (a stated simplification: nameplate kW/hp is shaft output, so the real
+  input is higher by 1/efficiency; NEC Table 430.250 full-load currents include both —
+  give ``load = "27 A"`` from the table to use them). A motor is a continuous load
+  (NEC 430.22: conductors at 125 % of full-load current; common practice).
+- **No load but a device rating** (unknown load): the current for voltage drop and
+  losses is the profile's ``unknown_load_factor`` × the device rating (CSA C22.1 Rule
+  8-102: 80 %; the nec profile takes 80 % too as common practice).
+- **Continuous loads** count ``continuous_factor`` × their current toward the required
+  ampacity only (NEC 210.19(A)(1), 215.2(A)(1): 125 %), never toward drop or losses.
+- **A feeder** carries the sum of the demand below it: apparent powers added
+  arithmetically (conservative, common practice) × the node's ``demand_factor``, at the
+  power factor of the vector sum (P / |S|); the required ampacity sums the children's
+  (noncontinuous + factor × continuous) the same way; both converted at the feeder's own
+  voltage and phases. A feeder never carries less than its largest child's current ×
+  its demand factor: a 1-phase load puts its whole current on the line(s) it uses,
+  which the balanced 3-phase sum would spread over three.
+- **A transformer node**: its segment is the cable to the primary. Primary demand =
+  secondary demand + copper loss (R% = Z% / √(1 + (X/R)²), at the loading n: n²·R%·rating)
+  + core loss (``core_loss``, 0.5 % of rating unless given: a stated assumption) + the
+  leakage reactive power n²·X%·rating. The primary cable's required ampacity is at
+  least the rated primary current (primary conductors sized for the nameplate, common
+  practice) and its default device is the next standard rating at or above 125 % of the
+  rated primary current (NEC 450.3(B), primary protection only; next size up allowed).
+  A transformer loaded above its rating is an error.
+- **Device rating**: as given, else the smallest standard rating of the profile at or
+  above the required ampacity (``ocpd_chosen`` True). Motor circuits: NEC 430.52 allows
+  a larger device for starting; give it, sizer does not pick it.
+- **Kind**: ``branch`` for a leaf (feeds a load), ``feeder`` for the rest.
+- **Neutral**: a 1-phase circuit has two current-carrying conductors; it runs a neutral
+  when it is line to neutral (the neutral is its return) or, taken line to line, when a
+  line-to-neutral load hangs below it. A 3-phase segment runs a neutral when any leaf
+  below it on the same voltage level is 1-phase line to neutral. A node's ``neutral =
+  true/false`` overrides both.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from sizer.errors import ScenarioError
+from sizer.model import Scenario, Segment
+from sizer.rules import RuleProfile
+from sizer.validation import Bus, Report, is_line_to_neutral, node_bus, supply_bus
+
+SQRT3 = math.sqrt(3.0)
+# NEC 450.3(B): transformer primary protection at up to 125 % of rated primary current
+# (9 A or more), next standard size up permitted.
+TRANSFORMER_PRIMARY_DEVICE_FACTOR = 1.25
+_REL = 1e-9   # rounding slack when comparing currents with ratings
+
+_CURRENT, _REAL, _APPARENT = 1, 2, 3
+_KIND_CODE = {"current": _CURRENT, "real": _REAL, "apparent": _APPARENT}
+
+
+def line_current_a(apparent_va: np.ndarray | float, voltage_v: np.ndarray | float,
+                   phases: np.ndarray | int) -> np.ndarray:
+    """Line current in A of an apparent power: S/V (1-phase) or S/(√3·V_LL) (3-phase)."""
+    k = np.where(np.asarray(phases) == 3, SQRT3, 1.0)
+    return np.asarray(apparent_va, dtype=float) / (k * np.asarray(voltage_v, dtype=float))
+
+
+def next_rating_a(ratings_a: np.ndarray, current_a: np.ndarray) -> np.ndarray:
+    """Smallest rating ≥ each current (NaN where none is large enough)."""
+    ratings = np.asarray(ratings_a, dtype=float)
+    pos = np.searchsorted(ratings, np.asarray(current_a) * (1 - _REL), side="left")
+    out = ratings[np.minimum(pos, len(ratings) - 1)]
+    return np.where(pos < len(ratings), out, np.nan)
+
+
+def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, ...]:
+    """One Segment per node, aligned with ``scenario.nodes``, with its design currents.
+
+    Uses the profile's unknown_load_factor, continuous_factor and standard_ratings_a.
+    Raises ScenarioErrors for a device rating below its design
+    current, an overloaded transformer, or a current beyond every standard rating.
+    """
+    nodes = scenario.nodes
+    n = len(nodes)
+    if n == 0:
+        return ()
+    file = scenario.file
+    parent = _parents(scenario)
+
+    # Voltage levels: which 1-phase nodes are line to neutral.
+    src = supply_bus(scenario.source.voltage_v, scenario.source.phases, scenario.source.id)
+    buses: list[Bus] = []
+    ln = np.zeros(n, dtype=bool)
+    depth = np.zeros(n, dtype=np.int64)
+    for i, nd in enumerate(nodes):
+        bus = src if parent[i] < 0 else buses[parent[i]]
+        ln[i] = is_line_to_neutral(bus, nd.phases, nd.voltage_v)
+        buses.append(node_bus(bus, nd.id, nd.phases, nd.voltage_v, nd.transformer))
+        depth[i] = 0 if parent[i] < 0 else depth[parent[i]] + 1
+
+    volts = np.array([nd.voltage_v for nd in nodes])
+    phases = np.array([nd.phases for nd in nodes], dtype=np.int64)
+    kv = np.where(phases == 3, SQRT3, 1.0) * volts           # S = kv · I
+    pf = np.array([nd.power_factor for nd in nodes])
+    sin = np.sqrt(1.0 - pf * pf)
+    df = np.array([nd.demand_factor for nd in nodes])
+    cf = np.where([nd.continuous for nd in nodes], float(profile.continuous_factor), 1.0)
+    given = np.array([np.nan if nd.ocpd_a is None else nd.ocpd_a for nd in nodes])
+    has_parent = parent >= 0
+    leaf = np.bincount(parent[has_parent], minlength=n) == 0
+    tx = np.array([nd.transformer is not None for nd in nodes])
+    rating = np.array([nd.transformer.rating_va if nd.transformer else 0.0 for nd in nodes])
+    r_pct = np.array([nd.transformer.r_pct if nd.transformer else 0.0 for nd in nodes])
+    x_pct = np.array([nd.transformer.x_pct if nd.transformer else 0.0 for nd in nodes])
+    core_pct = np.array([nd.transformer.core_loss_pct if nd.transformer else 0.0
+                         for nd in nodes])
+    rated_primary_a = np.where(tx, rating / kv, 0.0)
+
+    # --- each leaf's own load --------------------------------------------------------
+    kind = np.array([_KIND_CODE[nd.load.kind] if nd.load else 0 for nd in nodes])
+    value = np.array([nd.load.value if nd.load else 0.0 for nd in nodes])
+    motor_w = np.array([nd.motor.power_w if nd.motor else 0.0 for nd in nodes])
+    unknown = leaf & (kind == 0) & (motor_w == 0) & ~np.isnan(given)
+    own_abs = np.select(
+        [kind == _CURRENT, kind == _REAL, kind == _APPARENT, (kind == 0) & (motor_w > 0),
+         unknown],
+        [kv * value, value / pf, value, motor_w / pf,
+         kv * float(profile.unknown_load_factor) * np.nan_to_num(given)],
+        default=0.0)
+    own_abs = np.where(leaf, own_abs, 0.0)
+    own_i = np.where(kind == _CURRENT, value, own_abs / kv)   # a current stays as written
+
+    s_abs = own_abs.copy()
+    s = own_abs * (pf + 1j * sin)
+    req_va = own_abs * cf
+    current = np.where(leaf, own_i, 0.0)
+    required = current * cf
+    load_fraction = np.zeros(n)
+
+    # --- sums up the tree, one depth at a time, deepest first ---------------------------
+    sum_abs = np.zeros(n)
+    sum_vec = np.zeros(n, dtype=complex)
+    sum_req = np.zeros(n)
+    max_i = np.zeros(n)
+    max_req = np.zeros(n)
+    has_ln = ln.copy()
+    by_depth = np.argsort(depth, kind="stable")
+    bounds = np.searchsorted(depth[by_depth], np.arange(depth.max() + 2))
+    for d in range(int(depth.max()), -1, -1):
+        idx = by_depth[bounds[d]:bounds[d + 1]]
+        f = idx[~leaf[idx]]
+        if f.size:
+            vec = sum_vec[f]
+            mag = np.abs(vec)
+            unit = np.where(mag > 0, vec / np.where(mag > 0, mag, 1.0), pf[f] + 1j * sin[f])
+            s_sec = df[f] * sum_abs[f] * unit
+            r_sec = df[f] * sum_req[f]
+            t = tx[f]
+            load_fraction[f] = np.where(t, np.abs(s_sec) / np.where(t, rating[f], 1.0), 0.0)
+            nn = load_fraction[f] ** 2
+            p_loss = (nn * r_pct[f] + core_pct[f]) / 100.0 * rating[f]
+            q_loss = nn * x_pct[f] / 100.0 * rating[f]
+            s_node = s_sec + p_loss + 1j * q_loss
+            r_node = r_sec + (np.abs(s_node) - np.abs(s_sec))
+            i_f = np.abs(s_node) / kv[f]
+            req_f = r_node / kv[f]
+            # Same voltage level below a panel: no less than the largest child's current.
+            i_f = np.where(t, i_f, np.maximum(i_f, df[f] * max_i[f]))
+            req_f = np.where(t, np.maximum(req_f, rated_primary_a[f]),
+                             np.maximum(req_f, df[f] * max_req[f]))
+            s[f], s_abs[f], req_va[f], current[f], required[f] = (
+                s_node, np.abs(s_node), r_node, i_f, req_f)
+        up = idx[has_parent[idx]]
+        p = parent[up]
+        np.add.at(sum_abs, p, s_abs[up])
+        np.add.at(sum_vec, p, s[up])
+        np.add.at(sum_req, p, req_va[up])
+        np.maximum.at(max_i, p, current[up])
+        np.maximum.at(max_req, p, required[up])
+        same = ~tx[p]     # a transformer's children are on another voltage level
+        np.logical_or.at(has_ln, p[same], has_ln[up[same]])
+
+    seg_pf = np.where(s_abs > 0, s.real / np.where(s_abs > 0, s_abs, 1.0), pf)
+
+    # --- device ratings ----------------------------------------------------------------
+    need = np.where(tx, np.maximum(required,
+                                   TRANSFORMER_PRIMARY_DEVICE_FACTOR * rated_primary_a),
+                    required)
+    chosen = next_rating_a(np.asarray(profile.standard_ratings_a, dtype=float), need)
+    ocpd = np.where(np.isnan(given), chosen, given)
+
+    report = Report(file)
+    largest = max(profile.standard_ratings_a)
+    for k in np.flatnonzero(np.isnan(ocpd)):
+        report.add(f"needs {need[k]:.0f} A, above the largest standard device rating "
+                   f"({largest:g} A) of the {profile.name} profile: give the device rating "
+                   "or split the load over parallel feeders", node=nodes[k].id, field="ocpd")
+    for k in np.flatnonzero(given < current * (1 - _REL)):
+        report.add(f"the device rating {given[k]:g} A is below the design current "
+                   f"{current[k]:.1f} A", node=nodes[k].id, field="ocpd")
+    for k in np.flatnonzero(load_fraction > 1 + _REL):
+        t = nodes[k].transformer
+        assert t is not None
+        report.add(f"the demand below it, {load_fraction[k] * t.rating_va / 1e3:.1f} kVA, "
+                   f"is {100 * load_fraction[k]:.0f} % of its {t.rating_va / 1e3:g} kVA "
+                   "rating", node=nodes[k].id, field="transformer.rating")
+    report.raise_if_any()
+
+    return tuple(
+        Segment(
+            index=i, node=nd, parent_index=int(parent[i]),
+            kind="branch" if leaf[i] else "feeder",
+            voltage_v=nd.voltage_v, phases=nd.phases,
+            current_a=float(current[i]), required_ampacity_a=float(required[i]),
+            ocpd_a=float(ocpd[i]), ocpd_chosen=bool(np.isnan(given[i])),
+            power_factor=float(seg_pf[i]), demand_va=complex(s[i]),
+            own_load_va=complex(s[i]) if leaf[i] else 0j,
+            neutral=bool(has_ln[i]) if nd.neutral is None else nd.neutral,
+            is_leaf=bool(leaf[i]), line_to_neutral=bool(ln[i]),
+        )
+        for i, nd in enumerate(nodes)
+    )
+
+
+def _parents(scenario: Scenario) -> np.ndarray:
+    """Parent index of each node (-1 = the source); parents must come first."""
+    index = scenario.index()
+    out = np.empty(len(scenario.nodes), dtype=np.int64)
+    for i, nd in enumerate(scenario.nodes):
+        j = -1 if nd.parent == scenario.source.id else index.get(nd.parent)
+        if j is None or j >= i:
+            raise ScenarioError("the parent must be the source or a node listed before this "
+                                "one", file=scenario.file, node=nd.id, field="parent")
+        out[i] = j
+    return out

@@ -1,0 +1,1046 @@
+"""Read a scenario file into the model, checking every field; write a node schedule as CSV.
+
+A scenario is one TOML file (layout in DESIGN.md, "The scenario file"):
+
+- ``[project]``: ``title``, ``rules`` (nec | cec | iec), ``currency`` and, optionally,
+  ``schedule = "circuits.csv"``: a CSV node schedule, relative to the TOML file;
+- ``[economics]``: ``energy_price``, ``discount_rate``, ``lifetime``, ``load_factor``
+  (required), ``demand_charge``, ``escalation``, ``load_growth``, ``loss_load_factor``,
+  ``hours``, ``emission_factor``;
+- ``[prices]`` (optional): ``catalogue``, ``copper``, ``aluminium``;
+- ``[defaults]``: cable settings every node inherits (``ambient``, ``materials``,
+  ``insulation``, ``terminals``, ``installation``, ``grouping``, ``max_sets``) plus
+  ``power_factor`` and ``clearing_time``;
+- ``[source]``: ``id``, ``voltage``, ``phases``, ``fault_current``, ``x_r``;
+- ``[[node]]``: one table per node (keys in ``NODE_KEYS``), with the optional tables
+  ``transformer = { rating, secondary, impedance, x_r, secondary_phases, core_loss }``
+  and ``motor = { kw | hp | power, start_multiple, start_pf }``.
+
+A CSV schedule has one row per node and the node keys as column names; the nested
+tables are flattened into dotted columns (``transformer.rating``, ``motor.kw``, ...). A
+cell left empty is "not given"; lines starting with ``#`` are comments (quote an id
+that starts with ``#``); commas, semicolons or tabs separate cells (whichever the
+header line uses). Nodes from ``[[node]]`` tables come first, then the schedule's rows;
+``Scenario.nodes`` holds them parents first, in that order wherever the tree allows.
+Giving ``load_scenario`` the CSV file itself works too: the head is the ``.toml`` beside
+it whose ``schedule`` names that CSV. ``write_schedule_csv`` writes the nodes of a
+scenario in this form, every field spelled out in SI units (inherited values included),
+so the file reads back to equal nodes.
+
+Quantities are strings with units (``"120 ft"``, ``"480 V"``, ``"20 A"``, ``"30 degC"``);
+plain numbers only where the key names the unit or there is none: ``phases``,
+``power_factor``, ``demand_factor``, ``max_sets``, ``grouping``, ``x_r``,
+``load_factor``, ``loss_load_factor``, ``start_multiple``, ``start_pf`` and a motor's
+``kw`` or ``hp``. ``terminals``, ``grouping`` and ``clearing_time`` also take ``"auto"``:
+the rule profile decides. Every problem is reported as one line
+``FILE: node 'X', field 'f': what is wrong``; all are collected and raised together as
+``ScenarioErrors`` (one error alone is raised as itself).
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+import os
+import re
+import tomllib
+from collections.abc import Callable, Mapping
+from functools import lru_cache
+from pathlib import Path
+from typing import Any
+
+from sizer.errors import ScenarioError, UnitError
+from sizer.model import (
+    AMBIENT_RANGE_C,
+    CableSettings,
+    Economics,
+    Motor,
+    Node,
+    Prices,
+    Scenario,
+    Source,
+    Transformer,
+)
+from sizer.units import (
+    CURRENCIES,
+    LoadSpec,
+    parse_conductor,
+    parse_length_m,
+    parse_load,
+    parse_material,
+    parse_money,
+    parse_percent,
+    parse_quantity,
+)
+from sizer.validation import (
+    TREE_CHECKS,
+    NodeDraft,
+    Report,
+    build_tree,
+    check_insulation,
+    check_node_count,
+    check_pin,
+    check_voltage_levels,
+    suggest,
+    supply_bus,
+)
+
+__all__ = ["NODE_KEYS", "SCHEDULE_COLUMNS", "load_scenario", "write_schedule_csv"]
+
+TOP_KEYS = ("project", "economics", "prices", "defaults", "source", "node")
+PROJECT_KEYS = ("title", "rules", "currency", "schedule")
+ECONOMICS_KEYS = ("energy_price", "demand_charge", "escalation", "discount_rate",
+                  "load_growth", "lifetime", "load_factor", "loss_load_factor", "hours",
+                  "emission_factor")
+ECONOMICS_REQUIRED = ("energy_price", "discount_rate", "lifetime", "load_factor")
+PRICES_KEYS = ("catalogue", "copper", "aluminium", "aluminum")
+CABLE_KEYS = ("materials", "insulation", "terminals", "ambient", "installation",
+              "grouping", "max_sets")
+DEFAULTS_KEYS = (*CABLE_KEYS, "power_factor", "clearing_time")
+SOURCE_KEYS = ("id", "voltage", "phases", "fault_current", "x_r")
+TRANSFORMER_KEYS = ("rating", "secondary", "impedance", "x_r", "secondary_phases",
+                    "core_loss")
+MOTOR_KEYS = ("kw", "hp", "power", "start_multiple", "start_pf")
+NODE_KEYS = ("id", "parent", "description", "length", "voltage", "phases", "load",
+             "power_factor", "continuous", "ocpd", "demand_factor", "conductor", "neutral",
+             "clearing_time", "motor", "transformer", *CABLE_KEYS)
+SCHEDULE_COLUMNS = (
+    *(k for k in NODE_KEYS if k not in ("motor", "transformer")),
+    *(f"transformer.{k}" for k in TRANSFORMER_KEYS),
+    *(f"motor.{k}" for k in MOTOR_KEYS),
+)
+# The installation words of the scenario format (CONTRACT.md); the catalogue decides.
+INSTALLATION_WORDS = ("conduit", "steel_conduit", "tray", "buried", "free_air")
+# sizer sizes low-voltage cable: 1000 V AC is the top of the low-voltage range (IEC 60038).
+MAX_VOLTAGE_V = 1000.0
+DEFAULT_POWER_FACTOR = 0.9
+# Mechanical horsepower (the NEC and NEMA motor rating unit), 745.7 W, from pint.
+HP_W = parse_quantity("1 hp", "W")
+
+
+# --- reading one value ----------------------------------------------------------------------
+# Each reader takes the raw value (TOML value, or CSV cell text when ``text`` is True) and
+# returns the parsed value or raises ScenarioError with a message; the caller adds where.
+
+Reader = Callable[[Any, bool], Any]
+
+
+def _show(value: Any) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    return repr(value)
+
+
+def _unit_text(value: Any, example: str) -> str:
+    if isinstance(value, bool) or not isinstance(value, str):
+        raise ScenarioError(f"must be a quantity with its unit, in quotes, e.g. \"{example}\", "
+                            f"got {_show(value)}")
+    return value
+
+
+def read_text(value: Any, text: bool = False) -> str:
+    """One line of non-empty text."""
+    if not isinstance(value, str):
+        raise ScenarioError(f"must be text in quotes, got {_show(value)}")
+    s = value.strip()
+    if not s:
+        raise ScenarioError("must not be empty")
+    if any(ord(c) < 32 for c in s):
+        raise ScenarioError(f"must be one line of text, got {value!r}")
+    return s
+
+
+def read_number(value: Any, text: bool = False) -> float:
+    """A plain finite number (a CSV cell's text is read as one)."""
+    if isinstance(value, bool):
+        raise ScenarioError(f"must be a number, got {_show(value)}")
+    if isinstance(value, int | float):
+        try:
+            x = float(value)
+        except OverflowError as exc:
+            raise ScenarioError(f"is too large, got {value}") from exc
+    elif isinstance(value, str) and text:
+        try:
+            x = float(value.strip())
+        except ValueError as exc:
+            raise ScenarioError(f"must be a number, got {value!r}") from exc
+    elif isinstance(value, str):
+        raise ScenarioError(f"must be a plain number without quotes or unit, got {value!r}")
+    else:
+        raise ScenarioError(f"must be a number, got {_show(value)}")
+    if not math.isfinite(x):
+        raise ScenarioError(f"must be a finite number, got {_show(value)}")
+    return x
+
+
+def read_fraction(value: Any, text: bool = False) -> float:
+    """A number in (0, 1]: power factor, demand factor, load factor."""
+    x = read_number(value, text)
+    if not 0 < x <= 1:
+        raise ScenarioError(f"must be in (0, 1], got {_show(value)}")
+    return x
+
+
+def read_phases(value: Any, text: bool = False) -> int:
+    """1 or 3."""
+    x = read_number(value, text)
+    if x not in (1.0, 3.0):
+        raise ScenarioError(f"must be 1 or 3, got {_show(value)}")
+    return int(x)
+
+
+def read_count(value: Any, text: bool = False) -> int:
+    """A whole number of at least 1."""
+    x = read_number(value, text)
+    if x != int(x) or x < 1:
+        raise ScenarioError(f"must be a whole number of at least 1, got {_show(value)}")
+    return int(x)
+
+
+def _auto(read: Reader) -> Reader:
+    """Let ``"auto"`` stand for None (the rule profile decides)."""
+    def reader(value: Any, text: bool = False) -> Any:
+        if isinstance(value, str) and value.strip().lower() == "auto":
+            return None
+        return read(value, text)
+    return reader
+
+
+def read_bool(value: Any, text: bool = False) -> bool:
+    """A boolean: true or false (a CSV cell may also say yes/no/1/0)."""
+    if isinstance(value, bool):
+        return value
+    if text and isinstance(value, str):
+        word = value.strip().lower()
+        if word in ("true", "yes", "y", "1"):
+            return True
+        if word in ("false", "no", "n", "0"):
+            return False
+    raise ScenarioError(f"must be true or false, got {_show(value)}")
+
+
+# pint parsing costs ~20 µs; schedules repeat the same strings many times over.
+_length_m = lru_cache(maxsize=4096)(parse_length_m)
+_parse_load = lru_cache(maxsize=4096)(parse_load)
+
+
+@lru_cache(maxsize=4096)
+def _quantity(value: str, unit: str) -> float:
+    return parse_quantity(value, unit)
+
+
+def read_length(value: Any, text: bool = False) -> float:
+    """A route length in metres, positive and finite."""
+    x = _length_m(_unit_text(value, "120 ft"))
+    if not x > 0:
+        raise ScenarioError(f"must be a positive length, got {_show(value)}")
+    return x
+
+
+def read_voltage(value: Any, text: bool = False) -> float:
+    """A low voltage in volts."""
+    x = _quantity(_unit_text(value, "480 V"), "V")
+    if not x > 0:
+        raise ScenarioError(f"must be a positive voltage, got {_show(value)}")
+    if x > MAX_VOLTAGE_V:
+        raise ScenarioError(f"sizer sizes low-voltage circuits, up to {MAX_VOLTAGE_V:g} V; "
+                            f"got {_show(value)}")
+    return x
+
+
+def read_current(value: Any, text: bool = False) -> float:
+    """A positive current in amperes."""
+    x = _quantity(_unit_text(value, "20 A"), "A")
+    if not x > 0:
+        raise ScenarioError(f"must be a positive current, got {_show(value)}")
+    return x
+
+
+def read_time(value: Any, text: bool = False) -> float:
+    """A positive time in seconds."""
+    x = _quantity(_unit_text(value, "0.1 s"), "s")
+    if not x > 0:
+        raise ScenarioError(f"must be a positive time, got {_show(value)}")
+    return x
+
+
+def read_temperature(value: Any, text: bool = False) -> float:
+    """A conductor or terminal temperature rating in degC."""
+    x = _quantity(_unit_text(value, "90 degC"), "degC")
+    if not 0 < x <= 300:
+        raise ScenarioError(f"must be a temperature rating such as \"90 degC\", "
+                            f"got {_show(value)}")
+    return x
+
+
+def read_ambient(value: Any, text: bool = False) -> float:
+    """An ambient temperature in degC, within what cable routes see."""
+    x = _quantity(_unit_text(value, "30 degC"), "degC")
+    lo, hi = AMBIENT_RANGE_C
+    if not lo <= x <= hi:
+        raise ScenarioError(f"must be a plausible ambient, {lo:g} degC to {hi:g} degC, "
+                            f"got {_show(value)}")
+    return x
+
+
+def read_percent(value: Any, text: bool = False) -> float:
+    """A percentage, returned as a fraction ("2 %" -> 0.02)."""
+    return parse_percent(_unit_text(value, "2 %")) / 100.0
+
+
+def read_materials(value: Any, text: bool = False) -> tuple[str, ...]:
+    """A list of materials (or text such as "Cu, Al")."""
+    if isinstance(value, str):
+        parts: list[Any] = [p for p in re.split(r"[,;/\s]+", value.strip()) if p]
+    elif isinstance(value, list):
+        parts = value
+    else:
+        raise ScenarioError(f"must be a list such as [\"Cu\", \"Al\"], got {_show(value)}")
+    materials = tuple(dict.fromkeys(parse_material(p) for p in parts))
+    if not materials:
+        raise ScenarioError("must name at least one material (\"Cu\", \"Al\")")
+    return materials
+
+
+def read_installation(value: Any, text: bool = False) -> str:
+    """An installation word the conductor catalogue knows."""
+    from sizer.catalogue import installation
+
+    word = read_text(value)
+    try:
+        installation(word)
+    except ScenarioError as exc:
+        raise ScenarioError(f"unknown installation {word!r}{suggest(word, INSTALLATION_WORDS)} "
+                            f"(use {', '.join(INSTALLATION_WORDS)})") from exc
+    return word
+
+
+def read_load(value: Any, text: bool = False) -> LoadSpec:
+    """A load in A, W/kW/hp or VA/kVA."""
+    raw = _unit_text(value, "12 kW")
+    try:
+        return _parse_load(raw)
+    except UnitError as exc:
+        if "not negative" in exc.message:
+            raise ScenarioError(f"must be a load of at least 0, got {raw!r}") from exc
+        raise
+
+
+def read_rating_va(value: Any, text: bool = False) -> float:
+    """A transformer rating: apparent power in VA."""
+    spec = _parse_load(_unit_text(value, "75 kVA"))
+    if spec.kind != "apparent" or not spec.value > 0:
+        raise ScenarioError(f"must be a positive apparent power such as \"75 kVA\", "
+                            f"got {_show(value)}")
+    return spec.value
+
+
+def read_pin(value: Any, text: bool = False) -> Any:
+    """A pinned conductor ``"[N x ]SIZE MATERIAL"``."""
+    return parse_conductor(_unit_text(value, "2x 500 kcmil Al"))
+
+
+# --- reading a table -----------------------------------------------------------------------
+
+
+class _Fields:
+    """The fields of one table or CSV row: read each, report each bad one, carry on."""
+
+    def __init__(self, raw: Mapping[str, Any], report: Report, *, file: str,
+                 node: str | None = None, prefix: str = "", text: bool = False,
+                 bad: set[str] | None = None) -> None:
+        self.raw = raw
+        self.report = report
+        self.file = file
+        self.node = node
+        self.prefix = prefix
+        self.text = text
+        self.bad: set[str] = bad if bad is not None else set()
+        self.suggested: set[str] = set()   # known keys a misspelt key was taken for
+
+    def unknown_keys(self, known: tuple[str, ...], what: str = "key") -> None:
+        """Report every key that is not in ``known``, with the closest known one."""
+        for key in self.raw:
+            if key not in known:
+                hint = suggest(str(key), known)
+                self.report.add(f"unknown {what} '{key}'{hint}", node=self.node,
+                                field=self.prefix + str(key), file=self.file)
+                self.bad.add(str(key))
+                if hint:   # later checks keep quiet about the key it was meant to be
+                    meant = hint.split("'")[1]
+                    self.suggested.add(meant)
+                    self.bad.add(meant)
+
+    def missing(self, key: str) -> bool:
+        """True when ``key`` is absent and not already reported as misspelt."""
+        return key not in self.raw and key not in self.suggested
+
+    def get(self, key: str, read: Reader, default: Any = None) -> Any:
+        """The parsed value, ``default`` when absent, None when bad (reported)."""
+        if key not in self.raw:
+            return default
+        try:
+            return read(self.raw[key], self.text)
+        except ScenarioError as exc:
+            message = exc.message
+        except (ValueError, TypeError, ArithmeticError, AttributeError, KeyError) as exc:
+            # A value pint or a parser chokes on: still one clear line, never a traceback.
+            message = f"cannot read {_show(self.raw[key])} ({type(exc).__name__})"
+        self.report.add(message, node=self.node, field=self.prefix + key, file=self.file)
+        self.bad.add(key)
+        return None
+
+    def require(self, key: str, read: Reader, hint: str = "") -> Any:
+        """Like get, but report a missing key."""
+        if key not in self.raw:
+            if key not in self.suggested:   # a misspelling of it is reported already
+                self.report.add(f"missing{hint}", node=self.node, field=self.prefix + key,
+                                file=self.file)
+            self.bad.add(key)
+            return None
+        return self.get(key, read)
+
+    def table(self, key: str) -> Mapping[str, Any] | None:
+        """A sub-table, reporting a value that is not one."""
+        value = self.raw.get(key)
+        if value is None or isinstance(value, dict):
+            return value
+        self.report.add(f"must be a table such as [{key}] or {{ ... }}, got {_show(value)}",
+                        node=self.node, field=self.prefix + key, file=self.file)
+        self.bad.add(key)
+        return None
+
+    def build(self, factory: Callable[..., Any], **kwargs: Any) -> Any:
+        """Construct a model object; its own checks are reported here (None when bad)."""
+        try:
+            return factory(**kwargs)
+        except ScenarioError as exc:
+            fld = exc.field or ""
+            if self.prefix and not fld.startswith(self.prefix):
+                fld = self.prefix + fld
+            self.report.add(exc.message, node=self.node, field=fld or None, file=self.file)
+            self.bad.add((fld or "?").split(".")[0])
+            return None
+
+
+# --- the file as a whole -----------------------------------------------------------------------
+
+
+def load_scenario(path: str | os.PathLike[str]) -> Scenario:
+    """Read and check a scenario (.toml, or a .csv schedule with its head .toml).
+
+    Raises ScenarioError (one problem) or ScenarioErrors (several, all collected).
+    """
+    given = Path(path)
+    if given.suffix.lower() == ".csv":
+        head = _find_head(given)
+        return _load_file(head, file=str(head), shown=str(given))
+    return _load_file(given, file=str(given), shown=str(given))
+
+
+def _read_text_file(path: Path, shown: str) -> str:
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError as exc:
+        raise ScenarioError("cannot read the file: no such file", file=shown) from exc
+    except IsADirectoryError as exc:
+        raise ScenarioError("is a folder, not a scenario file", file=shown) from exc
+    except OSError as exc:
+        raise ScenarioError(f"cannot read the file: {exc.strerror}", file=shown) from exc
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise ScenarioError(f"is not UTF-8 text (byte {exc.start})", file=shown) from exc
+
+
+def _read_toml(path: Path, shown: str) -> dict[str, Any]:
+    text = _read_text_file(path, shown)
+    if not text.strip():
+        raise ScenarioError("the file is empty: a scenario needs [project], [economics], "
+                            "[source] and [[node]] tables", file=shown)
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ScenarioError(f"is not valid TOML: {exc}", file=shown) from exc
+    if not data:
+        raise ScenarioError("has no scenario in it: a scenario needs [project], "
+                            "[economics], [source] and [[node]] tables", file=shown)
+    return data
+
+
+def _find_head(csv_path: Path) -> Path:
+    """The .toml beside a CSV schedule whose [project] schedule names it."""
+    shown = str(csv_path)
+    if not csv_path.is_file():
+        raise ScenarioError("cannot read the file: no such file", file=shown)
+    target = csv_path.resolve()
+    heads = []
+    for candidate in sorted(csv_path.parent.glob("*.toml")):
+        try:
+            data = tomllib.loads(candidate.read_text(encoding="utf-8-sig"))
+        except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError):
+            continue
+        project = data.get("project")
+        schedule = project.get("schedule") if isinstance(project, dict) else None
+        if isinstance(schedule, str) and (candidate.parent / schedule).resolve() == target:
+            heads.append(candidate)
+    if len(heads) == 1:
+        return heads[0]
+    if heads:
+        names = ", ".join(h.name for h in heads)
+        raise ScenarioError(f"several head files name this schedule ({names}); load the "
+                            "one you mean", file=shown)
+    raise ScenarioError("a CSV schedule needs a head file: a .toml beside it with "
+                        f"[project] (rules, currency, schedule = \"{csv_path.name}\"), "
+                        "[economics] and [source]", file=shown)
+
+
+def _load_file(path: Path, file: str, shown: str) -> Scenario:
+    """Read the head TOML at ``path`` (errors name ``file``); the scenario is ``shown``."""
+    data = _read_toml(path, file)
+    report = Report(file)
+    top = _Fields(data, report, file=file)
+    top.unknown_keys(TOP_KEYS, "table")
+
+    project = top.table("project")
+    title, rules, currency, schedule = path.stem, None, None, None
+    if project is None:
+        if "project" not in data:
+            report.add("missing [project] table (title, rules, currency)", field="project")
+    else:
+        pf = _Fields(project, report, file=file, prefix="project.")
+        pf.unknown_keys(PROJECT_KEYS)
+        title = pf.get("title", read_text, default=path.stem) or path.stem
+        rules = pf.require("rules", read_text, " (rules = \"nec\", \"cec\" or \"iec\")")
+        currency = pf.require("currency", read_text, " (e.g. currency = \"USD\")")
+        schedule = pf.get("schedule", read_text)
+
+    profile = _profile(rules, report, file)
+    if currency is not None and currency.upper() not in CURRENCIES:
+        report.add(f"unknown currency '{currency}'{suggest(currency.upper(), CURRENCIES)}",
+                   field="project.currency")
+        currency = None
+    currency = currency.upper() if currency else None
+
+    economics = _economics(top, currency, report, file)
+    prices = _prices(top, currency, path, report, file)
+    defaults = _defaults(top, report, file)
+    source, source_id = _source(top, report, file)
+
+    raw_nodes = _raw_nodes(top, report, file)
+    if schedule is not None:
+        raw_nodes += _read_schedule(path.parent / schedule, schedule, report)
+    check_node_count(len(raw_nodes), report)
+    if not raw_nodes and "node" not in data:
+        report.add("has no nodes: add [[node]] tables (or a schedule under [project])",
+                   field="node")
+    drafts = [_read_node(raw, i, nfile, where, text, report)
+              for i, (raw, nfile, where, text) in enumerate(raw_nodes)]
+
+    tree = build_tree(drafts, source_id, report) if source_id else None
+    if tree is not None and source is not None:
+        check_voltage_levels(tree, supply_bus(source.voltage_v, source.phases, source.id),
+                             report)
+        for _name, check in TREE_CHECKS:
+            check(tree, report)
+    nodes = _build_nodes(tree, defaults, profile, report) if tree is not None else ()
+    report.raise_if_any()
+    assert economics is not None and source is not None and rules is not None
+    return Scenario(file=shown, title=title, rules=rules.lower(), currency=currency or "",
+                    economics=economics, prices=prices, source=source, nodes=nodes)
+
+
+def _profile(rules: str | None, report: Report, file: str) -> Any:
+    if rules is None:
+        return None
+    from sizer.rules import PROFILES, load_profile
+
+    name = rules.lower()
+    if name not in PROFILES:
+        report.add(f"unknown rule profile '{rules}'{suggest(name, PROFILES)} "
+                   f"(use {', '.join(PROFILES)})", field="project.rules")
+        return None
+    try:
+        return load_profile(name)
+    except ScenarioError as exc:
+        report.add_error(exc, field="project.rules")
+        return None
+
+
+def _economics(top: _Fields, currency: str | None, report: Report,
+               file: str) -> Economics | None:
+    raw = top.table("economics")
+    if raw is None:
+        if "economics" not in top.raw:
+            report.add("missing [economics] table (energy_price, discount_rate, lifetime, "
+                       "load_factor)", field="economics")
+        return None
+    f = _Fields(raw, report, file=file, prefix="economics.")
+    f.unknown_keys(ECONOMICS_KEYS)
+    if currency is None:  # prices cannot be read without a currency; already reported
+        return None
+
+    def money_per(per: str, alt: str | None = None) -> Reader:
+        def reader(value: Any, text: bool = False) -> float:
+            value = _unit_text(value, f"0.12 {currency}/{per}")
+            try:
+                return parse_money(value, currency, per)
+            except UnitError:
+                if alt is None:
+                    raise
+                return parse_money(value, currency, alt)
+        return reader
+
+    values = {
+        "energy_price_per_kwh": f.require("energy_price", money_per("kWh")),
+        "discount_rate": f.require("discount_rate", read_percent, " (e.g. \"7 %\")"),
+        "lifetime_years": f.require("lifetime", _years, " (e.g. \"25 year\")"),
+        "load_factor": f.require("load_factor", read_fraction, " (e.g. 0.55)"),
+        "demand_charge_per_kw_month": f.get("demand_charge", money_per("kW", "kW*month"), 0.0),
+        "escalation": f.get("escalation", read_percent, 0.0),
+        "load_growth": f.get("load_growth", read_percent, 0.0),
+        "loss_load_factor": f.get("loss_load_factor", read_fraction),
+        "hours_per_year": f.get("hours", _hours, 8760.0),
+        "emission_kg_per_kwh": f.get("emission_factor", _emission, 0.4),
+    }
+    if f.bad or any(values[k] is None for k in values if k != "loss_load_factor"):
+        return None
+    return f.build(Economics, **values)
+
+
+def _years(value: Any, text: bool = False) -> float:
+    return _quantity(_unit_text(value, "25 year"), "year")
+
+
+def _hours(value: Any, text: bool = False) -> float:
+    return _quantity(_unit_text(value, "8760 h"), "h")
+
+
+def _emission(value: Any, text: bool = False) -> float:
+    return _quantity(_unit_text(value, "0.4 kg/kWh"), "kg/kWh")
+
+
+def _prices(top: _Fields, currency: str | None, path: Path, report: Report,
+            file: str) -> Prices:
+    raw = top.table("prices")
+    if raw is None:
+        return Prices()
+    f = _Fields(raw, report, file=file, prefix="prices.")
+    f.unknown_keys(PRICES_KEYS)
+    catalogue = f.get("catalogue", read_text)
+    catalogue_path = None
+    if catalogue is not None:
+        # Beside the scenario if it is there; otherwise as written (the price loader
+        # looks in the working folder and then in the bundled costdata/).
+        beside = path.parent / catalogue
+        catalogue_path = beside if beside.is_file() else Path(catalogue)
+    if currency is None:
+        return Prices(catalogue_path)
+
+    def per_kg(value: Any, text: bool = False) -> float:
+        x = parse_money(_unit_text(value, f"10.5 {currency}/kg"), currency, "kg")
+        if not x > 0:
+            raise ScenarioError(f"must be a positive price, got {_show(value)}")
+        return x
+
+    copper = f.get("copper", per_kg)
+    aluminium = f.get("aluminium", per_kg)
+    if aluminium is None:
+        aluminium = f.get("aluminum", per_kg)
+    return Prices(catalogue_path, copper, aluminium)
+
+
+_DEFAULT_READERS: dict[str, Reader] = {
+    "materials": read_materials,
+    "insulation": read_temperature,
+    "terminals": _auto(read_temperature),
+    "ambient": read_ambient,
+    "installation": read_installation,
+    "grouping": _auto(read_count),
+    "max_sets": read_count,
+    "power_factor": read_fraction,
+    "clearing_time": _auto(read_time),
+}
+
+
+def _defaults(top: _Fields, report: Report, file: str) -> dict[str, Any]:
+    raw = top.table("defaults") or {}
+    f = _Fields(raw, report, file=file, prefix="defaults.")
+    f.unknown_keys(DEFAULTS_KEYS)
+    base = CableSettings()
+    values: dict[str, Any] = {
+        "materials": base.materials, "insulation": base.insulation_c,
+        # Terminal rating not given: the rule profile's terminal rule decides.
+        "terminals": None, "ambient": base.ambient_c, "installation": base.installation,
+        "grouping": base.grouping, "max_sets": base.max_sets,
+        "power_factor": DEFAULT_POWER_FACTOR, "clearing_time": None,
+    }
+    for key, read in _DEFAULT_READERS.items():
+        if key in raw:
+            value = f.get(key, read)
+            if key not in f.bad:
+                values[key] = value
+    values["_bad"] = f.bad
+    return values
+
+
+def _source(top: _Fields, report: Report, file: str) -> tuple[Source | None, str | None]:
+    """The source, and its id (known even when another of its fields is bad)."""
+    raw = top.raw.get("source")
+    if isinstance(raw, list):
+        report.add(f"exactly one source is allowed, found {len(raw)} (write one [source] "
+                   "table)", field="source")
+        return None, None
+    table = top.table("source")
+    if table is None:
+        if raw is None:
+            report.add("missing [source] table (id, voltage, phases): exactly one source "
+                       "feeds the tree", field="source")
+        return None, None
+    f = _Fields(table, report, file=file, prefix="source.")
+    f.unknown_keys(SOURCE_KEYS)
+    sid = f.require("id", read_text)
+    f.node = sid
+    voltage = f.require("voltage", read_voltage, " (e.g. voltage = \"480 V\")")
+    phases = f.require("phases", read_phases, " (phases = 1 or 3)")
+    fault = f.get("fault_current", read_current)
+    x_r = f.get("x_r", read_number, 10.0)
+    if f.bad:
+        return None, sid
+    return f.build(Source, id=sid, voltage_v=voltage, phases=phases, fault_current_a=fault,
+                   x_r=x_r), sid
+
+
+RawNode = tuple[dict[str, Any], str, str, bool]   # fields, file, where, fields are text
+
+
+def _ordinal(n: int) -> str:
+    suffix = "th" if 10 <= n % 100 <= 20 else {1: "st", 2: "nd", 3: "rd"}.get(n % 10, "th")
+    return f"{n}{suffix}"
+
+
+def _raw_nodes(top: _Fields, report: Report, file: str) -> list[RawNode]:
+    raw = top.raw.get("node")
+    if raw is None:
+        return []
+    if isinstance(raw, dict):
+        report.add("write each node as [[node]] (double brackets: a list of tables)",
+                   field="node")
+        return []
+    if not isinstance(raw, list):
+        report.add(f"must be [[node]] tables, got {_show(raw)}", field="node")
+        return []
+    check_node_count(len(raw), report)
+    out: list[RawNode] = []
+    for i, item in enumerate(raw, start=1):
+        where = f"the {_ordinal(i)} [[node]]"
+        if not isinstance(item, dict):
+            report.add(f"{where} is not a table", field="node")
+            continue
+        out.append((item, file, where, False))
+    return out
+
+
+def _read_schedule(path: Path, written: str, report: Report) -> list[RawNode]:
+    """The rows of a CSV schedule as raw node tables (cells as text)."""
+    if path.suffix.lower() != ".csv":
+        report.add(f"must name a .csv file, got {written!r}", field="project.schedule")
+        return []
+    file = str(path)
+    try:
+        text = _read_text_file(path, file)
+    except ScenarioError as exc:
+        report.add_error(exc, field="project.schedule", file=report.file)
+        return []
+    # Comment lines become blank lines, so line numbers still match the file.
+    lines = ["" if line.lstrip().startswith("#") else line for line in text.splitlines()]
+    header_line = next((line for line in lines if line.strip()), "")
+    delimiter = max((",", ";", "\t"), key=header_line.count)
+    reader = csv.reader(io.StringIO("\n".join(lines)), delimiter=delimiter)
+    header: list[str] | None = None
+    known: list[str | None] = []
+    out: list[RawNode] = []
+    for cells in reader:
+        if not any(c.strip() for c in cells):
+            continue
+        if header is None:
+            header = [c.strip().lower() for c in cells]
+            f = _Fields(dict.fromkeys(header), report, file=file)
+            f.unknown_keys(SCHEDULE_COLUMNS, "column")
+            for name in sorted({c for c in header if header.count(c) > 1}):
+                report.add("the column appears twice in the header", field=name, file=file)
+            if "id" not in header:
+                report.add("the schedule needs an 'id' column", field="id", file=file)
+                return []
+            known = [c if c in SCHEDULE_COLUMNS else None for c in header]
+            continue
+        where = f"line {reader.line_num}"
+        if len(cells) > len(header):
+            report.add(f"{where} has {len(cells)} cells but the header has {len(header)}",
+                       file=file)
+            continue
+        check_node_count(len(out) + 1, report)
+        row: dict[str, Any] = {}
+        for col, cell in zip(known, cells, strict=False):
+            if col is None or not cell.strip():
+                continue
+            if "." in col:
+                table, key = col.split(".", 1)
+                row.setdefault(table, {})[key] = cell.strip()
+            else:
+                row[col] = cell.strip()
+        out.append((row, file, where, True))
+    return out
+
+
+def read_description(value: Any, text: bool = False) -> str:
+    """Free text, possibly empty."""
+    return "" if value == "" else read_text(value, text)
+
+
+_NODE_READERS: dict[str, Reader] = {
+    "description": read_description,
+    "length": read_length,
+    "voltage": read_voltage,
+    "phases": read_phases,
+    "load": read_load,
+    "power_factor": read_fraction,
+    "continuous": read_bool,
+    "ocpd": read_current,
+    "demand_factor": read_fraction,
+    "conductor": read_pin,
+    "neutral": read_bool,
+    "clearing_time": _auto(read_time),
+    "materials": read_materials,
+    "insulation": read_temperature,
+    "terminals": _auto(read_temperature),
+    "ambient": read_ambient,
+    "installation": read_installation,
+    "grouping": _auto(read_count),
+    "max_sets": read_count,
+}
+
+
+def _read_node(raw: Mapping[str, Any], position: int, file: str, where: str, text: bool,
+               report: Report) -> NodeDraft:
+    f = _Fields(raw, report, file=file, text=text)
+    node_id = f.get("id", read_text)
+    f.node = node_id
+    f.unknown_keys(NODE_KEYS)
+    if f.missing("id"):
+        report.add(f"{where} has no id", field="id", file=file)
+    parent = f.get("parent", read_text)
+    draft = NodeDraft(file=file, where=where, position=position, id=node_id, parent=parent,
+                      given=frozenset(k for k in raw if k in NODE_KEYS), bad=f.bad)
+    if "id" in f.bad or "id" not in raw:
+        draft.id = None
+    if f.missing("length"):
+        report.add("missing: every node's cable run needs a length (e.g. \"120 ft\")",
+                   node=node_id, field="length", file=file)
+    if "length" not in raw:
+        f.bad.add("length")
+    for key, read in _NODE_READERS.items():
+        if key in raw:
+            value = f.get(key, read)
+            if key not in f.bad:
+                draft.values[key] = value
+    tx_raw = f.table("transformer")
+    if tx_raw is not None:
+        draft.values["transformer"] = _read_transformer(tx_raw, f)
+        # Not given: the secondary has the primary's phases (settled with the voltages).
+        draft.values["transformer_phases_given"] = "secondary_phases" in tx_raw
+    motor_raw = f.table("motor")
+    if motor_raw is not None:
+        draft.values["motor"] = _read_motor(motor_raw, f)
+    for key in ("transformer", "motor"):
+        if key in draft.values and draft.values[key] is None:
+            del draft.values[key]
+            f.bad.add(key)
+    return draft
+
+
+def _sub(f: _Fields, raw: Mapping[str, Any], name: str) -> _Fields:
+    return _Fields(raw, f.report, file=f.file, node=f.node, prefix=f"{name}.", text=f.text)
+
+
+def _read_transformer(raw: Mapping[str, Any], parent: _Fields) -> Transformer | None:
+    f = _sub(parent, raw, "transformer")
+    f.unknown_keys(TRANSFORMER_KEYS)
+    values = {
+        "rating_va": f.require("rating", read_rating_va, " (e.g. rating = \"75 kVA\")"),
+        "secondary_v": f.require("secondary", read_voltage, " (e.g. secondary = \"208 V\")"),
+        "impedance_pct": f.require("impedance", _percent_number,
+                                   " (nameplate %Z, e.g. impedance = \"4.5 %\")"),
+        "x_r": f.require("x_r", read_number,
+                         " (X/R ratio from the maker's test report; 2-6 is typical of "
+                         "15-500 kVA dry-type units)"),
+        "secondary_phases": f.get("secondary_phases", read_phases, 3),
+        "core_loss_pct": f.get("core_loss", _percent_number, 0.5),
+    }
+    if f.bad:
+        return None
+    return f.build(Transformer, **values)
+
+
+def _percent_number(value: Any, text: bool = False) -> float:
+    return parse_percent(_unit_text(value, "4.5 %"))
+
+
+def _read_motor(raw: Mapping[str, Any], parent: _Fields) -> Motor | None:
+    f = _sub(parent, raw, "motor")
+    f.unknown_keys(MOTOR_KEYS)
+    ratings = [k for k in ("kw", "hp", "power") if k in raw]
+    if len(ratings) != 1:
+        found = ", ".join(ratings) if ratings else "none"
+        f.report.add(f"give exactly one motor rating: kw = 15, hp = 20 or power = \"15 kW\" "
+                     f"(found {found})", node=f.node, field="motor", file=f.file)
+        return None
+    key = ratings[0]
+    if key == "power":
+        power = f.get("power", _motor_power)
+    else:
+        number = f.get(key, read_number)
+        power = None if number is None else number * (1000.0 if key == "kw" else HP_W)
+        if power is not None and not power > 0:
+            f.report.add(f"must be a positive rating, got {_show(raw[key])}", node=f.node,
+                         field=f"motor.{key}", file=f.file)
+            return None
+    start_multiple = f.get("start_multiple", read_number, 6.0)
+    start_pf = f.get("start_pf", read_fraction, 0.3)
+    if f.bad or power is None:
+        return None
+    return f.build(Motor, power_w=power, start_multiple=start_multiple, start_pf=start_pf)
+
+
+def _motor_power(value: Any, text: bool = False) -> float:
+    spec = _parse_load(_unit_text(value, "15 kW"))
+    if spec.kind != "real" or not spec.value > 0:
+        raise ScenarioError(f"must be a positive real power such as \"15 kW\" or \"20 hp\", "
+                            f"got {_show(value)}")
+    return spec.value
+
+
+# --- from drafts to nodes --------------------------------------------------------------------
+
+
+def _build_nodes(tree: Any, defaults: dict[str, Any], profile: Any,
+                 report: Report) -> tuple[Node, ...]:
+    """Nodes parents first, with inherited settings; profile checks on the way."""
+    if profile is not None and "insulation" not in defaults["_bad"]:
+        message = check_insulation(defaults["insulation"], profile)
+        if message:
+            report.add(message, field="defaults.insulation")
+            defaults["_bad"].add("insulation")
+    settings_cache: dict[tuple[Any, ...], CableSettings] = {}
+    nodes: list[Node] = []
+    for p in tree.order:
+        d: NodeDraft = tree.drafts[p]
+        v = d.values
+        cable_kw = {k: v.get(k, defaults[k]) for k in CABLE_KEYS}
+        key = tuple(cable_kw.values())
+        cable = settings_cache.get(key)
+        if cable is None:
+            cable = CableSettings(
+                materials=cable_kw["materials"], insulation_c=cable_kw["insulation"],
+                terminals_c=cable_kw["terminals"], ambient_c=cable_kw["ambient"],
+                installation=cable_kw["installation"], grouping=cable_kw["grouping"],
+                max_sets=cable_kw["max_sets"])
+            settings_cache[key] = cable
+        if profile is not None:
+            if "insulation" in v:
+                message = check_insulation(v["insulation"], profile)
+                if message:
+                    report.add(message, node=d.id, field="insulation", file=d.file)
+            pin = v.get("conductor")
+            if pin is not None and not {"materials", "max_sets"} & d.bad:
+                message = check_pin(pin, cable.materials, cable.max_sets, profile)
+                if message:
+                    report.add(message, node=d.id, field="conductor", file=d.file)
+        if d.bad or "voltage_v" not in v:
+            continue
+        motor = v.get("motor")
+        try:
+            nodes.append(Node(
+                id=d.id or "", parent=d.parent or "", length_m=v["length"],
+                voltage_v=v["voltage_v"], phases=v["phases_n"], cable=cable,
+                power_factor=v.get("power_factor", defaults["power_factor"]),
+                load=v.get("load"),
+                # Motors are continuous loads (NEC 430.22: 125 % of full-load current).
+                continuous=v.get("continuous", motor is not None),
+                ocpd_a=v.get("ocpd"), demand_factor=v.get("demand_factor", 1.0),
+                pin=v.get("conductor"), transformer=v.get("transformer"), motor=motor,
+                clearing_time_s=v.get("clearing_time", defaults["clearing_time"]),
+                neutral=v.get("neutral"), description=v.get("description", ""),
+            ))
+        except ScenarioError as exc:
+            report.add_error(exc, node=d.id, file=d.file)
+    return tuple(nodes)
+
+
+# --- writing a schedule -----------------------------------------------------------------------
+
+
+def _num(x: float) -> str:
+    """Shortest text that reads back to the same float."""
+    return str(int(x)) if float(x).is_integer() and abs(x) < 2**53 else repr(float(x))
+
+
+_LOAD_UNITS = {"current": "A", "real": "W", "apparent": "VA"}
+
+
+def _schedule_row(n: Node) -> dict[str, str]:
+    c = n.cable
+    row = {
+        "id": n.id, "parent": n.parent, "description": n.description,
+        "length": f"{_num(n.length_m)} m", "voltage": f"{_num(n.voltage_v)} V",
+        "phases": str(n.phases),
+        "load": f"{_num(n.load.value)} {_LOAD_UNITS[n.load.kind]}" if n.load else "",
+        "power_factor": _num(n.power_factor),
+        "continuous": "true" if n.continuous else "false",
+        "ocpd": f"{_num(n.ocpd_a)} A" if n.ocpd_a is not None else "",
+        "demand_factor": "" if n.demand_factor == 1.0 else _num(n.demand_factor),
+        "conductor": str(n.pin) if n.pin else "",
+        "neutral": "" if n.neutral is None else ("true" if n.neutral else "false"),
+        "clearing_time": ("auto" if n.clearing_time_s is None
+                          else f"{_num(n.clearing_time_s)} s"),
+        "materials": ", ".join(c.materials),
+        "insulation": f"{_num(c.insulation_c)} degC",
+        "terminals": "auto" if c.terminals_c is None else f"{_num(c.terminals_c)} degC",
+        "ambient": f"{_num(c.ambient_c)} degC", "installation": c.installation,
+        "grouping": "auto" if c.grouping is None else str(c.grouping),
+        "max_sets": str(c.max_sets),
+    }
+    if (t := n.transformer) is not None:
+        row |= {"transformer.rating": f"{_num(t.rating_va)} VA",
+                "transformer.secondary": f"{_num(t.secondary_v)} V",
+                "transformer.impedance": f"{_num(t.impedance_pct)} %",
+                "transformer.x_r": _num(t.x_r),
+                "transformer.secondary_phases": str(t.secondary_phases),
+                "transformer.core_loss": f"{_num(t.core_loss_pct)} %"}
+    if (m := n.motor) is not None:
+        row |= {"motor.power": f"{_num(m.power_w)} W",
+                "motor.start_multiple": _num(m.start_multiple),
+                "motor.start_pf": _num(m.start_pf)}
+    return row
+
+
+def write_schedule_csv(scenario: Scenario, path: str | os.PathLike[str]) -> None:
+    """Write the scenario's nodes as a CSV schedule (every field spelled out, SI units).
+
+    Read back through a head .toml naming it, it gives nodes equal to ``scenario.nodes``.
+    The file appears whole or not at all (written beside, then renamed).
+    """
+    target = Path(path)
+    tmp = target.with_name(f".{target.name}.tmp")
+    try:
+        with tmp.open("w", newline="", encoding="utf-8") as fh:
+            # Every cell quoted: an id starting with "#" must not read back as a comment.
+            writer = csv.DictWriter(fh, fieldnames=SCHEDULE_COLUMNS, restval="",
+                                    quoting=csv.QUOTE_ALL)
+            writer.writeheader()
+            for node in scenario.nodes:
+                writer.writerow(_schedule_row(node))
+        os.replace(tmp, target)
+    finally:
+        tmp.unlink(missing_ok=True)
