@@ -298,7 +298,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return int(args.run(args))
     except SizerError as exc:
-        print(f"sizer: {exc}", file=sys.stderr)
+        # A located error already starts with its file; others say who is speaking.
+        located = isinstance(exc, ScenarioError) and exc.file
+        print(str(exc) if located else f"sizer: {exc}", file=sys.stderr)
         return exc.exit_code
     except KeyboardInterrupt:
         print("sizer: interrupted", file=sys.stderr)
