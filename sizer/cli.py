@@ -202,6 +202,21 @@ def _cmd_frontier(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_bench(args: argparse.Namespace) -> int:
+    from sizer.bench import run_bench, table_text, write_json
+
+    sizes = [int(x) for x in args.sizes.split(",")] if args.sizes else [100, 1000, 5000, 20000]
+    if any(n < 10 for n in sizes):
+        raise ScenarioError("sizes must be at least 10 segments", field="--sizes")
+    with _progress(args) as say:
+        doc = run_bench(sizes, repeats=args.repeats, milp_limit_s=args.milp_time_limit,
+                        progress=say)
+    print(table_text(doc))
+    if args.json:
+        write_json(doc, args.json)
+    return 0
+
+
 @contextmanager
 def _progress(args: argparse.Namespace) -> Iterator[Callable[[str], None]]:
     """Progress lines on stderr for long work (quiet with --quiet)."""
@@ -264,6 +279,15 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", help="write the frontier here")
     solver_options(p)
     p.set_defaults(run=_cmd_frontier)
+
+    p = sub.add_parser("bench", help="time every stage on synthetic trees of growing size")
+    p.add_argument("--sizes", help="comma-separated segment counts (default 100,1000,5000,20000)")
+    p.add_argument("--repeats", type=int, default=3, help="runs per stage; the median is kept")
+    p.add_argument("--milp-time-limit", type=float, default=60.0,
+                   help="seconds the straightforward MILP may take per size")
+    p.add_argument("--json", help="write the measurements here")
+    p.add_argument("--quiet", action="store_true", help="no progress display")
+    p.set_defaults(run=_cmd_bench)
 
     p = sub.add_parser("reach", help="how far one conductor can run within a drop limit")
     p.add_argument("--conductor", required=True, help='e.g. "4 AWG Cu" or "2x 500 kcmil Al"')

@@ -15,8 +15,8 @@ _STATUS_WORDS = {
 }
 
 
-def summary(design: Design, title: str, *, max_rows: int = 40) -> str:
-    """A one-screen text summary; long schedules are cut to ``max_rows`` rows."""
+def summary(design: Design, title: str, *, max_rows: int = 40, max_findings: int = 8) -> str:
+    """A one-screen text summary; long schedules and finding lists are cut short."""
     cur = design.currency
     lines = [f"{title}", f"status: {_STATUS_WORDS.get(design.status, design.status)}"
              f"   objective: {design.objective}   rules: {design.rules}"
@@ -44,8 +44,10 @@ def summary(design: Design, title: str, *, max_rows: int = 40) -> str:
         lines.append(f"worst path drop: {design.worst_path_drop_pct():.2f} %")
     for d in design.diagnosis:
         lines.append(f"  - {d}")
-    for v in design.violations:
+    for v in design.violations[:max_findings]:
         lines.append(f"  ! {v.segment}: {v.rule}: {v.message}")
+    if len(design.violations) > max_findings:
+        lines.append(f"  ! ... {len(design.violations) - max_findings} more findings in the files")
     for n in design.notes:
         lines.append(f"note: {n}")
     lines.append(CAUTION)

@@ -1,0 +1,49 @@
+"""Optimisation engines: pick one candidate row per segment at least cost.
+
+Pure optimisation that knows nothing of amperes: a :class:`Problem` holds costs and
+voltage drops in percent, :func:`solve` returns a :class:`Solution`. Two engines solve
+the same statement: ``tree``, an exact bottom-up dynamic program for pure tree problems,
+and ``milp``, a PuLP model (CBC or HiGHS) that also takes side constraints.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+from sizer.engines.milp import SOLVERS, solve_milp, solver_available
+from sizer.engines.problem import Problem, Solution, SolveStatus
+from sizer.engines.tree import solve_tree
+from sizer.errors import ScenarioError
+
+__all__ = ["ENGINES", "SOLVERS", "Problem", "Solution", "SolveStatus", "solve",
+           "solver_available"]
+
+ENGINES = ("auto", "tree", "milp")
+
+
+def solve(problem: Problem, engine: str = "auto", solver: str = "cbc",
+          time_limit_s: float | None = None) -> Solution:
+    """Solve ``problem`` with the named engine.
+
+    ``auto`` runs the tree engine when the problem has no side constraints, else the
+    MILP; when the tree engine's front bound is hit it falls back to the MILP and says
+    so in the message. ``solver`` ("cbc" | "highs") and ``time_limit_s`` (wall clock,
+    seconds) apply to the MILP; the tree engine has no time limit.
+    """
+    if engine not in ENGINES:
+        raise ScenarioError(f"unknown engine {engine!r}; choose one of {', '.join(ENGINES)}",
+                            field="engine")
+    if solver not in SOLVERS:
+        raise ScenarioError(f"unknown solver {solver!r}; choose one of {', '.join(SOLVERS)}",
+                            field="solver")
+    if engine == "milp" or (engine == "auto" and problem.has_side_constraints):
+        return solve_milp(problem, solver=solver, time_limit_s=time_limit_s)
+    first = solve_tree(problem)
+    if engine == "tree" or first.status is not SolveStatus.ERROR:
+        return first
+    fallback = solve_milp(problem, solver=solver, time_limit_s=time_limit_s)
+    return dataclasses.replace(
+        fallback,
+        message=f"{first.message}; fell back to the MILP. {fallback.message}",
+        seconds=first.seconds + fallback.seconds,
+    )

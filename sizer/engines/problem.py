@@ -1,0 +1,262 @@
+"""The optimisation problem both engines solve, and the answer they return.
+
+Pure data: costs and voltage drops in percent, no amperes. A *segment* is one run of
+the tree; its *candidates* are rows ``offsets[s]:offsets[s + 1]`` of the per-candidate
+arrays. Exactly one candidate is chosen per segment, minimising the summed cost, such
+that for every segment ``s`` with a finite ``limit_pct[s]``
+
+    Σ_{t on the path source → s, s included} (drop_pct[chosen t] + fixed_drop_pct[t])
+        ≤ limit_pct[s].
+
+Segments are ordered parents first (``parent[s] < s``; ``-1`` = fed from the source).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from enum import StrEnum
+
+import numpy as np
+
+from sizer.errors import ScenarioError
+
+__all__ = ["Problem", "Solution", "SolveStatus"]
+
+
+class SolveStatus(StrEnum):
+    """Outcome of a solve, as written in results."""
+
+    OPTIMAL = "optimal"
+    INFEASIBLE = "infeasible"
+    TIME_LIMIT = "time_limit"
+    ERROR = "error"
+
+
+def _frozen(array: np.ndarray) -> np.ndarray:
+    """Return a read-only copy, so a frozen Problem cannot change underneath an engine."""
+    out = np.array(array, copy=True)
+    out.setflags(write=False)
+    return out
+
+
+def _as_float(name: str, value: object, size: int, *, finite: bool = True) -> np.ndarray:
+    """Read a float array of length ``size`` (a scalar is broadcast)."""
+    try:
+        arr = np.asarray(value, dtype=np.float64)
+    except (TypeError, ValueError) as exc:
+        raise ScenarioError(f"must be numbers ({exc})", field=name) from exc
+    if arr.ndim == 0:
+        arr = np.full(size, float(arr))
+    if arr.shape != (size,):
+        raise ScenarioError(f"must have shape ({size},), got {arr.shape}", field=name)
+    if finite and not np.all(np.isfinite(arr)):
+        bad = int(np.flatnonzero(~np.isfinite(arr))[0])
+        raise ScenarioError(f"must be finite; entry {bad} is {arr[bad]}", field=name)
+    if np.any(np.isnan(arr)):
+        bad = int(np.flatnonzero(np.isnan(arr))[0])
+        raise ScenarioError(f"entry {bad} is NaN", field=name)
+    return _frozen(arr)
+
+
+def _as_int(name: str, value: object, size: int | None = None) -> np.ndarray:
+    """Read a 1-D int64 array (of length ``size`` when given)."""
+    arr = np.asarray(value)
+    if arr.ndim != 1 or not (arr.size == 0 or np.issubdtype(arr.dtype, np.integer)):
+        raise ScenarioError(f"must be a 1-D integer array, got {arr.dtype} {arr.shape}",
+                            field=name)
+    if size is not None and arr.shape != (size,):
+        raise ScenarioError(f"must have shape ({size},), got {arr.shape}", field=name)
+    return _frozen(arr.astype(np.int64))
+
+
+@dataclass(frozen=True)
+class Problem:
+    """One candidate per segment, least cost, path voltage-drop limits.
+
+    ``fixed_drop_pct`` (a transformer's regulation at the segment's far end) and
+    ``limit_pct`` (max cumulative drop source → far end, ``np.inf`` = none) may be given
+    as scalars and are broadcast. Arrays are copied and made read-only.
+
+    Side constraints (the MILP engine only; the tree engine refuses them):
+    ``capex ≤ capex_cap`` and ``loss_pv ≤ loss_pv_cap`` summed over chosen rows;
+    ``same_choice_groups``: each group's segments choose rows with equal
+    ``choice_key``; ``drop2_pct``/``limit2_pct``: a second path-drop constraint of the
+    same form (no fixed term: fold a constant into every row of that segment).
+    """
+
+    parent: np.ndarray
+    offsets: np.ndarray
+    cost: np.ndarray
+    drop_pct: np.ndarray
+    fixed_drop_pct: np.ndarray = 0.0  # type: ignore[assignment]
+    limit_pct: np.ndarray = np.inf  # type: ignore[assignment]
+    capex: np.ndarray | None = None
+    loss_pv: np.ndarray | None = None
+    capex_cap: float | None = None
+    loss_pv_cap: float | None = None
+    same_choice_groups: tuple[np.ndarray, ...] = ()
+    choice_key: np.ndarray | None = None
+    drop2_pct: np.ndarray | None = None
+    limit2_pct: np.ndarray | None = None
+
+    def __post_init__(self) -> None:
+        put = object.__setattr__
+        parent = _as_int("parent", self.parent)
+        n = parent.size
+        if n == 0:
+            raise ScenarioError("the problem has no segments", field="parent")
+        idx = np.arange(n)
+        bad = np.flatnonzero((parent >= idx) | (parent < -1))
+        if bad.size:
+            s = int(bad[0])
+            raise ScenarioError(
+                f"segment {s} has parent {int(parent[s])}; segments must be ordered "
+                "parents first (-1 <= parent[s] < s)", field="parent")
+        put(self, "parent", parent)
+
+        offsets = _as_int("offsets", self.offsets, n + 1)
+        counts = np.diff(offsets)
+        if offsets[0] != 0 or np.any(counts < 1):
+            s = int(np.flatnonzero(counts < 1)[0]) if np.any(counts < 1) else 0
+            raise ScenarioError(
+                f"offsets must start at 0 and give every segment at least one candidate "
+                f"(segment {s} has none)", field="offsets")
+        put(self, "offsets", offsets)
+        m = int(offsets[-1])
+
+        put(self, "cost", _as_float("cost", self.cost, m))
+        put(self, "drop_pct", _as_float("drop_pct", self.drop_pct, m))
+        put(self, "fixed_drop_pct", _as_float("fixed_drop_pct", self.fixed_drop_pct, n))
+        limit = _as_float("limit_pct", self.limit_pct, n, finite=False)
+        if np.any(limit == -np.inf):
+            raise ScenarioError("must be a number or +inf, not -inf", field="limit_pct")
+        put(self, "limit_pct", limit)
+
+        for name, cap_name in (("capex", "capex_cap"), ("loss_pv", "loss_pv_cap")):
+            arr, cap = getattr(self, name), getattr(self, cap_name)
+            if arr is not None:
+                put(self, name, _as_float(name, arr, m))
+            if cap is not None:
+                if arr is None:
+                    raise ScenarioError(f"{cap_name} needs {name} per candidate",
+                                        field=cap_name)
+                if not np.isfinite(cap):
+                    raise ScenarioError("must be a finite number", field=cap_name)
+                put(self, cap_name, float(cap))
+
+        groups = tuple(_as_int("same_choice_groups", g) for g in self.same_choice_groups)
+        for g in groups:
+            if g.size and (g.min() < 0 or g.max() >= n):
+                raise ScenarioError(f"segment index out of range 0..{n - 1}",
+                                    field="same_choice_groups")
+            if np.unique(g).size != g.size:
+                raise ScenarioError("a group names a segment twice", field="same_choice_groups")
+        put(self, "same_choice_groups", groups)
+        if self.choice_key is not None:
+            put(self, "choice_key", _as_int("choice_key", self.choice_key, m))
+        elif any(g.size > 1 for g in groups):
+            raise ScenarioError("same_choice_groups needs choice_key per candidate",
+                                field="choice_key")
+
+        if (self.drop2_pct is None) != (self.limit2_pct is None):
+            raise ScenarioError("drop2_pct and limit2_pct go together", field="drop2_pct")
+        if self.drop2_pct is not None:
+            put(self, "drop2_pct", _as_float("drop2_pct", self.drop2_pct, m))
+            limit2 = _as_float("limit2_pct", self.limit2_pct, n, finite=False)
+            if np.any(limit2 == -np.inf):
+                raise ScenarioError("must be a number or +inf, not -inf", field="limit2_pct")
+            put(self, "limit2_pct", limit2)
+
+    @property
+    def n_segments(self) -> int:
+        """Number of segments."""
+        return int(self.parent.size)
+
+    @property
+    def n_candidates(self) -> int:
+        """Number of candidate rows over all segments."""
+        return int(self.offsets[-1])
+
+    @property
+    def segment_of_row(self) -> np.ndarray:
+        """Segment index of every candidate row."""
+        return np.repeat(np.arange(self.n_segments), np.diff(self.offsets))
+
+    @property
+    def has_side_constraints(self) -> bool:
+        """True when anything beyond the path-drop limits constrains the choice."""
+        return (
+            self.capex_cap is not None
+            or self.loss_pv_cap is not None
+            or any(g.size > 1 for g in self.same_choice_groups)
+            or (self.drop2_pct is not None and bool(np.any(np.isfinite(self.limit2_pct))))
+        )
+
+    def path_sum(self, per_row: np.ndarray, choice: np.ndarray,
+                 per_segment: np.ndarray | None = None) -> np.ndarray:
+        """Sum of ``per_row[choice[t]] (+ per_segment[t])`` over the path source → s, per s."""
+        own = np.asarray(per_row, dtype=np.float64)[choice]
+        if per_segment is not None:
+            own = own + per_segment
+        total = own.tolist()
+        for s, p in enumerate(self.parent.tolist()):  # parents first: one pass suffices
+            if p >= 0:
+                total[s] += total[p]
+        return np.asarray(total)
+
+    def path_drop_pct(self, choice: np.ndarray) -> np.ndarray:
+        """Cumulative drop (%) at every segment's far end for a choice of rows."""
+        return self.path_sum(self.drop_pct, choice, self.fixed_drop_pct)
+
+    def violations(self, choice: np.ndarray, tol_pct: float = 1e-9) -> list[str]:
+        """Describe every constraint a choice of rows breaks (empty when feasible)."""
+        choice = np.asarray(choice, dtype=np.int64)
+        out: list[str] = []
+        seg = np.arange(self.n_segments)
+        if choice.shape != (self.n_segments,) or np.any(
+            (choice < self.offsets[:-1]) | (choice >= self.offsets[1:])
+        ):
+            return ["choice does not pick one row of each segment"]
+        drop = self.path_drop_pct(choice)
+        for s in seg[drop > self.limit_pct + tol_pct]:
+            out.append(f"segment {s}: path drop {drop[s]:.6g} % > {self.limit_pct[s]:.6g} %")
+        if self.drop2_pct is not None and self.limit2_pct is not None:
+            drop2 = self.path_sum(self.drop2_pct, choice)
+            for s in seg[drop2 > self.limit2_pct + tol_pct]:
+                out.append(f"segment {s}: second path drop {drop2[s]:.6g} % > "
+                           f"{self.limit2_pct[s]:.6g} %")
+        for name, cap in (("capex", self.capex_cap), ("loss_pv", self.loss_pv_cap)):
+            if cap is not None:
+                total = float(np.sum(getattr(self, name)[choice]))
+                if total > cap + tol_pct * max(1.0, abs(cap)):
+                    out.append(f"{name} {total:.6g} > cap {cap:.6g}")
+        if self.choice_key is not None:
+            for g in self.same_choice_groups:
+                keys = np.unique(self.choice_key[choice[g]])
+                if keys.size > 1:
+                    out.append(f"group {g.tolist()} chooses different keys {keys.tolist()}")
+        return out
+
+
+@dataclass(frozen=True)
+class Solution:
+    """What an engine found.
+
+    ``choice`` holds the absolute candidate row per segment (``-1`` everywhere when no
+    solution is known); ``objective`` is Σ cost of the chosen rows (NaN without one);
+    ``gap`` the proven relative optimality gap when known; ``seconds`` wall time.
+    """
+
+    status: SolveStatus
+    choice: np.ndarray
+    objective: float
+    proven_optimal: bool
+    gap: float | None
+    engine: str
+    message: str
+    seconds: float
+
+    @property
+    def has_solution(self) -> bool:
+        """True when ``choice`` holds a usable design."""
+        return bool(self.choice.size) and bool(np.all(self.choice >= 0))

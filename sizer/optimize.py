@@ -1,0 +1,380 @@
+"""The sizing problem for a whole tree: objectives, engines, frontier and diagnosis.
+
+This module turns a scenario into the candidate table and the optimisation problem of
+``sizer.engines`` (costs and drops only), hands it to an engine, and turns the chosen
+rows back into a ``Design``. Solver names stay in ``sizer.engines``.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+from enum import StrEnum
+from pathlib import Path
+
+import numpy as np
+
+from sizer.candidates import (
+    MATERIALS,
+    LocalDiagnosis,
+    build_candidates,
+    conductor_label,
+    transformer_drops_pct,
+)
+from sizer.catalogue import Catalogue, load_catalogue
+from sizer.catalogue.prices import PriceList, load_price_list, resolve_price_list
+from sizer.economics import EconomicParams, demand_charge_per_w_year
+from sizer.engines import Problem, Solution, SolveStatus, solve
+from sizer.loads import design_segments
+from sizer.model import (
+    CandidateTable,
+    Design,
+    Scenario,
+    Segment,
+    SegmentResult,
+    Totals,
+    Violation,
+)
+from sizer.rules import load_profile
+from sizer.rules.profile import RuleProfile
+
+_DEFAULT_PRICE_LISTS = {"awg": "demo-us.csv", "metric": "demo-metric.csv"}
+
+
+class Objective(StrEnum):
+    """What the optimiser minimises."""
+
+    CAPEX = "capex"
+    LIFECYCLE = "lifecycle"
+
+
+@dataclass(frozen=True)
+class Prepared:
+    """Everything up to the candidate table; solve, check, frontier and sweep reuse it."""
+
+    scenario: Scenario
+    profile: RuleProfile
+    catalogue: Catalogue
+    prices: PriceList
+    economics: EconomicParams
+    segments: tuple[Segment, ...]
+    table: CandidateTable
+    local: LocalDiagnosis
+    fixed_drop_pct: np.ndarray
+    parent: np.ndarray
+    leaf_limit_pct: np.ndarray
+
+
+def economic_params(scenario: Scenario) -> EconomicParams:
+    """The scenario's economics as the IEC 60287-3-2 method needs them."""
+    e = scenario.economics
+    return EconomicParams(
+        energy_price_per_wh=e.energy_price_per_kwh / 1e3,
+        demand_per_w_year=demand_charge_per_w_year(e.demand_charge_per_kw_month),
+        escalation=e.escalation,
+        discount=e.discount_rate,
+        load_growth=e.load_growth,
+        years=e.lifetime_years,
+        load_factor=e.load_factor,
+        loss_load_factor=e.loss_load_factor,
+        hours_per_year=e.hours_per_year,
+    )
+
+
+def price_list_for(scenario: Scenario, catalogue: Catalogue) -> PriceList:
+    """The scenario's price catalogue, or the bundled demo one for its sizes."""
+    scenario_dir = Path(scenario.file).parent if scenario.file else Path.cwd()
+    path = scenario.prices.catalogue
+    if path is None:
+        path = resolve_price_list(f"costdata/{_DEFAULT_PRICE_LISTS[catalogue.name]}",
+                                  scenario_dir)
+    elif not Path(path).is_absolute():
+        path = resolve_price_list(str(path), scenario_dir)
+    return load_price_list(
+        path, catalogue, scenario.currency,
+        copper_per_kg=scenario.prices.copper_per_kg,
+        aluminium_per_kg=scenario.prices.aluminium_per_kg,
+    )
+
+
+def prepare(scenario: Scenario, *, keep_pins: bool = False,
+            prices: PriceList | None = None) -> Prepared:
+    """Design currents and the candidate table of a scenario."""
+    profile = load_profile(scenario.rules)
+    catalogue = load_catalogue(profile.catalogue)
+    segments = design_segments(scenario, profile)
+    price_list = prices if prices is not None else price_list_for(scenario, catalogue)
+    econ = economic_params(scenario)
+    table, local = build_candidates(
+        segments, profile, catalogue, price_list, econ.loss_pv_per_w, keep_pins=keep_pins
+    )
+    parent = np.array([s.parent_index for s in segments], dtype=np.int64)
+    leaf = np.array([s.is_leaf for s in segments], dtype=bool)
+    limit = np.where(leaf, profile.drop_total_pct, np.inf)
+    return Prepared(scenario, profile, catalogue, price_list, econ, segments, table, local,
+                    transformer_drops_pct(segments), parent, limit)
+
+
+def objective_costs(table: CandidateTable, objective: Objective,
+                    loss_weight: float | None = None) -> np.ndarray:
+    """Per-candidate objective coefficient: capex, or capex + weight × loss PV."""
+    if loss_weight is not None:
+        return table.capex + loss_weight * table.loss_pv
+    if objective is Objective.CAPEX:
+        return table.capex
+    return table.capex + table.loss_pv
+
+
+def build_problem(prep: Prepared, objective: Objective, *, loss_weight: float | None = None,
+                  limit_pct: np.ndarray | None = None, **side: object) -> Problem:
+    """The engine-facing statement: costs and drops per candidate, limits per segment."""
+    t = prep.table
+    return Problem(
+        parent=prep.parent,
+        offsets=t.offsets,
+        cost=objective_costs(t, objective, loss_weight),
+        drop_pct=t.vd_pct,
+        fixed_drop_pct=prep.fixed_drop_pct,
+        limit_pct=prep.leaf_limit_pct if limit_pct is None else limit_pct,
+        capex=t.capex,
+        loss_pv=t.loss_pv,
+        **side,  # type: ignore[arg-type]
+    )
+
+
+def path_drops_pct(parent: np.ndarray, own_pct: np.ndarray, fixed_pct: np.ndarray) -> np.ndarray:
+    """Cumulative drop from the source to each segment's far end (parents come first)."""
+    out = own_pct + fixed_pct
+    for s in range(out.shape[0]):
+        p = parent[s]
+        if p >= 0:
+            out[s] += out[p]
+    return out
+
+
+def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: str, objective: str,
+                       solution: Solution | None = None,
+                       diagnosis: tuple[str, ...] = ()) -> Design:
+    """Re-evaluate the chosen rows from the table and assemble the Design."""
+    t = prep.table
+    cat = prep.catalogue
+    vd = t.vd_pct[choice]
+    path = path_drops_pct(prep.parent, vd, prep.fixed_drop_pct)
+    results = []
+    for s, seg in enumerate(prep.segments):
+        r = int(choice[s])
+        parent_id = (prep.scenario.nodes[seg.parent_index].id if seg.parent_index >= 0
+                     else prep.scenario.source.id)
+        results.append(SegmentResult(
+            id=seg.id, parent=parent_id, kind=seg.kind,
+            material=MATERIALS[int(t.material[r])],
+            size=cat.sizes[int(t.size_index[r])],
+            sets=int(t.sets[r]),
+            egc=cat.sizes[int(t.egc_size_index[r])],
+            length_m=seg.length_m, current_a=seg.current_a,
+            ampacity_a=float(t.ampacity_a[r]), vd_pct=float(vd[s]),
+            path_vd_pct=float(path[s]), r_ohm=float(t.r_ohm[r]), x_ohm=float(t.x_ohm[r]),
+            ocpd_a=seg.ocpd_a, capex=float(t.capex[r]), loss_kw=float(t.loss_w[r]) / 1e3,
+            loss_pv=float(t.loss_pv[r]), temp_c=float(t.temp_c[r]),
+            voltage_v=seg.voltage_v, phases=seg.phases, pinned=seg.node.pin is not None,
+        ))
+    loss_w = float(t.loss_w[choice].sum())
+    totals = Totals(
+        capex=float(t.capex[choice].sum()),
+        loss_pv=float(t.loss_pv[choice].sum()),
+        loss_kwh_per_year=float(prep.economics.annual_loss_kwh(loss_w)),
+    )
+    return Design(
+        status=status, objective=objective, rules=prep.profile.name,
+        currency=prep.scenario.currency, totals=totals, segments=tuple(results),
+        engine=solution.engine if solution else "",
+        proven_optimal=solution.proven_optimal if solution else False,
+        gap=solution.gap if solution else None,
+        diagnosis=diagnosis,
+        notes=(solution.message,) if solution and solution.message else (),
+        choice=tuple(int(r) for r in choice),
+    )
+
+
+def empty_design(prep: Prepared, status: str, objective: str,
+                 diagnosis: tuple[str, ...]) -> Design:
+    """A design document with no segments (infeasible or error)."""
+    return Design(status=status, objective=objective, rules=prep.profile.name,
+                  currency=prep.scenario.currency, totals=Totals(0.0, 0.0, 0.0),
+                  segments=(), diagnosis=diagnosis)
+
+
+def optimise(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
+             engine: str = "auto", solver: str = "cbc", time_limit_s: float | None = None,
+             limit_pct: np.ndarray | None = None, loss_weight: float | None = None,
+             **side: object) -> Design:
+    """Solve for the cheapest compliant design; infeasible problems come back diagnosed."""
+    empty = np.diff(prep.table.offsets) == 0
+    if empty.any():
+        return empty_design(prep, SolveStatus.INFEASIBLE.value, objective.value,
+                            tuple(diagnose(prep)))
+    problem = build_problem(prep, objective, loss_weight=loss_weight, limit_pct=limit_pct,
+                            **side)
+    solution = solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
+    if solution.status is SolveStatus.INFEASIBLE:
+        return empty_design(prep, solution.status.value, objective.value,
+                            tuple(diagnose(prep, limit_pct)))
+    if solution.status is SolveStatus.ERROR or solution.choice is None:
+        return empty_design(prep, SolveStatus.ERROR.value, objective.value,
+                            (solution.message,))
+    return design_from_choice(prep, solution.choice, status=solution.status.value,
+                              objective=objective.value, solution=solution)
+
+
+# --- diagnosis ------------------------------------------------------------------------
+
+
+def diagnose(prep: Prepared, limit_pct: np.ndarray | None = None) -> list[str]:
+    """Name each segment or path that no candidate satisfies, its best, and the fix."""
+    lines: list[str] = []
+    t = prep.table
+    local = prep.local
+    limits = prep.leaf_limit_pct if limit_pct is None else limit_pct
+    for s, seg in enumerate(prep.segments):
+        if t.offsets[s + 1] > t.offsets[s]:
+            continue
+        cable = seg.node.cable
+        if local.pinned_fails[s]:
+            lines.append(f"segment '{seg.id}': the pinned conductor {seg.node.pin} breaks the "
+                         f"{local.pinned_fails[s]} rule; unpin it or pin a larger one")
+        elif not math.isfinite(local.best_drop_pct[s]):
+            lines.append(
+                f"segment '{seg.id}': no allowed conductor carries {seg.required_ampacity_a:.0f} A "
+                f"and is protected by a {seg.ocpd_a:.0f} A device (largest available "
+                f"{local.best_ampacity_a[s]:.0f} A with up to {cable.max_sets} sets); fix: allow "
+                f"more parallel sets (max_sets), another material, or a larger catalogue size")
+        else:
+            own = (prep.profile.drop_branch_pct if seg.kind == "branch"
+                   else prep.profile.drop_feeder_pct)
+            best = local.best_drop_pct[s]
+            lines.append(
+                f"segment '{seg.id}': its own drop is at best {best:.2f} % with "
+                f"{local.best_label[s]} (limit {own:g} %); fix: {_drop_fixes(seg, best, own)}")
+    if lines:
+        return lines
+    # Every segment has candidates: the paths are what fails. With the lowest-drop row on
+    # every segment each path is at its best, so a path over its limit then is hopeless.
+    best = np.full(len(prep.segments), np.inf)
+    np.minimum.at(best, t.segment, t.vd_pct)
+    path = path_drops_pct(prep.parent, best, prep.fixed_drop_pct)
+    for s in np.flatnonzero(path > limits + 1e-9).tolist():
+        chain = _path(prep, s)
+        worst = max(chain, key=lambda k: best[k])
+        seg = prep.segments[worst]
+        names = " → ".join([prep.scenario.source.id] + [prep.segments[k].id for k in chain])
+        tx = sum(prep.fixed_drop_pct[k] for k in chain)
+        tx_text = f" (of which transformers {tx:.2f} %)" if tx > 0 else ""
+        fixes = _drop_fixes(seg, best[worst], best[worst] - (path[s] - limits[s]))
+        lines.append(
+            f"path {names}: best reachable drop {path[s]:.2f} %{tx_text} with the "
+            f"lowest-drop conductors, limit {limits[s]:g} %; largest share on '{seg.id}' "
+            f"({best[worst]:.2f} %); fix: {fixes}")
+    return lines or ["no design satisfies the combined constraints"]
+
+
+def _drop_fixes(seg: Segment, best_pct: float, target_pct: float) -> str:
+    cable = seg.node.cable
+    fixes = []
+    if target_pct <= 0:
+        return "shorten the upstream runs or raise the supply voltage"
+    ratio = best_pct / target_pct
+    fixes.append(f"more parallel sets (max_sets {cable.max_sets} → "
+                 f"{math.ceil(cable.max_sets * ratio)})")
+    fixes.append(f"a run of at most {seg.length_m / ratio:.0f} m "
+                 f"(now {seg.length_m:.0f} m)")
+    fixes.append("a higher circuit voltage")
+    return ", or ".join(fixes)
+
+
+def _path(prep: Prepared, s: int) -> list[int]:
+    chain = []
+    while s >= 0:
+        chain.append(s)
+        s = int(prep.parent[s])
+    return chain[::-1]
+
+
+# --- checking a pinned design ---------------------------------------------------------
+
+
+def check(prep: Prepared, *, engine: str = "auto", solver: str = "cbc") -> Design:
+    """Evaluate the design as pinned (unpinned segments filled at least cost) against the rules.
+
+    ``prep`` must come from ``prepare(..., keep_pins=True)`` so that pinned rows breaking
+    a rule are still in the table.
+    """
+    empty = np.diff(prep.table.offsets) == 0
+    if empty.any():
+        return empty_design(prep, SolveStatus.INFEASIBLE.value, "check", tuple(diagnose(prep)))
+    problem = build_problem(prep, Objective.CAPEX)
+    solution = solve(problem, engine=engine, solver=solver)
+    if solution.status is not SolveStatus.OPTIMAL:
+        # The pins break a path limit: fill the rest without path limits and report.
+        relaxed = replace(problem, limit_pct=np.full_like(problem.limit_pct, np.inf))
+        solution = solve(relaxed, engine=engine, solver=solver)
+    if solution.choice is None:
+        return empty_design(prep, SolveStatus.ERROR.value, "check", (solution.message,))
+    design = design_from_choice(prep, solution.choice, status="compliant", objective="check",
+                                solution=solution)
+    found = violations(prep, solution.choice, design)
+    return replace(design, status="violations" if found else "compliant",
+                   violations=tuple(found))
+
+
+def violations(prep: Prepared, choice: np.ndarray, design: Design) -> list[Violation]:
+    """Every rule the chosen rows break, re-checked from the segment data."""
+    out: list[Violation] = []
+    t = prep.table
+    p = prep.profile
+    for s, (seg, res) in enumerate(zip(prep.segments, design.segments, strict=True)):
+        r = int(choice[s])
+        if t.ampacity_a[r] + 1e-9 < seg.required_ampacity_a:
+            out.append(Violation(seg.id, "ampacity", float(t.ampacity_a[r]),
+                                 seg.required_ampacity_a,
+                                 f"{res.sets}x {res.size} {res.material} carries "
+                                 f"{t.ampacity_a[r]:.0f} A, needs {seg.required_ampacity_a:.0f} A"))
+        if prep.local.pinned_fails[s] and "protection" in prep.local.pinned_fails[s] and not (
+                t.ampacity_a[r] + 1e-9 < seg.required_ampacity_a):
+            out.append(Violation(seg.id, "protection", float(t.ampacity_a[r]), seg.ocpd_a,
+                                 f"a {seg.ocpd_a:.0f} A device does not protect "
+                                 f"{res.sets}x {res.size} {res.material}"))
+        own = p.drop_branch_pct if seg.kind == "branch" else p.drop_feeder_pct
+        if res.vd_pct > own + 1e-9:
+            out.append(Violation(seg.id, f"{seg.kind} drop", res.vd_pct, own,
+                                 f"own drop {res.vd_pct:.2f} % over {own:g} %"))
+        total = float(prep.leaf_limit_pct[s])
+        if math.isfinite(total) and res.path_vd_pct > total + 1e-9:
+            out.append(Violation(seg.id, "total drop", res.path_vd_pct,
+                                 float(prep.leaf_limit_pct[s]),
+                                 f"drop from the source {res.path_vd_pct:.2f} % over "
+                                 f"{prep.leaf_limit_pct[s]:g} %"))
+    return out
+
+
+def label_of_row(prep: Prepared, row: int) -> str:
+    """A candidate row as the trade writes it."""
+    t = prep.table
+    return conductor_label(prep.catalogue, int(t.material[row]), int(t.size_index[row]),
+                           int(t.sets[row]))
+
+
+def rows_of(prep: Prepared, s: int) -> range:
+    """Candidate rows of segment ``s``."""
+    return range(int(prep.table.offsets[s]), int(prep.table.offsets[s + 1]))
+
+
+def with_scenario(prep: Prepared, scenario: Scenario) -> Prepared:
+    """Re-prepare for a changed scenario (prices or economics)."""
+    return prepare(scenario)
+
+
+def load_and_prepare(path: str | Path, *, keep_pins: bool = False) -> Prepared:
+    """Read a scenario file and prepare it."""
+    from sizer.scenario import load_scenario
+
+    return prepare(load_scenario(path), keep_pins=keep_pins)

@@ -1,0 +1,319 @@
+"""A scenario end to end: prepare, optimise, verify, and the frontier of cost against losses.
+
+The command line and the reports call these; each step lives in its own module
+(candidates, optimize, verify) and this one only strings them together.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from collections.abc import Callable
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from sizer.conductors import adiabatic_withstand_a
+from sizer.engines import SolveStatus, solve
+from sizer.model import Design, Scenario, Violation
+from sizer.optimize import Objective, Prepared, build_problem, check, optimise, prepare
+from sizer.verify import Network, fault_currents_a, load_flow, motor_start_dip_pct
+
+Progress = Callable[[str], None]
+
+
+def _quiet(_: str) -> None:
+    pass
+
+
+@dataclass(frozen=True)
+class FrontierPoint:
+    """One design on the upfront-cost against loss-PV frontier."""
+
+    capex: float
+    loss_pv: float
+    method: str          # "weighted sum" (supported point) or "epsilon constraint"
+    parameter: float     # the loss weight, or the loss-PV cap
+    proven_optimal: bool
+    choice: tuple[int, ...]
+
+    @property
+    def lifecycle(self) -> float:
+        """Upfront cost plus loss PV."""
+        return self.capex + self.loss_pv
+
+
+def frontier(prep: Prepared, points: int = 12, *, engine: str = "auto", solver: str = "cbc",
+             time_limit_s: float | None = 60.0, fill: bool = True,
+             progress: Progress = _quiet) -> list[FrontierPoint]:
+    """Capex against loss PV: weighted sums for the supported points, ε-constraint between.
+
+    Weighted sums (tree engine, fast) find the points on the convex hull; where two
+    neighbours leave a gap, an ε-constraint MILP (minimum capex with loss PV capped at
+    the gap's middle) looks for a design inside it, when it can finish in the time limit.
+    """
+    t = prep.table
+    found: dict[tuple[int, ...], FrontierPoint] = {}
+    # Weights from pure capex (0) to losses weighing 50× their present value.
+    weights = [0.0, *list(np.geomspace(0.05, 50.0, max(points - 1, 1)))]
+    for i, w in enumerate(weights):
+        progress(f"frontier: weight {w:.3g} ({i + 1}/{len(weights)})")
+        problem = build_problem(prep, Objective.LIFECYCLE, loss_weight=float(w))
+        sol = solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
+        if sol.choice is None or sol.status is SolveStatus.INFEASIBLE:
+            return []
+        key = tuple(int(r) for r in sol.choice)
+        if key not in found:
+            found[key] = FrontierPoint(float(t.capex[sol.choice].sum()),
+                                       float(t.loss_pv[sol.choice].sum()), "weighted sum",
+                                       float(w), sol.proven_optimal, key)
+    pts = sorted(found.values(), key=lambda p: (p.capex, p.loss_pv))
+    if fill and len(pts) > 1:
+        gaps = sorted(itertools.pairwise(pts),
+                      key=lambda ab: -(ab[0].loss_pv - ab[1].loss_pv))
+        for a, b in gaps[: max(points - len(pts), 0)]:
+            cap = 0.5 * (a.loss_pv + b.loss_pv)
+            progress(f"frontier: loss PV cap {cap:,.0f}")
+            problem = build_problem(prep, Objective.CAPEX, loss_pv_cap=cap)
+            sol = solve(problem, engine="milp", solver=solver, time_limit_s=time_limit_s)
+            if sol.choice is None or sol.status not in (SolveStatus.OPTIMAL,
+                                                         SolveStatus.TIME_LIMIT):
+                continue
+            key = tuple(int(r) for r in sol.choice)
+            if key in found:
+                continue
+            found[key] = FrontierPoint(float(t.capex[sol.choice].sum()),
+                                       float(t.loss_pv[sol.choice].sum()),
+                                       "epsilon constraint", cap, sol.proven_optimal, key)
+        pts = sorted(found.values(), key=lambda p: (p.capex, p.loss_pv))
+    return _non_dominated(pts)
+
+
+def _non_dominated(points: list[FrontierPoint]) -> list[FrontierPoint]:
+    out: list[FrontierPoint] = []
+    best_loss = math.inf
+    for p in sorted(points, key=lambda p: (p.capex, p.loss_pv)):
+        if p.loss_pv < best_loss - 1e-9:
+            out.append(p)
+            best_loss = p.loss_pv
+    return out
+
+
+def solve_scenario(prep: Prepared, objective: Objective, *, engine: str = "auto",
+                   solver: str = "cbc", time_limit_s: float | None = None) -> Design:
+    """The optimum design of a prepared scenario."""
+    return optimise(prep, objective, engine=engine, solver=solver, time_limit_s=time_limit_s)
+
+
+# --- verification ---------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Verification:
+    """What the AC load flow and the fault check say of a design."""
+
+    converged: bool
+    iterations: int
+    loadflow_drop_pct: np.ndarray     # per segment, at its far end (after a transformer)
+    fault_a: np.ndarray               # per segment: bolted fault current at its far end
+    fault_near_a: np.ndarray          # per segment: at its near end (what the cable must withstand)
+    infinite_source: bool
+    findings: tuple[Violation, ...]
+    motor_dips: tuple[tuple[str, float], ...]
+    rounds: int = 0                   # re-solves of the closed loop
+
+
+def network_of(prep: Prepared, choice: np.ndarray) -> Network:
+    """The load-flow network of the chosen rows."""
+    t = prep.table
+    segs = prep.segments
+    n = len(segs)
+    rating = np.zeros(n)
+    z_pct = np.zeros(n, dtype=complex)
+    secondary = np.array([s.voltage_v for s in segs], dtype=float)
+    for i, seg in enumerate(segs):
+        tx = seg.node.transformer
+        if tx is not None:
+            r_pct = tx.impedance_pct / math.hypot(1.0, tx.x_r)
+            rating[i] = tx.rating_va
+            z_pct[i] = complex(r_pct, r_pct * tx.x_r)
+            secondary[i] = tx.secondary_v
+    return Network(
+        parent=prep.parent,
+        z_ohm=t.r_ohm[choice] + 1j * t.x_ohm[choice],
+        circuit_v=np.array([s.voltage_v for s in segs], dtype=float),
+        phases=np.array([s.phases for s in segs], dtype=np.int64),
+        load_va=np.array([s.own_load_va for s in segs], dtype=complex),
+        xfmr_rating_va=rating,
+        xfmr_z_pct=z_pct,
+        xfmr_secondary_v=secondary,
+    )
+
+
+def verify_design(prep: Prepared, choice: np.ndarray) -> Verification:
+    """Load flow, fault levels, short-circuit withstand and motor-start dip of a choice."""
+    net = network_of(prep, choice)
+    lf = load_flow(net)
+    src = prep.scenario.source
+    fault = fault_currents_a(net, src.fault_current_a, src.voltage_v, src.x_r,
+                             source_phases=src.phases)
+    # A fault just past the near end of a cable sees the parent bus's level.
+    source_level = src.fault_current_a if src.fault_current_a is not None else math.inf
+    near = np.array([fault[p] if p >= 0 else source_level for p in prep.parent.tolist()])
+    findings = list(_withstand_findings(prep, choice, near))
+    dips = []
+    limit = prep.profile.motor_start_dip_pct
+    for i, seg in enumerate(prep.segments):
+        motor = seg.node.motor
+        if motor is None:
+            continue
+        running = abs(seg.own_load_va) or motor.power_w / max(seg.power_factor, 1e-6)
+        start_s = motor.start_multiple * running
+        phi = math.acos(motor.start_pf)
+        start_va = complex(start_s * motor.start_pf, start_s * math.sin(phi))
+        dip = motor_start_dip_pct(net, i, start_va, running_va=seg.own_load_va)
+        dips.append((seg.id, dip))
+        if dip > limit + 1e-9:
+            findings.append(Violation(seg.id, "motor-start dip", dip, limit,
+                                      f"starting dips the voltage {dip:.1f} % (limit {limit:g} %)"))
+    return Verification(
+        converged=bool(lf.converged), iterations=int(lf.iterations),
+        loadflow_drop_pct=np.asarray(lf.drop_pct, dtype=float), fault_a=np.asarray(fault),
+        fault_near_a=near, infinite_source=src.fault_current_a is None,
+        findings=tuple(findings), motor_dips=tuple(dips),
+    )
+
+
+def _withstand_findings(prep: Prepared, choice: np.ndarray, near_a: np.ndarray):  # type: ignore[no-untyped-def]
+    t = prep.table
+    p = prep.profile
+    final = dict(p.short_circuit_final_c)
+    for i, seg in enumerate(prep.segments):
+        r = int(choice[i])
+        if not math.isfinite(near_a[i]):
+            continue
+        ins = seg.node.cable.insulation_c
+        final_c = final.get(ins, max(final.values()))
+        time_s = seg.node.clearing_time_s or p.default_clearing_time_s
+        material = "Cu" if t.material[r] == 0 else "Al"
+        area = prep.catalogue.area_mm2[int(t.size_index[r])]
+        # Conservative: the conductor starts the fault at its rated temperature.
+        per_set = float(adiabatic_withstand_a(area, time_s, material, ins, final_c))
+        capacity = per_set * int(t.sets[r])
+        if capacity < near_a[i]:
+            # What the device must hold its let-through to: the adiabatic I²t of the sets.
+            allowed_i2t = capacity**2 * time_s
+            yield Violation(
+                seg.id, "short-circuit withstand", near_a[i] / 1e3, capacity / 1e3,
+                f"{near_a[i] / 1e3:.1f} kA for {time_s:g} s exceeds the conductor's "
+                f"{capacity / 1e3:.1f} kA adiabatic limit ({ins:g} → {final_c:g} degC, "
+                f"IEC 60949); it needs a device letting through at most "
+                f"{allowed_i2t:.3g} A²s, a shorter clearing time, or a larger conductor")
+
+
+def with_verification(prep: Prepared, design: Design, choice: np.ndarray,
+                      ver: Verification) -> Design:
+    """The design with load-flow drops, fault levels and findings filled in."""
+    segments = tuple(
+        replace(s, loadflow_drop_pct=float(ver.loadflow_drop_pct[i]),
+                fault_ka=(float(ver.fault_a[i]) / 1e3 if math.isfinite(ver.fault_a[i])
+                          else None))
+        for i, s in enumerate(design.segments))
+    notes = list(design.notes)
+    if not ver.converged:
+        notes.append(f"the AC load flow did not converge in {ver.iterations} iterations")
+    if ver.infinite_source:
+        notes.append("no source fault level given: fault currents assume an infinite bus")
+    if ver.rounds:
+        notes.append(f"load-flow check tightened the drop budget and re-solved "
+                     f"{ver.rounds} time(s)")
+    return replace(design, segments=segments, violations=design.violations + ver.findings,
+                   notes=tuple(notes))
+
+
+def solve_verified(prep: Prepared, objective: Objective, *, engine: str = "auto",
+                   solver: str = "cbc", time_limit_s: float | None = None,
+                   max_rounds: int = 5) -> tuple[Design, Verification | None]:
+    """Optimise, then close the loop with the AC load flow.
+
+    The optimiser's linear drop estimate slightly under-states the load flow's drop; where
+    a path ends over its limit by load flow, that load's budget is tightened by the
+    difference and the problem solved again, at most ``max_rounds`` times.
+    """
+    limits = prep.leaf_limit_pct.copy()
+    rounds = 0
+    while True:
+        design = optimise(prep, objective, engine=engine, solver=solver,
+                          time_limit_s=time_limit_s, limit_pct=limits)
+        if not design.segments:
+            return design, None
+        choice = _choice_of(prep, design)
+        ver = verify_design(prep, choice)
+        over = ver.loadflow_drop_pct - prep.leaf_limit_pct
+        bad = np.isfinite(over) & (over > 1e-6)
+        if not bad.any() or rounds >= max_rounds or not ver.converged:
+            ver = replace(ver, rounds=rounds)
+            return with_verification(prep, design, choice, ver), ver
+        est = np.array([s.path_vd_pct for s in design.segments])
+        # Tighten by the estimate's shortfall plus a hair, so the next round lands inside.
+        limits[bad] = limits[bad] - (ver.loadflow_drop_pct[bad] - est[bad]) - 1e-4
+        rounds += 1
+
+
+def _choice_of(prep: Prepared, design: Design) -> np.ndarray:
+    """Recover candidate rows from a design built by this module."""
+    return np.asarray(design.choice, dtype=np.int64)
+
+
+# --- options side by side ---------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Option:
+    """One way to build the job, for the side-by-side comparison."""
+
+    key: str              # "code_minimum" | "lifecycle" | "all_copper" | "as_pinned"
+    title: str
+    design: Design
+
+
+def all_copper(scenario: Scenario) -> Scenario:
+    """The same scenario with copper as the only material (pins kept as written)."""
+    nodes = tuple(
+        n if n.pin is not None else replace(n, cable=replace(n.cable, materials=("Cu",)))
+        for n in scenario.nodes)
+    return replace(scenario, nodes=nodes)
+
+
+def compare_options(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",
+                    time_limit_s: float | None = None,
+                    progress: Progress = _quiet) -> list[Option]:
+    """Code-minimum, lifecycle optimum, all-copper and (when pins exist) the pinned design.
+
+    Each is verified by load flow like a normal solve; an option that has no feasible
+    design is still listed, with its status.
+    """
+    out = []
+    progress("option: code minimum (least upfront cost)")
+    out.append(Option("code_minimum", "Code minimum (least upfront cost)",
+                      solve_verified(prep, Objective.CAPEX, engine=engine, solver=solver,
+                                     time_limit_s=time_limit_s)[0]))
+    progress("option: lifecycle optimum")
+    out.append(Option("lifecycle", "Lifecycle optimum (upfront + losses)",
+                      solve_verified(prep, Objective.LIFECYCLE, engine=engine, solver=solver,
+                                     time_limit_s=time_limit_s)[0]))
+    if any("Al" in n.cable.materials for n in prep.scenario.nodes if n.pin is None):
+        progress("option: all copper")
+        cu = prepare(all_copper(prep.scenario), prices=prep.prices)
+        out.append(Option("all_copper", "All copper, lifecycle optimum",
+                          solve_verified(cu, Objective.LIFECYCLE, engine=engine, solver=solver,
+                                         time_limit_s=time_limit_s)[0]))
+    if any(n.pin is not None for n in prep.scenario.nodes):
+        progress("option: the design as pinned")
+        pinned = prepare(prep.scenario, keep_pins=True, prices=prep.prices)
+        design = check(pinned, engine=engine, solver=solver)
+        if design.segments:
+            choice = np.asarray(design.choice, dtype=np.int64)
+            design = with_verification(pinned, design, choice, verify_design(pinned, choice))
+        out.append(Option("as_pinned", "Your pinned design (rest at least cost)", design))
+    return out
