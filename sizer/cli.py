@@ -202,6 +202,20 @@ def _cmd_frontier(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_demo(args: argparse.Namespace) -> int:
+    from sizer.demo import run_demo
+    from sizer.report.terminal import summary
+
+    with _progress(args) as say:
+        result = run_demo(Path(args.folder), force=args.force, progress=say)
+    print(summary(result.design, result.title, max_rows=12))
+    print(f"\nwrote in {result.seconds:.1f} s:")
+    for path in result.files:
+        print(f"  {path}")
+    print(f"open {result.report} in a browser for the full report")
+    return 0
+
+
 def _cmd_bench(args: argparse.Namespace) -> int:
     from sizer.bench import run_bench, table_text, write_json
 
@@ -279,6 +293,13 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", help="write the frontier here")
     solver_options(p)
     p.set_defaults(run=_cmd_frontier)
+
+    p = sub.add_parser("demo", help="solve a bundled demo scenario and write its report")
+    p.add_argument("folder", nargs="?", default="sizer-demo",
+                   help="where to put the scenario and the outputs (default ./sizer-demo)")
+    p.add_argument("--force", action="store_true", help="overwrite files from an earlier demo")
+    p.add_argument("--quiet", action="store_true", help="no progress display")
+    p.set_defaults(run=_cmd_demo)
 
     p = sub.add_parser("bench", help="time every stage on synthetic trees of growing size")
     p.add_argument("--sizes", help="comma-separated segment counts (default 100,1000,5000,20000)")

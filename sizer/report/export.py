@@ -8,11 +8,13 @@ and their floats are rounded, so the same input gives byte-identical files.
 from __future__ import annotations
 
 import csv
+import datetime
 import io
 import json
 import math
 import os
 import tempfile
+import zipfile
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import asdict, is_dataclass
 from pathlib import Path
@@ -114,6 +116,12 @@ def schedule_csv(design: Design) -> str:
     return csv_text(SCHEDULE_COLUMNS, rows)
 
 
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
 def atomic_write(path: str | Path, data: str | bytes, *, protect: Sequence[Path] = ()) -> Path:
     """Write ``data`` to ``path`` through a temporary file in the same folder.
 
@@ -132,6 +140,8 @@ def atomic_write(path: str | Path, data: str | bytes, *, protect: Sequence[Path]
     mode = "wb" if isinstance(data, bytes) else "w"
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
     try:
+        # mkstemp makes the file private; give it the permissions a plain open() would.
+        os.chmod(tmp, 0o666 & ~_umask())
         with os.fdopen(fd, mode, **({} if mode == "wb" else {"encoding": "utf-8",
                                                                "newline": ""})) as fh:
             fh.write(data)
@@ -142,3 +152,101 @@ def atomic_write(path: str | Path, data: str | bytes, *, protect: Sequence[Path]
         Path(tmp).unlink(missing_ok=True)
         raise
     return target
+
+
+# --- XLSX schedule (optional: needs openpyxl, the [xlsx] extra) ---------------------------
+
+XLSX_HINT = "writing XLSX needs openpyxl: pip install 'sizer[xlsx]'"
+# Zip entry time for every part, so the same design gives byte-identical workbooks.
+_ZIP_EPOCH = (1980, 1, 1, 0, 0, 0)
+_XLSX_NUMBER_FORMATS = {
+    "length_m": "0.0", "current_a": "0.0", "ocpd_a": "0", "ampacity_a": "0", "temp_c": "0.0",
+    "vd_pct": "0.00", "path_vd_pct": "0.00", "loadflow_drop_pct": "0.00", "fault_ka": "0.0",
+    "r_ohm": "0.00000", "x_ohm": "0.00000", "capex": "#,##0", "loss_kw": "0.000",
+    "loss_pv": "#,##0", "voltage_v": "0",
+}
+
+
+def xlsx_available() -> bool:
+    """True when openpyxl can be imported."""
+    try:
+        import openpyxl  # noqa: F401
+    except ImportError:
+        return False
+    return True
+
+
+def xlsx_bytes(design: Design) -> bytes:
+    """The schedule and totals as an XLSX workbook (deterministic bytes, no timestamps)."""
+    try:
+        from openpyxl import Workbook
+        from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
+        from openpyxl.styles import Font
+        from openpyxl.writer.excel import ExcelWriter
+    except ImportError:
+        from sizer.errors import SizerError
+
+        raise SizerError(XLSX_HINT) from None
+    from sizer import CAUTION
+
+    def put(ws: Any, row: int, col: int, value: Any) -> Any:
+        value = clean(value)
+        if isinstance(value, str):
+            value = ILLEGAL_CHARACTERS_RE.sub("", value)
+        cell = ws.cell(row=row, column=col, value=value)
+        if isinstance(value, str):
+            cell.data_type = "s"  # text stays text: a leading "=" is never a formula
+        return cell
+
+    wb = Workbook()
+    wb.properties.creator = "sizer"
+    # A fixed date, not the run time: data files carry no timestamps.
+    wb.properties.created = wb.properties.modified = datetime.datetime(*_ZIP_EPOCH)
+    ws = wb.active
+    ws.title = "Schedule"
+    for col, name in enumerate(SCHEDULE_COLUMNS, start=1):
+        put(ws, 1, col, name).font = Font(bold=True)
+    for row, seg in enumerate(design.segments, start=2):
+        for col, name in enumerate(SCHEDULE_COLUMNS, start=1):
+            cell = put(ws, row, col, getattr(seg, name))
+            if name in _XLSX_NUMBER_FORMATS:
+                cell.number_format = _XLSX_NUMBER_FORMATS[name]
+    ws.freeze_panes = "C2"
+    for col, name in enumerate(SCHEDULE_COLUMNS, start=1):
+        width = max([len(name)] + [len(str(getattr(s, name))) for s in design.segments])
+        ws.column_dimensions[ws.cell(row=1, column=col).column_letter].width = min(width + 2, 40)
+
+    totals = wb.create_sheet("Totals")
+    t = design.totals
+    facts = [("status", design.status), ("objective", design.objective),
+             ("rules", design.rules), ("currency", design.currency),
+             ("capex", t.capex), ("loss_pv", t.loss_pv), ("lifecycle", t.lifecycle),
+             ("loss_kwh_per_year", t.loss_kwh_per_year), ("caution", CAUTION)]
+    for row, (key, value) in enumerate(facts, start=1):
+        put(totals, row, 1, key).font = Font(bold=True)
+        put(totals, row, 2, value)
+    totals.column_dimensions["A"].width = 20
+    totals.column_dimensions["B"].width = 24
+
+    raw = io.BytesIO()
+    with zipfile.ZipFile(raw, "w", zipfile.ZIP_DEFLATED) as archive:
+        ExcelWriter(wb, archive).write_data()
+    return _fixed_zip_times(raw.getvalue())
+
+
+def _fixed_zip_times(data: bytes) -> bytes:
+    """Rewrite a zip with every entry dated 1980-01-01 (zip stamps the wall clock)."""
+    out = io.BytesIO()
+    with zipfile.ZipFile(io.BytesIO(data)) as src, \
+            zipfile.ZipFile(out, "w", zipfile.ZIP_DEFLATED) as dst:
+        for info in src.infolist():
+            fixed = zipfile.ZipInfo(info.filename, date_time=_ZIP_EPOCH)
+            fixed.compress_type = zipfile.ZIP_DEFLATED
+            fixed.external_attr = 0o644 << 16
+            dst.writestr(fixed, src.read(info.filename))
+    return out.getvalue()
+
+
+def write_xlsx(path: str | Path, design: Design, *, protect: Sequence[Path] = ()) -> Path:
+    """Write the schedule workbook atomically; SizerError naming the extra without openpyxl."""
+    return atomic_write(path, xlsx_bytes(design), protect=protect)

@@ -1,0 +1,115 @@
+"""`sizer demo`: the bundled kiln-hall scenario end to end, report included.
+
+Copies the scenario into a folder of its own, solves it for the lifecycle optimum with
+load-flow verification, and writes the HTML report, the CSV (and, with openpyxl, XLSX)
+schedule and the JSON results beside it. Existing files are never overwritten unless
+asked.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from dataclasses import dataclass
+from pathlib import Path
+
+import sizer
+from sizer.errors import ScenarioError, SizerError
+from sizer.model import Design
+
+DEMO_SCENARIO = "kiln-hall.toml"
+REPORT_NAME = "report.html"
+CSV_NAME = "schedule.csv"
+JSON_NAME = "results.json"
+XLSX_NAME = "schedule.xlsx"
+
+Progress = Callable[[str], None]
+
+
+def _quiet(_: str) -> None:
+    pass
+
+
+@dataclass(frozen=True)
+class DemoResult:
+    """What the demo wrote and the design it found."""
+
+    folder: Path
+    scenario: Path
+    report: Path
+    schedule_csv: Path
+    results_json: Path
+    schedule_xlsx: Path | None      # None when openpyxl is not installed
+    design: Design
+    title: str
+    seconds: float
+
+    @property
+    def files(self) -> tuple[Path, ...]:
+        """Every file written, scenario first."""
+        out = (self.scenario, self.report, self.schedule_csv, self.results_json)
+        return out + ((self.schedule_xlsx,) if self.schedule_xlsx else ())
+
+
+def bundled_scenario(name: str = DEMO_SCENARIO) -> Path:
+    """Path of a demo scenario shipped in ``scenarios/`` beside the package."""
+    path = Path(sizer.__file__).resolve().parents[1] / "scenarios" / name
+    if not path.is_file():
+        raise SizerError(f"the bundled demo scenario is missing: {path} "
+                         "(sizer demo runs from a source checkout or a full install)")
+    return path
+
+
+def run_demo(folder: Path = Path("sizer-demo"), *, force: bool = False,
+             progress: Progress = _quiet) -> DemoResult:
+    """Copy the demo scenario into ``folder``, solve it and write every output there."""
+    from sizer.optimize import Objective, prepare
+    from sizer.report.export import (
+        atomic_write,
+        design_document,
+        json_text,
+        schedule_csv,
+        write_xlsx,
+        xlsx_available,
+    )
+    from sizer.report.html import write_report
+    from sizer.scenario import load_scenario
+    from sizer.workflow import solve_verified
+
+    start = time.perf_counter()
+    source = bundled_scenario()
+    folder = Path(folder)
+    if folder.exists() and not folder.is_dir():
+        raise ScenarioError("exists and is not a folder", file=str(folder))
+    with_xlsx = xlsx_available()
+    targets = [folder / DEMO_SCENARIO, folder / REPORT_NAME, folder / CSV_NAME,
+               folder / JSON_NAME] + ([folder / XLSX_NAME] if with_xlsx else [])
+    if not force:
+        for path in targets:
+            if path.exists():
+                raise ScenarioError("already exists; run with --force to overwrite it",
+                                    file=str(path))
+    folder.mkdir(parents=True, exist_ok=True)
+
+    progress(f"copying {source.name} into {folder}")
+    scenario_path = atomic_write(folder / DEMO_SCENARIO, source.read_bytes())
+    progress("reading the scenario and building candidates")
+    prep = prepare(load_scenario(scenario_path))
+    progress(f"solving {len(prep.segments)} runs for the lifecycle optimum")
+    design, _ver = solve_verified(prep, Objective.LIFECYCLE)
+    if not design.segments:
+        raise SizerError("the demo scenario has no design: " + "; ".join(design.diagnosis))
+    protect = [scenario_path]
+    progress("writing results.json and schedule.csv")
+    json_path = atomic_write(folder / JSON_NAME, json_text(design_document(design)),
+                             protect=protect)
+    csv_path = atomic_write(folder / CSV_NAME, schedule_csv(design), protect=protect)
+    xlsx_path = None
+    if with_xlsx:
+        xlsx_path = write_xlsx(folder / XLSX_NAME, design, protect=protect)
+    report = write_report(folder / REPORT_NAME, prep, design, protect=protect,
+                          progress=progress)
+    return DemoResult(folder=folder, scenario=scenario_path, report=report,
+                      schedule_csv=csv_path, results_json=json_path, schedule_xlsx=xlsx_path,
+                      design=design, title=prep.scenario.title,
+                      seconds=time.perf_counter() - start)

@@ -1,0 +1,638 @@
+"""The HTML report: one self-contained file that persuades an owner and satisfies an engineer.
+
+The page needs no network and no script: the style sheet is inlined and the figures are
+embedded as base64 PNG. Every string that comes from the scenario (ids, titles,
+descriptions, notes, messages) goes through ``html.escape``; the page's own markup is
+built here, never from scenario text. The run date appears only in this human report,
+never in the data files.
+"""
+
+from __future__ import annotations
+
+import base64
+import datetime as _dt
+import html
+import math
+import re
+from collections.abc import Callable, Iterable, Sequence
+from importlib import resources
+from pathlib import Path
+from string import Template
+
+import numpy as np
+
+from sizer import CAUTION, __version__
+from sizer.catalogue.prices import resolve_price_list
+from sizer.model import Design, Scenario
+from sizer.optimize import Prepared
+from sizer.report import plots
+from sizer.report import tables as tb
+from sizer.report.export import atomic_write
+from sizer.workflow import FrontierPoint, Option, Verification, compare_options, frontier
+from sizer.workflow import verify_design as _verify_design
+
+Progress = Callable[[str], None]
+
+# The report's own statement of responsibility, shown at the top and the foot of the page.
+REPORT_CAUTION = (
+    "sizer is a design aid. Verify every result against the local electrical code and "
+    "with the authority having jurisdiction; a licensed professional is responsible for "
+    "the design and must review and sign it before anything is built."
+)
+# Frontier points computed for the report when none are given: enough for the curve's
+# shape, few enough to keep the report quick.
+REPORT_FRONTIER_POINTS = 10
+REPORT_FRONTIER_TIME_LIMIT_S = 20.0
+
+_STATUS_WORDS = {
+    "optimal": "optimal (proven)",
+    "time_limit": "best found within the time limit (not proven optimal)",
+    "infeasible": "no design satisfies the rules",
+    "error": "solver error",
+    "compliant": "meets every rule checked",
+    "violations": "breaks rules",
+}
+
+
+def _quiet(_: str) -> None:
+    pass
+
+
+# --- small HTML helpers ------------------------------------------------------------------
+
+
+def esc(value: object) -> str:
+    """Escape any value for HTML text and attribute values."""
+    return html.escape(str(value), quote=True)
+
+
+def num(value: float | None, digits: int = 0, *, sep: bool = True) -> str:
+    """A number for a table cell; "—" for None or not finite."""
+    if value is None or not math.isfinite(value):
+        return "—"
+    if round(value, digits) == 0:
+        value = 0.0  # no "-0"
+    return f"{value:,.{digits}f}" if sep else f"{value:.{digits}f}"
+
+
+class Cell:
+    """A table cell: its text (escaped on output) and how to align and mark it."""
+
+    __slots__ = ("css", "text")
+
+    def __init__(self, text: object, css: str = "") -> None:
+        self.text = text
+        self.css = css
+
+
+def _cell(tag: str, value: object, numeric: bool) -> str:
+    css = ["num"] if numeric else []
+    if isinstance(value, Cell):
+        css += [value.css] if value.css else []
+        value = value.text
+    cls = f' class="{" ".join(css)}"' if css else ""
+    return f"<{tag}{cls}>{esc(value)}</{tag}>"
+
+
+def table(headers: Sequence[str], rows: Iterable[Sequence[object]], *,
+          numeric: Sequence[bool] | None = None, caption: str = "",
+          row_class: Sequence[str] | None = None, css: str = "") -> str:
+    """An HTML table; every cell escaped; ``numeric`` right-aligns columns."""
+    numeric = numeric or [False] * len(headers)
+    head = "".join(_cell("th", h, n) for h, n in zip(headers, numeric, strict=True))
+    body = []
+    for i, row in enumerate(rows):
+        cls = f' class="{row_class[i]}"' if row_class and row_class[i] else ""
+        cells = "".join(_cell("td", v, n) for v, n in zip(row, numeric, strict=True))
+        body.append(f"<tr{cls}>{cells}</tr>")
+    cap = f"<caption>{esc(caption)}</caption>" if caption else ""
+    cls = f' class="{css}"' if css else ""
+    return (f'<div class="scroll"><table{cls}>{cap}<thead><tr>{head}</tr></thead>'
+            f'<tbody>{"".join(body)}</tbody></table></div>')
+
+
+def facts(pairs: Iterable[tuple[str, object]]) -> str:
+    """A two-column table of labelled facts."""
+    rows = "".join(f"<tr><th>{esc(k)}</th><td>{esc(v)}</td></tr>" for k, v in pairs)
+    return f'<div class="scroll"><table class="facts"><tbody>{rows}</tbody></table></div>'
+
+
+def figure(png: bytes, alt: str, caption: str) -> str:
+    """An embedded PNG figure with its caption."""
+    data = base64.b64encode(png).decode("ascii")
+    return (f'<figure><img src="data:image/png;base64,{data}" alt="{esc(alt)}">'
+            f"<figcaption>{esc(caption)}</figcaption></figure>")
+
+
+def card(label: str, value: str, sub: str = "", warn: bool = False) -> str:
+    """A key figure of the first screen."""
+    return (f'<div class="card{" warn" if warn else ""}"><div class="label">{esc(label)}</div>'
+            f'<div class="value">{esc(value)}</div><div class="sub">{esc(sub)}</div></div>')
+
+
+def pct(value: float | None, digits: int = 2) -> str:
+    """A percentage with its sign; "—" when absent."""
+    return "—" if value is None or not math.isfinite(value) else f"{value:.{digits}f} %"
+
+
+# --- the report ----------------------------------------------------------------------------
+
+
+def write_report(path: str | Path, prep: Prepared, design: Design, *,
+                 options: Sequence[Option] | None = None,
+                 frontier_points: Sequence[FrontierPoint] | None = None,
+                 protect: Sequence[Path] = (), progress: Progress = _quiet) -> Path:
+    """Compute what is missing (options, frontier), render the report and write it atomically."""
+    text = render_report(prep, design, options=options, frontier_points=frontier_points,
+                         progress=progress)
+    progress("report: writing the file")
+    return atomic_write(path, text, protect=protect)
+
+
+def render_report(prep: Prepared, design: Design, *,
+                  options: Sequence[Option] | None = None,
+                  frontier_points: Sequence[FrontierPoint] | None = None,
+                  verification: Verification | None = None,
+                  progress: Progress = _quiet,
+                  today: _dt.date | None = None) -> str:
+    """The whole report as HTML text."""
+    if options is None:
+        options = compare_options(prep, progress=progress)
+    if frontier_points is None and design.segments:
+        progress("report: frontier of upfront cost against losses")
+        frontier_points = frontier(prep, REPORT_FRONTIER_POINTS,
+                                   time_limit_s=REPORT_FRONTIER_TIME_LIMIT_S,
+                                   progress=progress)
+    if verification is None and len(design.choice) == len(prep.segments) and design.segments:
+        verification = _verify_design(prep, np.asarray(design.choice, dtype=np.int64))
+    progress("report: tables and figures")
+    page = _Page(prep, design, list(options), list(frontier_points or ()), verification)
+    body = page.body(today or _dt.date.today())
+    template = Template(resources.files("sizer.report").joinpath("template.html")
+                        .read_text(encoding="utf-8"))
+    style = resources.files("sizer.report").joinpath("report.css").read_text(encoding="utf-8")
+    return template.substitute(
+        version=esc(__version__),
+        title=esc(f"Conductor sizing report — {prep.scenario.title}"),
+        style=style, body=body)
+
+
+class _Page:
+    """Builds the sections of one report from the finished designs."""
+
+    def __init__(self, prep: Prepared, design: Design, options: list[Option],
+                 points: list[FrontierPoint], ver: Verification | None) -> None:
+        self.prep = prep
+        self.design = design
+        self.options = options
+        self.points = points
+        self.ver = ver
+        self.scenario = prep.scenario
+        self.econ = prep.economics
+        self.cur = design.currency or prep.scenario.currency
+        self.option_rows = tb.options_table(options, prep.economics,
+                                            prep.scenario.economics.emission_kg_per_kwh)
+        self.code_min = tb.option_design(options, "code_minimum")
+        self.lifecycle = tb.option_design(options, "lifecycle")
+        self.cash = (tb.upsizing_cash_flow(self.code_min, self.lifecycle, self.econ)
+                     if self.code_min and self.lifecycle else None)
+        self.justify = (tb.justification_table(self.code_min, self.lifecycle, self.econ,
+                                               self.cur)
+                        if self.code_min and self.lifecycle else ())
+        self.imperial = prep.catalogue.name == "awg"
+
+    # -- page -------------------------------------------------------------------------------
+
+    def body(self, today: _dt.date) -> str:
+        """Header, first screen and every section."""
+        s = self.scenario
+        parts = [
+            '<header class="title"><div class="inner">',
+            f"<h1>Conductor sizing report — {esc(s.title)}</h1>",
+            f"<p>{esc(self.prep.profile.title)} · {esc(_objective_words(self.design))} · "
+            f"{len(self.prep.segments)} runs · prices in {esc(self.cur)}</p>",
+            "</div></header><main>",
+            f'<div class="caution" role="note"><strong>Caution</strong>{esc(REPORT_CAUTION)}'
+            "</div>",
+            self.first_screen(),
+            '<nav class="toc">Contents: <a href="#scenario">Scenario</a>'
+            '<a href="#assumptions">Assumptions</a><a href="#options">Options</a>'
+            '<a href="#justification">Why upsize</a><a href="#schedule">Schedule</a>'
+            '<a href="#figures">Figures</a><a href="#verification">Verification</a></nav>',
+            self.scenario_section(),
+            self.assumptions_section(),
+            self.options_section(),
+            self.justification_section(),
+            self.schedule_section(),
+            self.figures_section(),
+            self.verification_section(),
+            f'<footer><div class="caution" role="note"><strong>Caution</strong>'
+            f"{esc(REPORT_CAUTION)}</div><p>{esc(CAUTION)}</p>"
+            f"<p>Generated {esc(today.isoformat())} by sizer {esc(__version__)} from "
+            f"{esc(Path(s.file).name if s.file else 'an unnamed scenario')}. "
+            "This page is self-contained: it loads nothing from the network.</p></footer>",
+            "</main>",
+        ]
+        return "\n".join(parts)
+
+    def first_screen(self) -> str:
+        """The key figures an owner reads first, and the one-sentence case for upsizing."""
+        d = self.design
+        if not d.segments:
+            items = "".join(f"<li>{esc(x)}</li>" for x in d.diagnosis)
+            return (f'<p class="headline">No design: {esc(_STATUS_WORDS.get(d.status, d.status))}'
+                    f".</p><ul>{items}</ul>")
+        t = d.totals
+        lf = [s.loadflow_drop_pct for s in d.segments if s.loadflow_drop_pct is not None]
+        worst_lf = max(lf) if lf else None
+        limit = self.prep.profile.drop_total_pct
+        worst = worst_lf if worst_lf is not None else d.worst_path_drop_pct()
+        findings = len(d.violations)
+        cards = [
+            card("Upfront cost", f"{tb.money(t.capex)} {self.cur}",
+                 "conductors and installation"),
+            card("Lifetime total", f"{tb.money(t.lifecycle)} {self.cur}",
+                 f"upfront + losses over {self.econ.years:g} years, today's money"),
+            card("Losses", f"{tb.money(t.loss_kwh_per_year)} kWh/yr",
+                 f"{tb.money(tb.peak_loss_w(d) * self.econ.annual_cost_per_w)} {self.cur} "
+                 "in the first year"),
+            card("Worst voltage drop", pct(worst),
+                 f"{'load flow' if worst_lf is not None else 'estimate'}, limit {limit:g} %",
+                 warn=worst > limit + 1e-9),
+            card("Findings", str(findings),
+                 "see Verification" if findings else "none from the checks run",
+                 warn=findings > 0),
+        ]
+        return (f'<p class="headline">{esc(self.headline())}</p>'
+                f'<div class="cards">{"".join(cards)}</div>'
+                f'<p class="muted">Design: {esc(_objective_words(d))}, status '
+                f"{esc(_STATUS_WORDS.get(d.status, d.status))}"
+                f"{', engine ' + esc(d.engine) if d.engine else ''}.</p>")
+
+    def headline(self) -> str:
+        """The case for the lifecycle design in one sentence."""
+        c = self.cash
+        years = f"{self.econ.years:g}"
+        if c is None:
+            return "The options could not all be solved; see the options table."
+        if c.added_cost <= 0.5:
+            return ("The least-cost design that meets the code is also the best over the "
+                    f"installation's {years}-year life: no upsizing pays.")
+        pays = (f"pays back in {c.payback_years:.1f} years"
+                if math.isfinite(c.payback_years) else "never pays back")
+        return (f"Sizing for the whole life instead of the code minimum costs "
+                f"{tb.money(c.added_cost)} {self.cur} more now, saves "
+                f"{tb.money(c.first_year_saving)} {self.cur} in the first year and {pays}; "
+                f"over {years} years it is worth {tb.money(c.npv)} {self.cur} today.")
+
+    # -- sections --------------------------------------------------------------------------
+
+    def scenario_section(self) -> str:
+        """Site, rules, source and the size of the tree."""
+        s = self.scenario
+        src = s.source
+        segs = self.prep.segments
+        feeders = sum(1 for g in segs if g.kind == "feeder")
+        roots = [g for g in segs if g.parent_index < 0]
+        demand_kva = abs(sum((g.demand_va for g in roots), 0j)) / 1e3
+        fault = (f"{src.fault_current_a / 1e3:g} kA, X/R {src.x_r:g}"
+                 if src.fault_current_a else "not given (infinite bus assumed)")
+        transformers = sum(1 for n in s.nodes if n.transformer is not None)
+        pairs = [
+            ("Project", s.title),
+            ("Scenario file", Path(s.file).name if s.file else "—"),
+            ("Rules", f"{self.prep.profile.title} ({self.prep.profile.edition})"),
+            ("Source", f"{src.id}: {src.voltage_v:g} V, {src.phases}-phase"),
+            ("Source fault level", fault),
+            ("Nodes", f"{len(s.nodes) + 1} (source + {len(s.nodes)}): "
+                      f"{_count(feeders, 'feeder')}, "
+                      f"{_count(len(segs) - feeders, 'branch circuit')}, "
+                      f"{_count(transformers, 'transformer')}"),
+            ("Demand at the source", f"{demand_kva:,.0f} kVA (demand factors applied)"),
+            ("Currency", s.currency),
+        ]
+        return '<section id="scenario"><h2>Scenario</h2>' + facts(pairs) + "</section>"
+
+    def assumptions_section(self) -> str:
+        """Rule profile and limits, economics, prices."""
+        p = self.prep.profile
+        e = self.econ
+        se = self.scenario.economics
+        rules = [
+            ("Profile", f"{p.name}: {p.title}"),
+            ("Edition", p.edition),
+            ("Voltage drop limits", f"{p.drop_feeder_pct:g} % per feeder, {p.drop_branch_pct:g} % "
+                                    f"per branch circuit, {p.drop_total_pct:g} % source to load"),
+            ("Continuous loads", f"× {p.continuous_factor:g} for ampacity"),
+            ("Load unknown", f"{100 * p.unknown_load_factor:g} % of the device rating"),
+            ("Motor-start dip limit", f"{p.motor_start_dip_pct:g} %"),
+            ("Fault clearing time", f"{p.default_clearing_time_s:g} s unless a node gives one"),
+        ]
+        given_llf = se.loss_load_factor is not None
+        econ = [
+            ("Energy price", f"{1e3 * e.energy_price_per_wh:g} {self.cur}/kWh"),
+            ("Demand charge", f"{se.demand_charge_per_kw_month:g} {self.cur}/kW per month"),
+            ("Escalation", f"{100 * e.escalation:g} % a year"),
+            ("Discount rate", f"{100 * e.discount:g} % a year"),
+            ("Load growth", f"{100 * e.load_growth:g} % a year"),
+            ("Lifetime", f"{e.years:g} years"),
+            ("Load factor", f"{se.load_factor:g}"),
+            ("Loss load factor", f"{e.theta:.3f} "
+                                 + ("(given)" if given_llf else "(0.3 LF + 0.7 LF²)")),
+            ("Hours per year", f"{e.hours_per_year:g} h"),
+            ("Present value of 1 W of peak loss",
+             f"{e.loss_pv_per_w:.3f} {self.cur} (IEC 60287-3-2)"),
+            ("Grid emission factor", f"{se.emission_kg_per_kwh:g} kg CO₂/kWh "
+                                     "([economics] emission_factor; 0.4 when not given)"),
+        ]
+        prices = self.price_facts()
+        notes = "".join(f"<li>{esc(n)}</li>" for n in getattr(p, "notes", ()) or ())
+        return ('<section id="assumptions"><h2>Assumptions</h2><div class="columns">'
+                f"<div><h3>Rules</h3>{facts(rules)}"
+                f"{f'<ul class=muted>{notes}</ul>' if notes else ''}</div>"
+                f"<div><h3>Economics</h3>{facts(econ)}</div>"
+                f"<div><h3>Prices</h3>{facts(prices)}</div></div></section>")
+
+    def price_facts(self) -> list[tuple[str, str]]:
+        """The price list, its currency, date and metal prices."""
+        pl = self.prep.prices
+        header = _price_header(self.scenario)
+        metal = ", ".join(f"{m} {v:g} {pl.currency}/kg"
+                          for m, v in sorted(pl.metal_per_kg.items()))
+        basis = ", ".join(f"{m} {header[k]}" for m, k in (("Cu", "copper_price_basis"),
+                                                          ("Al", "aluminium_price_basis"))
+                          if k in header)
+        date = header.get("date") or header.get("priced") or header.get("price_date")
+        out = [("Price list", pl.source), ("Currency", pl.currency),
+               ("Price date", date or "not recorded in the price list")]
+        if basis:
+            out.append(("Metal prices the list was priced at", basis))
+        out.append(("Metal prices used", metal or "as listed"))
+        if "product" in header:
+            out.append(("Product", header["product"]))
+        return out
+
+    def options_section(self) -> str:
+        """The options side by side, with the frontier figure."""
+        cur = self.cur
+        headers = ["Option", f"Upfront {cur}", f"Loss PV {cur}", f"Lifetime total {cur}",
+                   "Losses kWh/yr", f"Loss cost {cur}/yr", "Worst drop % (estimate)",
+                   "Worst drop % (load flow)", "CO₂ t/yr", "CO₂ t over life"]
+        rows: list[list[object]] = []
+        classes: list[str] = []
+        for r in self.option_rows:
+            title = r.title if r.feasible else f"{r.title}: {_STATUS_WORDS.get(r.status, r.status)}"
+            rows.append([title, num(r.capex), num(r.loss_pv), num(r.lifecycle),
+                         num(r.loss_kwh_per_year), num(r.loss_cost_per_year),
+                         num(r.worst_drop_pct, 2), num(r.worst_loadflow_drop_pct, 2),
+                         num(r.co2_t_per_year, 1), num(r.co2_t_lifetime, 0)])
+            classes.append("chosen" if r.key == "lifecycle" else "")
+        numeric = [False] + [True] * 9
+        ef = self.scenario.economics.emission_kg_per_kwh
+        return ('<section id="options"><h2>Options side by side</h2>'
+                + table(headers, rows, numeric=numeric, row_class=classes, css="options")
+                + f'<p class="note">Loss PV: present value of the cost of losses over '
+                  f"{self.econ.years:g} years (energy and demand charge, escalated and "
+                  f"discounted). Loss cost and CO₂ per year are first-year figures; CO₂ uses "
+                  f"{ef:g} kg/kWh and grows with the load over the life. The highlighted row "
+                  "is the lifecycle optimum.</p></section>")
+
+    def justification_section(self) -> str:
+        """Per-segment upsizing: the sentences, the table, the totals."""
+        cur = self.cur
+        out = ['<section id="justification"><h2>Why upsize: run by run</h2>']
+        if self.code_min is None or self.lifecycle is None:
+            out.append("<p>The code-minimum or lifecycle option has no design; nothing to "
+                       "compare.</p></section>")
+            return "".join(out)
+        if not self.justify:
+            out.append("<p>The lifecycle optimum buys no run larger than the code minimum.</p>"
+                       "</section>")
+            return "".join(out)
+        top = self.justify[:8]
+        out.append('<ul class="sentences">' + "".join(f"<li>{esc(r.sentence)}</li>" for r in top)
+                   + "</ul>")
+        if len(self.justify) > len(top):
+            out.append(f'<p class="note">{len(self.justify) - len(top)} more runs in the table '
+                       "below.</p>")
+        headers = ["Run", "Code minimum", "Lifecycle", f"Added {cur}", "kWh saved/yr",
+                   f"{cur} saved/yr", "Payback years", f"NPV {cur}"]
+        rows: list[list[object]] = [[r.segment, r.code_minimum, r.lifecycle, num(r.added_cost),
+                 num(r.kwh_saved_per_year), num(r.money_saved_per_year),
+                 num(r.payback_years, 1) if math.isfinite(r.payback_years) else "never",
+                 num(r.npv)] for r in self.justify]
+        added = sum(r.added_cost for r in self.justify)
+        value = sum(r.npv for r in self.justify)
+        rows.append([Cell("all upsized runs", "total"), "", "", num(added),
+                     num(sum(r.kwh_saved_per_year for r in self.justify)),
+                     num(sum(r.money_saved_per_year for r in self.justify)), "", num(value)])
+        out.append(table(headers, rows, numeric=[False] * 3 + [True] * 5))
+        out.append(f'<p class="note">Sorted by NPV. Savings are first-year figures (energy at '
+                   f"{1e3 * self.econ.energy_price_per_wh:g} {cur}/kWh plus demand charge); "
+                   f"payback is simple (added cost / first-year saving); NPV is over "
+                   f"{self.econ.years:g} years at {100 * self.econ.discount:g} % with "
+                   f"{100 * self.econ.escalation:g} % escalation.</p>")
+        if self.cash is not None and self.cash.added_cost > 0.5:
+            fig = plots.cash_flow_figure(self.cash, cur, self.econ.discount)
+            out.append(figure(plots.png_bytes(fig), "Cumulative cash flow of upsizing",
+                              "The whole upsizing, year by year: added cost in year 0, loss "
+                              "savings after; where a curve crosses zero it has paid back."))
+        out.append("</section>")
+        return "".join(out)
+
+    def schedule_section(self) -> str:
+        """The cable schedule of the design."""
+        d = self.design
+        out = ['<section id="schedule"><h2>Cable schedule</h2>']
+        if not d.segments:
+            out.append("<p>No design.</p></section>")
+            return "".join(out)
+        p = self.prep.profile
+        descriptions = {n.id: n.description for n in self.scenario.nodes}
+        rows_data = tb.schedule_table(d, descriptions)
+        cur = self.cur
+        headers = ["From", "To", "Description", "Kind", "V", "Ph", "Length m"]
+        if self.imperial:
+            headers.append("Length ft")
+        headers += ["Current A", "Device A", "Sets", "Size", "Material", "EGC", "Ampacity A",
+                    "Use %", "Own drop %", "Path drop % (est.)", "Path drop % (load flow)",
+                    "Fault kA", f"Upfront {cur}", "Loss kW", f"Loss PV {cur}"]
+        rows = []
+        for r, seg in zip(rows_data, self.prep.segments, strict=False):
+            own_limit = p.drop_branch_pct if r.kind == "branch" else p.drop_feeder_pct
+            total_limit = p.drop_total_pct if seg.is_leaf else math.inf
+            row: list[object] = [r.from_id, r.to_id, Cell(r.description, "desc"), r.kind,
+                                 num(r.voltage_v),
+                                 str(r.phases), num(r.length_m, 1)]
+            if self.imperial:
+                row.append(num(r.length_m / 0.3048, 0))
+            row += [num(r.current_a, 1), num(r.ocpd_a), str(r.sets),
+                    r.size + (" (pinned)" if r.pinned else ""), r.material, r.egc,
+                    num(r.ampacity_a), num(r.utilisation_pct, 0),
+                    _flag(r.vd_pct, own_limit), _flag(r.path_vd_pct, total_limit),
+                    _flag(r.loadflow_drop_pct, total_limit), num(r.fault_ka, 1),
+                    num(r.capex), num(r.loss_kw, 2), num(r.loss_pv)]
+            rows.append(row)
+        numeric = [False, False, False, False, True, True, True] + ([True] if self.imperial
+                                                                    else [])
+        numeric += [True, True, True, False, False, False, True, True, True, True, True, True,
+                    True, True, True]
+        t = d.totals
+        out.append(table(headers, rows, numeric=numeric, css="schedule"))
+        out.append(f'<p class="note">Totals: upfront {tb.money(t.capex)} {cur}, loss PV '
+                   f"{tb.money(t.loss_pv)} {cur}, {tb.money(t.loss_kwh_per_year)} kWh lost in "
+                   "the first year. Use % is the design current over the ampacity (the "
+                   "continuous-load factor is applied to the requirement, not shown here). "
+                   "Drops are in % of each circuit's nominal voltage; path drops run from the "
+                   "source to the run's far end, transformers included. Marked cells exceed "
+                   "their limit.</p></section>")
+        return "".join(out)
+
+    def figures_section(self) -> str:
+        """Frontier, voltage profile, cost breakdown."""
+        d = self.design
+        out = ['<section id="figures"><h2>Figures</h2>']
+        if not d.segments:
+            out.append("<p>No design to draw.</p></section>")
+            return "".join(out)
+        p = self.prep.profile
+        years = self.econ.years
+        if self.points:
+            fig = plots.frontier_figure(tb.frontier_table(self.points), self.option_rows,
+                                        self.cur, years)
+            out.append(figure(plots.png_bytes(fig), "Frontier of upfront cost against losses",
+                              "Each point is a compliant design that no other beats on both "
+                              "upfront cost and losses; filled circles come from weighted "
+                              "sums, hollow squares from the ε-constraint method. Designs "
+                              "on the dashed line cost the same over the life as the "
+                              "lifecycle optimum."))
+        profile = tb.worst_path_profile(d)
+        fig = plots.voltage_profile_figure(profile, max(p.drop_feeder_pct, p.drop_branch_pct),
+                                           p.drop_total_pct)
+        out.append(figure(plots.png_bytes(fig), f"Voltage drop along the path to {profile.load}",
+                          f"Drop from the source to {profile.load}, the load with the largest "
+                          "drop, at the far end of each run; a jump at a transformer is its "
+                          "regulation."))
+        fig = plots.cost_breakdown_figure(tb.cost_breakdown(d), self.cur, years)
+        out.append(figure(plots.png_bytes(fig), "Cost by run",
+                          "Upfront cost and present value of losses of each run, largest "
+                          "first."))
+        out.append("</section>")
+        return "".join(out)
+
+    def verification_section(self) -> str:
+        """Load flow, estimate against load flow, fault levels, findings, motor starts, notes."""
+        d = self.design
+        ver = self.ver
+        out = ['<section id="verification"><h2>Verification</h2>']
+        items: list[str] = []
+        if ver is not None:
+            if ver.converged:
+                items.append(f"The AC load flow (backward/forward sweep, constant-power loads) "
+                             f"converged in {ver.iterations} iterations.")
+            else:
+                items.append(f"The AC load flow did NOT converge in {ver.iterations} "
+                             "iterations: the drops below are not confirmed.")
+        diffs = [(s.loadflow_drop_pct - s.path_vd_pct, s.id) for s in d.segments
+                 if s.loadflow_drop_pct is not None]
+        if diffs:
+            worst_diff, seg = max(diffs, key=lambda x: abs(x[0]))
+            items.append(f"Largest difference between the linear drop estimate and the load "
+                         f"flow: {worst_diff:+.3f} percentage points at {seg}.")
+        faults = [(s.fault_ka, s.id) for s in d.segments if s.fault_ka is not None]
+        src = self.scenario.source
+        if faults:
+            hi, lo = max(faults), min(faults)
+            items.append(f"Bolted fault level at the far end of each run (three-phase; "
+                         f"single-phase circuits line to neutral): from "
+                         f"{hi[0]:.1f} kA ({hi[1]}) down to {lo[0]:.1f} kA ({lo[1]}); source "
+                         + (f"{src.fault_current_a / 1e3:g} kA." if src.fault_current_a
+                            else "level not given, infinite bus assumed."))
+        if items:
+            out.append("<ul>" + "".join(f"<li>{esc(x)}</li>" for x in items) + "</ul>")
+        if d.violations:
+            out.append(f"<h3>Findings ({len(d.violations)})</h3>")
+            counts: dict[str, int] = {}
+            for v in d.violations:
+                counts[v.rule] = counts.get(v.rule, 0) + 1
+            out.append('<p class="note">' + esc("; ".join(f"{k}: {n}" for k, n in
+                                                          sorted(counts.items())))
+                       + ". Each needs a decision by the designer before the design is "
+                       "used.</p>")
+            out.append(table(["Run", "Rule", "Value", "Limit", "What it means"],
+                             ([v.segment, v.rule, _with_unit(v.value, v.rule),
+                               _with_unit(v.limit, v.rule), v.message]
+                              for v in d.violations),
+                             numeric=[False, False, True, True, False]))
+        else:
+            out.append("<p>No findings from the checks run (ampacity, protection, drop, "
+                       "short-circuit withstand, motor-start dip).</p>")
+        if ver is not None and ver.motor_dips:
+            limit = self.prep.profile.motor_start_dip_pct
+            out.append("<h3>Motor starting</h3>")
+            out.append(table(
+                ["Motor", "Voltage dip at start %", "Limit %", "Result"],
+                ([m, num(dip, 2), num(limit, 1),
+                  Cell("over the limit", "over") if dip > limit + 1e-9 else "within"]
+                 for m, dip in ver.motor_dips),
+                numeric=[False, True, True, False]))
+        if d.diagnosis:
+            out.append("<h3>Diagnosis</h3><ul>"
+                       + "".join(f"<li>{esc(x)}</li>" for x in d.diagnosis) + "</ul>")
+        if d.notes:
+            out.append("<h3>Notes</h3><ul>"
+                       + "".join(f"<li>{esc(x)}</li>" for x in d.notes) + "</ul>")
+        out.append("</section>")
+        return "".join(out)
+
+
+# The unit of a finding's value and limit, by rule (sizer.optimize and sizer.workflow).
+_RULE_UNITS = {"ampacity": "A", "protection": "A", "branch drop": "%", "feeder drop": "%",
+               "total drop": "%", "short-circuit withstand": "kA", "motor-start dip": "%"}
+
+
+def _with_unit(value: float, rule: str) -> str:
+    unit = _RULE_UNITS.get(rule, "")
+    return f"{num(value, 2)} {unit}".rstrip()
+
+
+def _flag(value: float | None, limit: float) -> object:
+    """A drop cell, marked when it exceeds its limit."""
+    text = num(value, 2)
+    if value is not None and math.isfinite(value) and value > limit + 1e-9:
+        return Cell(text, "over")
+    return text
+
+
+def _count(n: int, word: str) -> str:
+    return f"{n} {word}{'' if n == 1 else 's'}"
+
+
+def _objective_words(design: Design) -> str:
+    return {"lifecycle": "lifecycle optimum (upfront + losses)",
+            "capex": "least upfront cost (code minimum)",
+            "check": "the design as pinned"}.get(design.objective, design.objective)
+
+
+_HEADER_LINE = re.compile(r"^#\s*(?P<key>[A-Za-z_]+)\s*:\s*(?P<value>.*?)\s*$")
+
+
+def _price_header(scenario: Scenario) -> dict[str, str]:
+    """The ``# key: value`` header lines of the scenario's price list (empty when unknown)."""
+    given = scenario.prices.catalogue
+    if given is None:
+        return {}
+    folder = Path(scenario.file).parent if scenario.file else Path.cwd()
+    try:
+        path = resolve_price_list(str(given), folder)
+        lines = path.read_text(encoding="utf-8").splitlines()
+    except (OSError, ValueError):
+        return {}
+    out = {}
+    for line in lines:
+        if not line.startswith("#"):
+            break
+        m = _HEADER_LINE.match(line)
+        if m:
+            out[m["key"].lower()] = m["value"]
+    return out

@@ -1,0 +1,394 @@
+"""Report tables computed from finished designs: options, upsizing justification, schedule.
+
+Pure computation, no drawing and no HTML: every table is a tuple of frozen row
+dataclasses, so plots and renderers read named fields. Money is in the scenario's
+currency, energy in kWh, drops in % of each circuit's nominal voltage, lengths in m.
+
+The justification follows the economics of ``sizer.economics`` (IEC 60287-3-2): a
+segment's peak-loss saving ΔP (W) saves ΔP·(T·P + D) in the first year, grows with
+(1 + a)²·(1 + b) a year, and its NPV is −added cost + ΔP·F.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+from sizer.economics import EconomicParams, npv, q_factor, simple_payback_years
+from sizer.model import Design, SegmentResult
+from sizer.workflow import FrontierPoint, Option
+
+# --- labels ---------------------------------------------------------------------------
+
+
+def conductor_text(sets: int, size: str, material: str) -> str:
+    """A conductor as the trade writes it: "350 kcmil Al", "2x 500 kcmil Cu"."""
+    return f"{sets}x {size} {material}" if sets > 1 else f"{size} {material}"
+
+
+def segment_conductor(s: SegmentResult) -> str:
+    """The conductor of a design segment as text."""
+    return conductor_text(s.sets, s.size, s.material)
+
+
+def money(value: float) -> str:
+    """Whole money units with thousands separators ("1,240"); "—" when not finite."""
+    if not math.isfinite(value):
+        return "—"
+    text = f"{value:,.0f}"
+    return "0" if text == "-0" else text
+
+
+def peak_loss_w(design: Design) -> float:
+    """Total peak I²R loss of a design (W)."""
+    return 1e3 * sum(s.loss_kw for s in design.segments)
+
+
+# --- options side by side ---------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class OptionRow:
+    """One option of the side-by-side comparison (money in the scenario's currency)."""
+
+    key: str
+    title: str
+    status: str
+    capex: float
+    loss_pv: float
+    lifecycle: float
+    loss_kwh_per_year: float          # first year
+    loss_cost_per_year: float         # first year: energy + demand charge
+    worst_drop_pct: float             # estimate (linear drop formula)
+    worst_loadflow_drop_pct: float | None
+    co2_t_per_year: float             # first year, from the grid emission factor
+    co2_t_lifetime: float             # over the lifetime, with load growth
+
+    @property
+    def feasible(self) -> bool:
+        """True when the option has a design (its numbers mean something)."""
+        return math.isfinite(self.capex)
+
+
+def lifetime_energy_factor(economics: EconomicParams) -> float:
+    """Lifetime energy / first-year energy: Σ_{n=1..N} g^(n−1) with g = (1 + a)² (load growth a)."""
+    return float(q_factor((1.0 + economics.load_growth) ** 2, economics.years))
+
+
+def option_row(key: str, title: str, design: Design, economics: EconomicParams,
+               emission_kg_per_kwh: float) -> OptionRow:
+    """The comparison row of one design; NaN numbers when it has no segments."""
+    if not design.segments:
+        nan = math.nan
+        return OptionRow(key, title, design.status, nan, nan, nan, nan, nan, nan, None,
+                         nan, nan)
+    loss_w = peak_loss_w(design)
+    kwh = float(economics.annual_loss_kwh(loss_w))
+    flows = [s.loadflow_drop_pct for s in design.segments]
+    lf = max(flows) if all(v is not None for v in flows) else None  # type: ignore[type-var]
+    co2_year = kwh * emission_kg_per_kwh / 1e3
+    return OptionRow(
+        key=key, title=title, status=design.status,
+        capex=design.totals.capex, loss_pv=design.totals.loss_pv,
+        lifecycle=design.totals.lifecycle,
+        loss_kwh_per_year=kwh,
+        loss_cost_per_year=loss_w * economics.annual_cost_per_w,
+        worst_drop_pct=design.worst_path_drop_pct(),
+        worst_loadflow_drop_pct=lf,
+        co2_t_per_year=co2_year,
+        co2_t_lifetime=co2_year * lifetime_energy_factor(economics),
+    )
+
+
+def options_table(options: Sequence[Option], economics: EconomicParams,
+                  emission_kg_per_kwh: float) -> tuple[OptionRow, ...]:
+    """Code minimum, lifecycle optimum, all copper, as pinned: one row each, in that order."""
+    return tuple(option_row(o.key, o.title, o.design, economics, emission_kg_per_kwh)
+                 for o in options)
+
+
+def option_design(options: Sequence[Option], key: str) -> Design | None:
+    """The design of the option with ``key`` when it has segments."""
+    for o in options:
+        if o.key == key and o.design.segments:
+            return o.design
+    return None
+
+
+# --- upsizing justification ----------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class JustificationRow:
+    """Why one segment is worth upsizing from the code minimum (first-year savings)."""
+
+    segment: str
+    code_minimum: str           # conductor text
+    lifecycle: str
+    added_cost: float
+    peak_loss_saving_w: float
+    kwh_saved_per_year: float
+    money_saved_per_year: float
+    payback_years: float        # simple, undiscounted; inf = never
+    npv: float                  # over the lifetime, discounted
+    sentence: str
+
+
+def justification_sentence(segment: str, before: str, after: str, added_cost: float,
+                           kwh_per_year: float, money_per_year: float, payback_years: float,
+                           npv_value: float, years: float, currency: str,
+                           same_material: bool = True) -> str:
+    """One plain-language sentence an owner can read about one upsizing."""
+    verb = "Upsizing" if same_material else "Changing"
+    head = (f"{verb} {segment} from {before} to {after} costs {money(added_cost)} {currency} "
+            f"more now")
+    if money_per_year > 0:
+        saving = (f", saves {money(kwh_per_year)} kWh ({money(money_per_year)} {currency}) "
+                  f"a year")
+        pays = (f" and pays back in {payback_years:.1f} years" if math.isfinite(payback_years)
+                else "")
+    else:
+        saving, pays = ", saves no energy", " and never pays back"
+    if npv_value >= 0:
+        worth = f"over {years:g} years it is worth {money(npv_value)} {currency} today."
+    else:
+        worth = (f"over {years:g} years it costs {money(-npv_value)} {currency} more than it "
+                 f"saves, in today's money (it lets other runs stay within the drop limits).")
+    return f"{head}{saving}{pays}; {worth}"
+
+
+def justification_table(code_minimum: Design, lifecycle: Design,
+                        economics: EconomicParams, currency: str) -> tuple[JustificationRow, ...]:
+    """Each segment where the lifecycle design differs and costs more upfront, by NPV (best first).
+
+    added cost = capex(lifecycle) − capex(code minimum); ΔP = peak loss saved (W);
+    kWh/year = ΔP·T/1000; money/year = ΔP·(T·P + D); payback = added / money per year;
+    NPV = −added + ΔP·F (``EconomicParams.upsizing_npv``).
+    """
+    base = {s.id: s for s in code_minimum.segments}
+    rows = []
+    for s in lifecycle.segments:
+        b = base.get(s.id)
+        if b is None or (b.material, b.size, b.sets) == (s.material, s.size, s.sets):
+            continue
+        added = s.capex - b.capex
+        if added <= 0:
+            continue
+        saving_w = (b.loss_kw - s.loss_kw) * 1e3
+        kwh = float(economics.annual_loss_kwh(saving_w))
+        per_year = saving_w * economics.annual_cost_per_w
+        payback = float(simple_payback_years(added, per_year))
+        value = float(economics.upsizing_npv(added, saving_w))
+        before, after = segment_conductor(b), segment_conductor(s)
+        rows.append(JustificationRow(
+            segment=s.id, code_minimum=before, lifecycle=after, added_cost=added,
+            peak_loss_saving_w=saving_w, kwh_saved_per_year=kwh,
+            money_saved_per_year=per_year, payback_years=payback, npv=value,
+            sentence=justification_sentence(s.id, before, after, added, kwh, per_year,
+                                            payback, value, economics.years, currency,
+                                            same_material=b.material == s.material),
+        ))
+    rows.sort(key=lambda r: (-r.npv, r.segment))
+    return tuple(rows)
+
+
+# --- cumulative cash flow of the whole upsizing ----------------------------------------
+
+
+@dataclass(frozen=True)
+class CashFlowRow:
+    """One year of the upsizing's cash flow (year 0 is the purchase)."""
+
+    year: int
+    flow: float                  # that year's money: −added cost in year 0, saving after
+    cumulative: float            # undiscounted running sum
+    cumulative_discounted: float  # running sum of flow/(1 + i)^year
+
+
+@dataclass(frozen=True)
+class CashFlow:
+    """The lifecycle design against the code minimum, whole design, year by year."""
+
+    rows: tuple[CashFlowRow, ...]
+    added_cost: float
+    first_year_saving: float
+    payback_years: float         # simple: added cost / first-year saving
+    npv: float                   # −added + PV of the savings over the lifetime
+
+    def crossing_year(self, discounted: bool = False) -> float | None:
+        """Where the cumulative curve first reaches zero (interpolated), None if never."""
+        values = [r.cumulative_discounted if discounted else r.cumulative for r in self.rows]
+        for prev, row, v0, v1 in zip(self.rows, self.rows[1:], values, values[1:],
+                                     strict=False):
+            if v0 < 0 <= v1:
+                return prev.year + (row.year - prev.year) * (-v0) / (v1 - v0)
+        return 0.0 if values and values[0] >= 0 else None
+
+
+def upsizing_cash_flow(code_minimum: Design, lifecycle: Design,
+                       economics: EconomicParams) -> CashFlow:
+    """Cumulative cash flow of building the lifecycle design instead of the code minimum.
+
+    Year 0: −Δcapex. Year n ≥ 1: S·g^(n−1) with S = ΔP·(T·P + D) the first-year saving
+    and g = (1 + a)²·(1 + b); discounted by (1 + i)^n. Over whole years the discounted
+    sum ends at the same NPV as ``sizer.economics.npv``.
+    """
+    added = lifecycle.totals.capex - code_minimum.totals.capex
+    saving_w = peak_loss_w(code_minimum) - peak_loss_w(lifecycle)
+    first = saving_w * economics.annual_cost_per_w
+    growth = (1.0 + economics.load_growth) ** 2 * (1.0 + economics.escalation)
+    years = max(math.ceil(economics.years - 1e-9), 1)
+    rows = [CashFlowRow(0, -added, -added, -added)]
+    cum, cum_d = -added, -added
+    for n in range(1, years + 1):
+        flow = first * growth ** (n - 1)
+        cum += flow
+        cum_d += flow / (1.0 + economics.discount) ** n
+        rows.append(CashFlowRow(n, flow, cum, cum_d))
+    value = float(npv(added, first, economics.escalation, economics.discount, economics.years,
+                      economics.load_growth))
+    return CashFlow(tuple(rows), added, first, float(simple_payback_years(added, first)), value)
+
+
+# --- schedule ----------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class ScheduleRow:
+    """One segment of the cable schedule."""
+
+    from_id: str
+    to_id: str
+    description: str
+    kind: str
+    voltage_v: float
+    phases: int
+    length_m: float
+    current_a: float
+    ocpd_a: float
+    material: str
+    size: str
+    sets: int
+    conductor: str
+    egc: str
+    ampacity_a: float
+    utilisation_pct: float        # design current / ampacity
+    vd_pct: float                 # the run's own drop
+    path_vd_pct: float            # source to far end, estimate
+    loadflow_drop_pct: float | None
+    fault_ka: float | None
+    capex: float
+    loss_kw: float
+    loss_pv: float
+    pinned: bool
+
+
+def schedule_table(design: Design,
+                   descriptions: Mapping[str, str] | None = None) -> tuple[ScheduleRow, ...]:
+    """The per-segment schedule, in the design's order (parents first)."""
+    text = descriptions or {}
+    return tuple(
+        ScheduleRow(
+            from_id=s.parent, to_id=s.id, description=text.get(s.id, ""), kind=s.kind,
+            voltage_v=s.voltage_v, phases=s.phases, length_m=s.length_m,
+            current_a=s.current_a, ocpd_a=s.ocpd_a, material=s.material, size=s.size,
+            sets=s.sets, conductor=segment_conductor(s), egc=s.egc, ampacity_a=s.ampacity_a,
+            utilisation_pct=100.0 * s.current_a / s.ampacity_a if s.ampacity_a > 0 else math.nan,
+            vd_pct=s.vd_pct, path_vd_pct=s.path_vd_pct, loadflow_drop_pct=s.loadflow_drop_pct,
+            fault_ka=s.fault_ka, capex=s.capex, loss_kw=s.loss_kw, loss_pv=s.loss_pv,
+            pinned=s.pinned,
+        )
+        for s in design.segments)
+
+
+# --- voltage profile along the worst path -------------------------------------------------
+
+
+@dataclass(frozen=True)
+class ProfilePoint:
+    """The far end of one run on the path: distance from the source and drop so far."""
+
+    node: str
+    distance_m: float
+    drop_pct: float                # estimate
+    loadflow_drop_pct: float | None
+
+
+@dataclass(frozen=True)
+class VoltageProfile:
+    """Drop against distance from the source to the worst load (first point: the source)."""
+
+    load: str
+    points: tuple[ProfilePoint, ...]
+    by_loadflow: bool              # the worst load was picked by the load flow
+
+
+def worst_path_profile(design: Design) -> VoltageProfile:
+    """The path to the load with the largest drop (load flow when present, else estimate)."""
+    segs = {s.id: s for s in design.segments}
+    if not segs:
+        return VoltageProfile("", (), False)
+    by_lf = all(s.loadflow_drop_pct is not None for s in design.segments)
+
+    def worst_key(s: SegmentResult) -> float:
+        return s.loadflow_drop_pct if by_lf else s.path_vd_pct  # type: ignore[return-value]
+
+    worst = max(design.segments, key=worst_key)
+    chain = [worst]
+    while chain[-1].parent in segs:
+        chain.append(segs[chain[-1].parent])
+    chain.reverse()
+    points = [ProfilePoint(chain[0].parent, 0.0, 0.0, 0.0 if by_lf else None)]
+    distance = 0.0
+    for s in chain:
+        distance += s.length_m
+        points.append(ProfilePoint(s.id, distance, s.path_vd_pct, s.loadflow_drop_pct))
+    return VoltageProfile(worst.id, tuple(points), by_lf)
+
+
+# --- frontier and cost breakdown ---------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class FrontierRow:
+    """One point of the upfront-cost against loss-PV frontier."""
+
+    capex: float
+    loss_pv: float
+    lifecycle: float
+    method: str                  # "weighted sum" | "epsilon constraint"
+    proven_optimal: bool
+
+
+def frontier_table(points: Sequence[FrontierPoint]) -> tuple[FrontierRow, ...]:
+    """The frontier points, cheapest upfront first."""
+    return tuple(FrontierRow(p.capex, p.loss_pv, p.lifecycle, p.method, p.proven_optimal)
+                 for p in sorted(points, key=lambda p: (p.capex, p.loss_pv)))
+
+
+@dataclass(frozen=True)
+class CostRow:
+    """Upfront cost and loss PV of one segment (or of the remaining segments together)."""
+
+    segment: str
+    capex: float
+    loss_pv: float
+    count: int = 1               # segments this row stands for
+
+    @property
+    def lifecycle(self) -> float:
+        """Upfront plus loss PV."""
+        return self.capex + self.loss_pv
+
+
+def cost_breakdown(design: Design, top: int | None = 15) -> tuple[CostRow, ...]:
+    """Segments by lifetime cost, largest first; beyond ``top`` they are summed in one row."""
+    rows = sorted((CostRow(s.id, s.capex, s.loss_pv) for s in design.segments),
+                  key=lambda r: (-r.lifecycle, r.segment))
+    if top is None or len(rows) <= top:
+        return tuple(rows)
+    keep, rest = rows[: top - 1], rows[top - 1:]
+    other = CostRow(f"other {len(rest)} runs", sum(r.capex for r in rest),
+                    sum(r.loss_pv for r in rest), len(rest))
+    return (*keep, other)
