@@ -15,6 +15,7 @@ import numpy as np
 
 from sizer.conductors import adiabatic_withstand_a
 from sizer.engines import SolveStatus, solve
+from sizer.errors import SizerError
 from sizer.model import Design, Scenario, Violation
 from sizer.optimize import Objective, Prepared, build_problem, check, optimise, prepare
 from sizer.verify import Network, fault_currents_a, load_flow, motor_start_dip_pct
@@ -247,6 +248,7 @@ def solve_verified(prep: Prepared, objective: Objective, *, engine: str = "auto"
                           time_limit_s=time_limit_s, limit_pct=limits)
         if not design.segments:
             return design, None
+        audit(prep, design)
         choice = _choice_of(prep, design)
         ver = verify_design(prep, choice)
         over = ver.loadflow_drop_pct - prep.leaf_limit_pct
@@ -317,3 +319,56 @@ def compare_options(prep: Prepared, *, engine: str = "auto", solver: str = "cbc"
             design = with_verification(pinned, design, choice, verify_design(pinned, choice))
         out.append(Option("as_pinned", "Your pinned design (rest at least cost)", design))
     return out
+
+
+# --- an independent look at the answer ---------------------------------------------------
+
+
+def audit(prep: Prepared, design: Design, *, rel_tol: float = 1e-6) -> None:
+    """Re-check a finished design from its own numbers, apart from the solver's rows.
+
+    Each segment's drop is recomputed from its R, X, current and power factor; path drops
+    by walking parent names; totals by summing the segments; and the limits the design
+    claims to meet are checked again. Any disagreement is an error, not a warning: the
+    design must not be written.
+    """
+    if not design.segments:
+        return
+    by_id = {s.id: s for s in design.segments}
+    problems: list[str] = []
+    pf = {seg.id: seg.power_factor for seg in prep.segments}
+    required = {seg.id: seg.required_ampacity_a for seg in prep.segments}
+    fixed = {seg.id: float(prep.fixed_drop_pct[i]) for i, seg in enumerate(prep.segments)}
+    leaf = {seg.id: seg.is_leaf for seg in prep.segments}
+    p = prep.profile
+    for s in design.segments:
+        cos = pf[s.id]
+        sin = math.sqrt(max(0.0, 1.0 - cos * cos))
+        k = 2.0 if s.phases == 1 else math.sqrt(3.0)
+        vd = 100.0 * k * s.current_a * (s.r_ohm * cos + s.x_ohm * sin) / s.voltage_v
+        if not math.isclose(vd, s.vd_pct, rel_tol=rel_tol, abs_tol=1e-9):
+            problems.append(f"'{s.id}' drop {s.vd_pct:.6f} % but R, X and I give {vd:.6f} %")
+        path = vd + fixed[s.id]
+        parent = s.parent
+        while parent in by_id:
+            q = by_id[parent]
+            path += q.vd_pct + fixed[q.id]
+            parent = q.parent
+        if not math.isclose(path, s.path_vd_pct, rel_tol=rel_tol, abs_tol=1e-9):
+            problems.append(f"'{s.id}' path drop {s.path_vd_pct:.6f} % but the path sums to "
+                            f"{path:.6f} %")
+        if s.ampacity_a < required[s.id] * (1 - rel_tol):
+            problems.append(f"'{s.id}' ampacity {s.ampacity_a:.1f} A below {required[s.id]:.1f} A")
+        own = p.drop_branch_pct if s.kind == "branch" else p.drop_feeder_pct
+        if not s.pinned and s.vd_pct > own * (1 + rel_tol):
+            problems.append(f"'{s.id}' own drop {s.vd_pct:.3f} % over {own:g} %")
+        if leaf[s.id] and not s.pinned and design.status in ("optimal", "time_limit") and (
+                s.path_vd_pct > p.drop_total_pct * (1 + rel_tol)):
+            problems.append(f"'{s.id}' path drop {s.path_vd_pct:.3f} % over {p.drop_total_pct:g} %")
+    for name, total in (("capex", design.totals.capex), ("loss_pv", design.totals.loss_pv)):
+        summed = math.fsum(getattr(s, name) for s in design.segments)
+        if not math.isclose(summed, total, rel_tol=rel_tol, abs_tol=1e-6):
+            problems.append(f"total {name} {total:.2f} but the segments sum to {summed:.2f}")
+    if problems:
+        raise SizerError("internal check of the design failed (please report this): "
+                         + "; ".join(problems[:3]))

@@ -234,3 +234,23 @@ def test_results_json_has_every_key_of_the_design(tmp_path):
         assert seg["size"].endswith(("AWG", "kcmil", "mm2"))
     # lengths in metres whatever the input unit: 80 ft = 24.384 m
     assert {s["id"]: s["length_m"] for s in doc["segments"]}["A"] == pytest.approx(24.384)
+
+
+def test_audit_catches_a_design_that_disagrees_with_itself(tmp_path):
+    from dataclasses import replace
+
+    from sizer.errors import SizerError
+    from sizer.workflow import audit
+
+    path = write_scenario(tmp_path, FEEDER_AND_TWO_BRANCHES.format(feeder=300, branch=250),
+                          voltage="208 V", max_sets=1)
+    prep = prepare(load_scenario(path))
+    design = optimise(prep, Objective.CAPEX)
+    audit(prep, design)  # a sound design passes
+    bent = replace(design, segments=(replace(design.segments[0], vd_pct=0.1),
+                                     *design.segments[1:]))
+    with pytest.raises(SizerError, match="internal check"):
+        audit(prep, bent)
+    wrong_total = replace(design, totals=replace(design.totals, capex=design.totals.capex + 5))
+    with pytest.raises(SizerError, match="capex"):
+        audit(prep, wrong_total)
