@@ -202,6 +202,56 @@ def _cmd_frontier(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_sweep(args: argparse.Namespace) -> int:
+    from sizer.optimize import Objective
+    from sizer.report.sweep_plots import sweep_summary_text, write_sweep_json
+    from sizer.scenario import load_scenario
+    from sizer.sweep import sweep
+
+    _outputs(args)
+    scenario = load_scenario(args.file)
+    with _progress_bar(args) as bar:
+        result = sweep(scenario, args.vary, mode=args.mode, objective=Objective(args.objective),
+                       jobs=args.jobs, scheduler=args.scheduler, progress=bar,
+                       engine=args.engine, solver=args.solver, time_limit_s=args.time_limit)
+    protect = [Path(args.file)]
+    if args.json:
+        write_sweep_json(result, args.json, protect=protect)
+    if args.report:
+        from sizer.optimize import prepare
+        from sizer.report.html import write_report
+        from sizer.report.sweep_plots import sweep_section_html
+        from sizer.workflow import solve_verified
+
+        prep = prepare(scenario)
+        design, _ = solve_verified(prep, Objective(args.objective), engine=args.engine,
+                                   solver=args.solver, time_limit_s=args.time_limit)
+        write_report(args.report, prep, design, protect=protect,
+                     extra_sections=[sweep_section_html(result)])
+    print(sweep_summary_text(result))  # ends with the caution
+    if result.interrupted:
+        print("interrupted: the points finished so far are kept above", file=sys.stderr)
+        return 130
+    return 0
+
+
+@contextmanager
+def _progress_bar(args: argparse.Namespace) -> Iterator[Callable[[int, int], None]]:
+    """A progress bar on stderr for work counted in points."""
+    if getattr(args, "quiet", False) or not sys.stderr.isatty():
+        yield lambda _done, _total: None
+        return
+    from rich.progress import Progress
+
+    with Progress(transient=True) as progress:
+        task = progress.add_task("sweep", total=None)
+
+        def update(done: int, total: int) -> None:
+            progress.update(task, completed=done, total=total)
+
+        yield update
+
+
 def _cmd_demo(args: argparse.Namespace) -> int:
     from sizer.demo import run_demo
     from sizer.report.terminal import summary
@@ -293,6 +343,25 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", help="write the frontier here")
     solver_options(p)
     p.set_defaults(run=_cmd_frontier)
+
+    p = sub.add_parser("sweep", help="how the best design moves with energy and metal prices")
+    p.add_argument("file", help="scenario file")
+    p.add_argument("--vary", action="append", required=True, metavar="FIELD=START:STOP:COUNT",
+                   help="a field and its range, with units like the scenario (bare numbers in "
+                        "its unit); repeat for a grid. Fields: energy_price, demand_charge, "
+                        "escalation, discount_rate, load_growth, lifetime, load_factor, "
+                        "loss_load_factor, hours, emission_factor, copper, aluminium")
+    p.add_argument("--mode", choices=("grid", "oat"), default="grid",
+                   help="every combination, or one field at a time around the scenario's values")
+    p.add_argument("--objective", default="lifecycle", choices=("capex", "lifecycle"))
+    p.add_argument("--jobs", type=int, default=None,
+                   help="worker processes (default: the core count; small sweeps run here)")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="run the points on a Dask cluster, e.g. tcp://host:8786 (sizer[dask])")
+    p.add_argument("--json", help="write the sweep results here")
+    p.add_argument("--report", help="write the HTML report with a sweep section here")
+    solver_options(p)
+    p.set_defaults(run=_cmd_sweep)
 
     p = sub.add_parser("demo", help="solve a bundled demo scenario and write its report")
     p.add_argument("folder", nargs="?", default="sizer-demo",

@@ -141,10 +141,15 @@ def pct(value: float | None, digits: int = 2) -> str:
 def write_report(path: str | Path, prep: Prepared, design: Design, *,
                  options: Sequence[Option] | None = None,
                  frontier_points: Sequence[FrontierPoint] | None = None,
-                 protect: Sequence[Path] = (), progress: Progress = _quiet) -> Path:
-    """Compute what is missing (options, frontier), render the report and write it atomically."""
+                 protect: Sequence[Path] = (), progress: Progress = _quiet,
+                 extra_sections: Sequence[str] = ()) -> Path:
+    """Compute what is missing (options, frontier), render the report and write it atomically.
+
+    ``extra_sections`` are finished, escaped HTML sections (e.g. the sweep's) placed
+    before the footer.
+    """
     text = render_report(prep, design, options=options, frontier_points=frontier_points,
-                         progress=progress)
+                         progress=progress, extra_sections=extra_sections)
     progress("report: writing the file")
     return atomic_write(path, text, protect=protect)
 
@@ -154,7 +159,8 @@ def render_report(prep: Prepared, design: Design, *,
                   frontier_points: Sequence[FrontierPoint] | None = None,
                   verification: Verification | None = None,
                   progress: Progress = _quiet,
-                  today: _dt.date | None = None) -> str:
+                  today: _dt.date | None = None,
+                  extra_sections: Sequence[str] = ()) -> str:
     """The whole report as HTML text."""
     if options is None:
         options = compare_options(prep, progress=progress)
@@ -167,7 +173,7 @@ def render_report(prep: Prepared, design: Design, *,
         verification = _verify_design(prep, np.asarray(design.choice, dtype=np.int64))
     progress("report: tables and figures")
     page = _Page(prep, design, list(options), list(frontier_points or ()), verification)
-    body = page.body(today or _dt.date.today())
+    body = page.body(today or _dt.date.today(), extra_sections)
     template = Template(resources.files("sizer.report").joinpath("template.html")
                         .read_text(encoding="utf-8"))
     style = resources.files("sizer.report").joinpath("report.css").read_text(encoding="utf-8")
@@ -203,7 +209,7 @@ class _Page:
 
     # -- page -------------------------------------------------------------------------------
 
-    def body(self, today: _dt.date) -> str:
+    def body(self, today: _dt.date, extra_sections: Sequence[str] = ()) -> str:
         """Header, first screen and every section."""
         s = self.scenario
         parts = [
@@ -226,6 +232,7 @@ class _Page:
             self.schedule_section(),
             self.figures_section(),
             self.verification_section(),
+            *extra_sections,
             f'<footer><div class="caution" role="note"><strong>Caution</strong>'
             f"{esc(REPORT_CAUTION)}</div><p>{esc(CAUTION)}</p>"
             f"<p>Generated {esc(today.isoformat())} by sizer {esc(__version__)} from "
