@@ -152,7 +152,7 @@ def parse_load(text: object) -> LoadSpec:
 
 # --- conductor sizes -------------------------------------------------------------------
 
-_AWG = re.compile(r"^(?:#\s*)?(?P<n>\d{1,2}|[1-4]/0|0{1,4})\s*(?P<unit>awg)?$", re.I)
+_AWG = re.compile(r"^(?P<hash>#\s*)?(?P<n>\d{1,2}|[1-4]/0|0{1,4})\s*(?P<unit>awg)?$", re.I)
 _KCMIL = re.compile(rf"^(?P<n>{_NUMBER})\s*(?:kcmil|mcm)$", re.I)
 _MM2 = re.compile(rf"^(?P<n>{_NUMBER})\s*(?:mm2|mm²|mm\^2|mm\*\*2|sq\.?\s*mm)$", re.I)
 
@@ -171,7 +171,7 @@ def parse_size(text: object) -> str:
         n = m["n"]
         if "/" not in n and set(n) == {"0"}:
             n = f"{len(n)}/0"
-        elif "/" not in n and m["unit"] is None:
+        elif "/" not in n and m["unit"] is None and m["hash"] is None:
             raise UnitError(f"size {text!r} is ambiguous: write \"{n} AWG\" or \"{n} mm2\"")
         elif "/" not in n:
             n = str(int(n))
