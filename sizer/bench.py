@@ -173,14 +173,15 @@ def measure(n_segments: int, repeats: int = 3, milp_limit_s: float = 60.0,
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "bench.toml"
         path.write_text(synthetic_scenario(n_segments), encoding="utf-8")
-        res.stages_s["read"], scenario = _time(lambda: load_scenario(path), repeats)
-    profile = load_profile(scenario.rules)  # type: ignore[attr-defined]
-    res.stages_s["currents"], segments = _time(lambda: design_segments(scenario, profile),
-                                               repeats)
-    prep = prepare(scenario)  # type: ignore[arg-type]
+        res.stages_s["read"], _ = _time(lambda: load_scenario(path), repeats)
+        scenario = load_scenario(path)
+    profile = load_profile(scenario.rules)
+    res.stages_s["currents"], _ = _time(lambda: design_segments(scenario, profile), repeats)
+    segments = design_segments(scenario, profile)
+    prep = prepare(scenario)
     catalogue = load_catalogue(profile.catalogue)
     res.stages_s["candidates"], _ = _time(
-        lambda: build_candidates(segments, profile, catalogue, prep.prices,  # type: ignore[arg-type]
+        lambda: build_candidates(segments, profile, catalogue, prep.prices,
                                  prep.economics.loss_pv_per_w), repeats)
     res.candidates = len(prep.table)
     problem = build_problem(prep, Objective.LIFECYCLE)
@@ -211,7 +212,7 @@ def measure(n_segments: int, repeats: int = 3, milp_limit_s: float = 60.0,
     return res
 
 
-def _child(n: int, repeats: int, milp_limit_s: float, run_milp: bool, queue) -> None:  # type: ignore[no-untyped-def]
+def _child(n: int, repeats: int, milp_limit_s: float, run_milp: bool, queue) -> None:
     try:
         queue.put(("ok", asdict(measure(n, repeats, milp_limit_s, run_milp))))
     except BaseException as exc:  # report, do not hang the parent

@@ -264,7 +264,7 @@ def build_candidates(
     return table, diagnosis
 
 
-def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes):  # type: ignore[no-untyped-def]
+def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes):
     """Per-set code ampacity and thermal ampacity of every row, from per-group tables."""
     # Terminal column: given per segment, or the profile's rule (device rating and size).
     terminal_c = sa.terminal_c[seg]
@@ -296,7 +296,7 @@ def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes
     return code_tab[group, size], thermal_tab[group, size]
 
 
-def _smallest_compliant(seg, mat, size, sets, ok, area_mm2, n):  # type: ignore[no-untyped-def]
+def _smallest_compliant(seg, mat, size, sets, ok, area_mm2, n):
     """Size index and sets of the compliant row with the least total area, per (seg, mat)."""
     min_size = np.zeros(2 * n, dtype=np.int64)
     min_sets = np.ones(2 * n, dtype=np.int64)
@@ -312,7 +312,7 @@ def _smallest_compliant(seg, mat, size, sets, ok, area_mm2, n):  # type: ignore[
     return min_size, min_sets
 
 
-def _by_material(mat: np.ndarray, func, dtype) -> np.ndarray:  # type: ignore[no-untyped-def]
+def _by_material(mat: np.ndarray, func, dtype) -> np.ndarray:
     out = np.zeros(mat.shape[0], dtype=dtype)
     for m in range(len(MATERIALS)):
         mask = mat == m
@@ -328,7 +328,7 @@ def conductor_label(catalogue: Catalogue, material: int, size_index: int, sets: 
 
 
 def _diagnose(n, seg, mat, size, sets, ampacity, vd, code_ok, pinned, code_ok_strict,
-              drop_ok, catalogue) -> LocalDiagnosis:  # type: ignore[no-untyped-def]
+              drop_ok, catalogue) -> LocalDiagnosis:
     best_amp = np.zeros(n)
     np.maximum.at(best_amp, seg, np.where(np.isfinite(ampacity), ampacity, 0.0))
     best_drop = np.full(n, np.inf)

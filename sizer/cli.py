@@ -45,7 +45,7 @@ def _cmd_reach(args: argparse.Namespace) -> int:
         parse_temperature_c,
     )
 
-    def located(field: str, parse: Callable[[str], object], text: str | None) -> object:
+    def located(field: str, parse: Callable[[str], float], text: str | None) -> float | None:
         if text is None:
             return None
         try:
@@ -53,22 +53,32 @@ def _cmd_reach(args: argparse.Namespace) -> int:
         except ScenarioError as exc:
             raise exc.located(field=field) from None
 
+    def required(field: str, parse: Callable[[str], float], text: str) -> float:
+        value = located(field, parse, text)
+        assert value is not None  # argparse makes these flags required
+        return value
+
+    try:
+        conductor = parse_conductor(args.conductor)
+    except ScenarioError as exc:
+        raise exc.located(field="--conductor") from None
+
     result = conductor_reach(
-        located("--conductor", parse_conductor, args.conductor),  # type: ignore[arg-type]
-        voltage_v=located("--voltage", lambda t: parse_quantity(t, "V"), args.voltage),
+        conductor,
+        voltage_v=required("--voltage", lambda t: parse_quantity(t, "V"), args.voltage),
         phases=args.phases,
-        limit_pct=located("--limit", parse_percent, args.limit),
-        insulation_c=located("--insulation", parse_temperature_c, args.insulation),
+        limit_pct=required("--limit", parse_percent, args.limit),
+        insulation_c=required("--insulation", parse_temperature_c, args.insulation),
         current_a=located("--current", lambda t: parse_quantity(t, "A"), args.current),
         ocpd_a=located("--ocpd", lambda t: parse_quantity(t, "A"), args.ocpd),
         power_factor=_power_factor(args.power_factor),
-        ambient_c=located("--ambient", parse_temperature_c, args.ambient),
+        ambient_c=required("--ambient", parse_temperature_c, args.ambient),
         rules=args.rules,
         installation=args.installation,
         terminal_c=located("--terminals", parse_temperature_c, args.terminals),
         conductor_temperature_c=located("--conductor-temperature", parse_temperature_c,
                                         args.conductor_temperature),
-    )  # type: ignore[arg-type]
+    )
     if args.json:
         from sizer.report.export import json_text
 
@@ -107,7 +117,7 @@ def _outputs(args: argparse.Namespace) -> list[Path]:
     return outs
 
 
-def _write_design_files(args: argparse.Namespace, design, scenario, extra=None) -> None:  # type: ignore[no-untyped-def]
+def _write_design_files(args: argparse.Namespace, design, scenario, extra=None) -> None:
     from sizer.report.export import atomic_write, design_document, json_text, schedule_csv
 
     protect = [Path(args.file)]
@@ -121,7 +131,7 @@ def _write_design_files(args: argparse.Namespace, design, scenario, extra=None) 
         write_xlsx(args.xlsx, design, protect=protect)
 
 
-def _prepare(args: argparse.Namespace, *, keep_pins: bool = False):  # type: ignore[no-untyped-def]
+def _prepare(args: argparse.Namespace, *, keep_pins: bool = False):
     from sizer.optimize import prepare
     from sizer.scenario import load_scenario
 

@@ -55,7 +55,7 @@ class ScenarioError(SizerError, ValueError):
         return (_rebuild, (type(self), self.message, self.file, self.node, self.field))
 
 
-def _rebuild(cls, message, file, node, field):  # type: ignore[no-untyped-def]
+def _rebuild(cls, message, file, node, field):
     return cls(message, file=file, node=node, field=field)
 
 

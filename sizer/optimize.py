@@ -70,7 +70,7 @@ def economic_params(scenario: Scenario) -> EconomicParams:
     e = scenario.economics
     return EconomicParams(
         energy_price_per_wh=e.energy_price_per_kwh / 1e3,
-        demand_per_w_year=demand_charge_per_w_year(e.demand_charge_per_kw_month),
+        demand_per_w_year=float(demand_charge_per_w_year(e.demand_charge_per_kw_month)),
         escalation=e.escalation,
         discount=e.discount_rate,
         load_growth=e.load_growth,

@@ -15,7 +15,7 @@ import pint
 
 from sizer.errors import UnitError
 
-ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+ureg: pint.UnitRegistry = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
 Q_ = ureg.Quantity
 
 # Conductor areas: 1 kcmil = 1000 circular mils (pint already knows circular_mil).

@@ -185,7 +185,7 @@ def verify_design(prep: Prepared, choice: np.ndarray) -> Verification:
     )
 
 
-def _withstand_findings(prep: Prepared, choice: np.ndarray, near_a: np.ndarray):  # type: ignore[no-untyped-def]
+def _withstand_findings(prep: Prepared, choice: np.ndarray, near_a: np.ndarray):
     t = prep.table
     p = prep.profile
     final = dict(p.short_circuit_final_c)

@@ -137,16 +137,20 @@ def atomic_write(path: str | Path, data: str | bytes, *, protect: Sequence[Path]
     folder = resolved.parent
     if not folder.is_dir():
         raise ScenarioError("its folder does not exist", file=str(target))
-    mode = "wb" if isinstance(data, bytes) else "w"
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
     try:
         # mkstemp makes the file private; give it the permissions a plain open() would.
         os.chmod(tmp, 0o666 & ~_umask())
-        with os.fdopen(fd, mode, **({} if mode == "wb" else {"encoding": "utf-8",
-                                                               "newline": ""})) as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
+        if isinstance(data, bytes):
+            with os.fdopen(fd, "wb") as fb:
+                fb.write(data)
+                fb.flush()
+                os.fsync(fb.fileno())
+        else:
+            with os.fdopen(fd, "w", encoding="utf-8", newline="") as ft:
+                ft.write(data)
+                ft.flush()
+                os.fsync(ft.fileno())
         os.replace(tmp, resolved)
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
