@@ -150,7 +150,8 @@ def _cmd_solve(args: argparse.Namespace) -> int:
         prep = _prepare(args)
         say(f"solving {len(prep.segments)} segments, {len(prep.table)} candidates")
         design, _ver = solve_verified(prep, Objective(args.objective), engine=args.engine,
-                                      solver=args.solver, time_limit_s=args.time_limit)
+                                      solver=args.solver, time_limit_s=args.time_limit,
+                                      motor_start=args.motor_start)
         say("writing files")
         _write_design_files(args, design, prep.scenario)
         if args.report and design.segments:
@@ -337,6 +338,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--csv", help="write the schedule as CSV here")
     p.add_argument("--xlsx", help="write the schedule as XLSX here (needs sizer[xlsx])")
     p.add_argument("--report", help="write the HTML report here")
+    p.add_argument("--motor-start", action="store_true",
+                   help="size so that every motor's starting dip meets the profile's limit")
     solver_options(p)
     p.set_defaults(run=_cmd_solve)
 

@@ -207,8 +207,13 @@ def empty_design(prep: Prepared, status: str, objective: str,
 def optimise(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
              engine: str = "auto", solver: str = "cbc", time_limit_s: float | None = None,
              limit_pct: np.ndarray | None = None, loss_weight: float | None = None,
-             **side: object) -> Design:
-    """Solve for the cheapest compliant design; infeasible problems come back diagnosed."""
+             motor_start: bool = False, **side: object) -> Design:
+    """Solve for the cheapest compliant design; infeasible problems come back diagnosed.
+
+    ``motor_start`` adds each motor's starting dip as a second path constraint (MILP).
+    """
+    if motor_start and any(seg.node.motor is not None for seg in prep.segments):
+        side["drop2_pct"], side["limit2_pct"] = motor_start_terms(prep)
     empty = np.diff(prep.table.offsets) == 0
     if empty.any():
         return empty_design(prep, SolveStatus.INFEASIBLE.value, objective.value,
@@ -217,8 +222,10 @@ def optimise(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
                             **side)
     solution = solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
     if solution.status is SolveStatus.INFEASIBLE:
-        return empty_design(prep, solution.status.value, objective.value,
-                            tuple(diagnose(prep, limit_pct)))
+        lines = diagnose(prep, limit_pct)
+        if "drop2_pct" in side:
+            lines = [*_motor_start_diagnosis(prep), *lines[:-1]] or lines
+        return empty_design(prep, solution.status.value, objective.value, tuple(lines))
     if solution.status is SolveStatus.ERROR or solution.choice is None:
         return empty_design(prep, SolveStatus.ERROR.value, objective.value,
                             (solution.message,))
@@ -275,6 +282,23 @@ def diagnose(prep: Prepared, limit_pct: np.ndarray | None = None) -> list[str]:
             f"lowest-drop conductors, limit {limits[s]:g} %; largest share on '{seg.id}' "
             f"({best[worst]:.2f} %); fix: {fixes}")
     return lines or ["no design satisfies the combined constraints"]
+
+
+def _motor_start_diagnosis(prep: Prepared) -> list[str]:
+    """Motors whose starting dip cannot meet the limit even with the stiffest conductors."""
+    dip, budget = motor_start_terms(prep)
+    best = np.full(len(prep.segments), np.inf)
+    np.minimum.at(best, prep.table.segment, dip)
+    path = path_drops_pct(prep.parent, best, np.zeros_like(best))
+    lines = []
+    for s in np.flatnonzero(path > budget + 1e-9).tolist():
+        seg = prep.segments[s]
+        lines.append(
+            f"motor '{seg.id}': starting drop at best {path[s]:.1f} % (linear estimate, budget "
+            f"{budget[s]:.1f} % for a {prep.profile.motor_start_dip_pct:g} % dip) with the "
+            f"lowest-impedance conductors; fix: more parallel sets (max_sets), a reduced-"
+            f"voltage start (lower start_multiple), a shorter run, or relax --motor-start")
+    return lines
 
 
 def _drop_fixes(seg: Segment, best_pct: float, target_pct: float) -> str:
@@ -378,3 +402,62 @@ def load_and_prepare(path: str | Path, *, keep_pins: bool = False) -> Prepared:
     from sizer.scenario import load_scenario
 
     return prepare(load_scenario(path), keep_pins=keep_pins)
+
+
+# --- motor starting as a second path constraint -------------------------------------------
+
+
+def motor_start_terms(prep: Prepared) -> tuple[np.ndarray, np.ndarray]:
+    """Per-candidate dip (%) under motor starting, and each motor's dip budget (%).
+
+    While a motor starts, its locked-rotor demand S = start_multiple × running VA at the
+    starting power factor flows through every segment on its path; each segment adds
+    S·(R cosφ + X sinφ)/V² (× 2 for a single-phase loop) and each transformer
+    (S/S_rated)(R% cosφ + X% sinφ). A segment shared by several motors is charged with
+    the largest starting demand below it, so the constraint is exact for one motor and
+    conservative for several. The budget of a motor is the profile's dip limit, turned
+    into a linear budget for a constant-impedance locked rotor, less the transformer
+    dips on its path; segments without a motor are unconstrained.
+    """
+    segs = prep.segments
+    n = len(segs)
+    start_va = np.zeros(n)
+    start_pf = np.ones(n)
+    budget = np.full(n, np.inf)
+    for i, seg in enumerate(segs):
+        motor = seg.node.motor
+        if motor is None:
+            continue
+        running = abs(seg.own_load_va) or motor.power_w / seg.power_factor
+        s_start = motor.start_multiple * running
+        # A locked rotor is a constant impedance: with a linear estimate d (per unit) of
+        # the path's drop at the full starting demand, the dip is d/(1 + d), so a dip
+        # limit L allows d = L/(1 - L).
+        limit = prep.profile.motor_start_dip_pct / 100.0
+        budget[i] = 100.0 * limit / (1.0 - limit)
+        k = i
+        while k >= 0:  # charge the whole path with the largest start below each segment
+            if s_start > start_va[k]:
+                start_va[k] = s_start
+                start_pf[k] = motor.start_pf
+            k = int(prep.parent[k])
+    # Transformers on the path take their share of each motor's budget.
+    for i in np.flatnonzero(np.isfinite(budget)).tolist():
+        k = i
+        s_start = start_va[i]
+        cos = start_pf[i]
+        sin = math.sqrt(1 - cos * cos)
+        while k >= 0:
+            tx = segs[k].node.transformer
+            if tx is not None and k != i:
+                r_pct = tx.impedance_pct / math.hypot(1.0, tx.x_r)
+                budget[i] -= s_start / tx.rating_va * (r_pct * cos + r_pct * tx.x_r * sin)
+            k = int(prep.parent[k])
+    t = prep.table
+    s = t.segment
+    cos = start_pf[s]
+    sin = np.sqrt(1 - cos * cos)
+    volts = np.array([seg.voltage_v for seg in segs])[s]
+    loop = np.where(np.array([seg.phases for seg in segs])[s] == 1, 2.0, 1.0)
+    dip = 100.0 * loop * start_va[s] * (t.r_ohm * cos + t.x_ohm * sin) / volts**2
+    return dip, budget

@@ -234,7 +234,8 @@ def with_verification(prep: Prepared, design: Design, choice: np.ndarray,
 
 def solve_verified(prep: Prepared, objective: Objective, *, engine: str = "auto",
                    solver: str = "cbc", time_limit_s: float | None = None,
-                   max_rounds: int = 5) -> tuple[Design, Verification | None]:
+                   max_rounds: int = 5, motor_start: bool = False,
+                   ) -> tuple[Design, Verification | None]:
     """Optimise, then close the loop with the AC load flow.
 
     The optimiser's linear drop estimate slightly under-states the load flow's drop; where
@@ -245,7 +246,8 @@ def solve_verified(prep: Prepared, objective: Objective, *, engine: str = "auto"
     rounds = 0
     while True:
         design = optimise(prep, objective, engine=engine, solver=solver,
-                          time_limit_s=time_limit_s, limit_pct=limits)
+                          time_limit_s=time_limit_s, limit_pct=limits,
+                          motor_start=motor_start)
         if not design.segments:
             return design, None
         audit(prep, design)
