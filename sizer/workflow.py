@@ -139,12 +139,19 @@ def network_of(prep: Prepared, choice: np.ndarray) -> Network:
             rating[i] = tx.rating_va
             z_pct[i] = complex(r_pct, r_pct * tx.x_r)
             secondary[i] = tx.secondary_v
+    # Loads at the design basis: each scaled by the demand factors of the panels above it,
+    # so the source carries the same diversified demand as the design currents assume.
+    diversity = np.ones(n)
+    for i in range(n):
+        p = int(prep.parent[i])
+        if p >= 0:
+            diversity[i] = diversity[p] * segs[p].node.demand_factor
     return Network(
         parent=prep.parent,
         z_ohm=t.r_ohm[choice] + 1j * t.x_ohm[choice],
         circuit_v=np.array([s.voltage_v for s in segs], dtype=float),
         phases=np.array([s.phases for s in segs], dtype=np.int64),
-        load_va=np.array([s.own_load_va for s in segs], dtype=complex),
+        load_va=np.array([s.own_load_va for s in segs], dtype=complex) * diversity,
         xfmr_rating_va=rating,
         xfmr_z_pct=z_pct,
         xfmr_secondary_v=secondary,
