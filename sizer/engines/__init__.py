@@ -10,9 +10,9 @@ from __future__ import annotations
 
 import dataclasses
 
+from sizer.engines import tree as _tree
 from sizer.engines.milp import SOLVERS, solve_milp, solver_available
 from sizer.engines.problem import Problem, Solution, SolveStatus
-from sizer.engines.tree import solve_tree
 from sizer.errors import ScenarioError
 
 __all__ = ["ENGINES", "SOLVERS", "Problem", "Solution", "SolveStatus", "solve",
@@ -38,7 +38,7 @@ def solve(problem: Problem, engine: str = "auto", solver: str = "cbc",
                             field="solver")
     if engine == "milp" or (engine == "auto" and problem.has_side_constraints):
         return solve_milp(problem, solver=solver, time_limit_s=time_limit_s)
-    first = solve_tree(problem)
+    first = _tree.solve_tree(problem, max_front=_tree.DEFAULT_MAX_FRONT)
     if engine == "tree" or first.status is not SolveStatus.ERROR:
         return first
     fallback = solve_milp(problem, solver=solver, time_limit_s=time_limit_s)

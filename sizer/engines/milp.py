@@ -8,13 +8,14 @@ Model, with x_c ∈ {0, 1} per candidate row c, rows R(s) of segment s, parent p
 
     minimise   Σ_c cost_c · x_c
     one row    Σ_{c ∈ R(s)} x_c = 1                                   for every s
-    path drop  u_s − u_{p(s)} − Σ_{c ∈ R(s)} drop_c · x_c = fixed_s   (u_{−1} ≡ 0)
-               u_s ≤ limit_s                                          (all in %)
+    path drop  u_s − u_{p(s)} − Σ_{c ∈ R(s)} drop_c · x_c ≥ fixed_s   (u_{−1} ≡ 0)
+               least_s ≤ u_s ≤ limit_s                                (all in %)
 
-u_s is the cumulative drop at s's far end, created only for segments with a finite
-limit at or below them, so the model stays sparse (one row per segment, no per-path
-rows). The second drop constraint repeats the path rows with drop2/limit2. Caps are
-single rows over all x. A group G with keys K: y_{G,k} ∈ {0, 1}, Σ_k y_{G,k} = 1 and
+u_s bounds the cumulative drop at s's far end from above; it exists only for segments
+with a finite limit at or below them, so the model stays sparse (one row per segment, no
+per-path rows); least_s is the least cumulative drop any choice gives. The second
+drop constraint repeats the path rows with drop2/limit2. Caps are single rows over
+all x. A group G with keys K: y_{G,k} ∈ {0, 1}, Σ_k y_{G,k} = 1 and
 Σ_{c ∈ R(s), key_c = k} x_c = y_{G,k} for every s ∈ G, k ∈ K.
 """
 
@@ -71,7 +72,10 @@ def _silence_highs_banner() -> None:
     except ImportError:
         return
     sys.stdout.flush()
-    saved = os.dup(1)
+    try:
+        saved = os.dup(1)
+    except OSError:  # no usable stdout: nothing to protect
+        return
     try:
         with open(os.devnull, "w") as null:
             os.dup2(null.fileno(), 1)
@@ -143,28 +147,35 @@ def _needs_path(parent: list[int], limit: np.ndarray) -> list[bool]:
 def add_path_drop_constraints(prob: pulp.LpProblem, x: list[pulp.LpVariable],
                               problem: Problem, drop: np.ndarray, fixed: np.ndarray,
                               limit: np.ndarray, tag: str) -> int:
-    """Add u_s = u_parent + Σ drop·x + fixed_s, u_s ≤ limit_s (drops in %).
+    """Add u_s ≥ u_parent + Σ drop·x + fixed_s with least_s ≤ u_s ≤ limit_s (drops in %).
 
-    One equality per segment that has a finite limit at or below it; returns how many.
+    One row per segment that has a finite limit at or below it; returns how many.
+    ``least_s`` (least possible cumulative drop) is a valid bound that also keeps CBC
+    2.10's preprocessing from mishandling free variables (seen: a wrong "optimal").
     """
     parent = problem.parent.tolist()
     off = problem.offsets.tolist()
     need = _needs_path(parent, limit)
     neg_drop = (-drop).tolist()
     fixed_list = fixed.tolist()
+    least_own = (np.minimum.reduceat(drop, problem.offsets[:-1]) + fixed).tolist()
+    least = [0.0] * len(parent)
     u: list[pulp.LpVariable | None] = [None] * len(parent)
     added = 0
     for s, p in enumerate(parent):
+        least[s] = least_own[s] + (least[p] if p >= 0 else 0.0)
         if not need[s]:
             continue
         ub = float(limit[s]) if math.isfinite(limit[s]) else None
-        u[s] = prob.add_variable(f"{tag}_u{s}", upBound=ub)
+        # lb > ub makes CBC fail outright; leave an impossible limit to the solver's proof.
+        lb = least[s] if ub is None else min(least[s], ub)
+        u[s] = prob.add_variable(f"{tag}_u{s}", lowBound=lb, upBound=ub)
         terms = [(u[s], 1.0)]
         if p >= 0:
             terms.append((u[p], -1.0))
         a, b = off[s], off[s + 1]
         terms.extend(zip(x[a:b], neg_drop[a:b], strict=True))
-        _add(prob, terms, pulp.LpConstraintEQ, fixed_list[s], f"{tag}_path{s}")
+        _add(prob, terms, pulp.LpConstraintGE, fixed_list[s], f"{tag}_path{s}")
         added += 1
     return added
 
@@ -238,7 +249,10 @@ def map_status(status: int, sol_status: int, time_limited: bool
     return SolveStatus.ERROR, False, False
 
 
-_CBC_GAP = re.compile(r"^Gap:\s*([-+0-9.eE]+)", re.MULTILINE)
+_CBC_NUMBER = r"\s*([-+0-9.eE]+)\s*$"
+_CBC_OBJECTIVE = re.compile(r"^Objective value:" + _CBC_NUMBER, re.MULTILINE)
+_CBC_BOUND = re.compile(r"^Lower bound:" + _CBC_NUMBER, re.MULTILINE)
+_CBC_GAP = re.compile(r"^Gap:" + _CBC_NUMBER, re.MULTILINE)
 
 
 def _run(prob: pulp.LpProblem, solver: pulp.LpSolver) -> tuple[int, int]:
@@ -254,11 +268,18 @@ def _read_gap(prob: pulp.LpProblem, solver_name: str, log_path: str | None) -> f
         with contextlib.suppress(Exception):  # highspy versions differ; a gap is a nicety
             return float(model.getInfo().mip_gap)  # type: ignore[union-attr]
         return None
-    if log_path and os.path.exists(log_path):
-        with open(log_path, encoding="utf-8", errors="replace") as fh:
-            found = _CBC_GAP.findall(fh.read())
-        if found:
-            return float(found[-1])
+    if not (log_path and os.path.exists(log_path)):
+        return None
+    with open(log_path, encoding="utf-8", errors="replace") as fh:
+        log = fh.read()
+    objective, bound = _CBC_OBJECTIVE.findall(log), _CBC_BOUND.findall(log)
+    with contextlib.suppress(ValueError, ZeroDivisionError):
+        if objective and bound:  # CBC prints its own gap with two decimals only
+            obj = float(objective[-1])
+            return abs(obj - float(bound[-1])) / abs(obj)
+        gap = _CBC_GAP.findall(log)
+        if gap:
+            return float(gap[-1])
     return None
 
 

@@ -69,7 +69,7 @@ def _as_int(name: str, value: object, size: int | None = None) -> np.ndarray:
     return _frozen(arr.astype(np.int64))
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)  # arrays inside: compare by identity
 class Problem:
     """One candidate per segment, least cost, path voltage-drop limits.
 
@@ -189,7 +189,7 @@ class Problem:
             self.capex_cap is not None
             or self.loss_pv_cap is not None
             or any(g.size > 1 for g in self.same_choice_groups)
-            or (self.drop2_pct is not None and bool(np.any(np.isfinite(self.limit2_pct))))
+            or (self.limit2_pct is not None and bool(np.any(np.isfinite(self.limit2_pct))))
         )
 
     def path_sum(self, per_row: np.ndarray, choice: np.ndarray,
@@ -238,7 +238,7 @@ class Problem:
         return out
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)  # arrays inside: compare by identity
 class Solution:
     """What an engine found.
 

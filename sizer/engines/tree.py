@@ -27,9 +27,11 @@ Exact reductions keep the fronts small, none of them approximate:
   computed per budget rather than by the full sum, which keeps the wide merges near the
   root cheap.
 
-Drops are placed on the finest binary grid at which float64 sums are exact (2⁻³⁰ %
-for any realistic problem, far below the tolerance), so budgets computed top-down and
-requirements computed bottom-up compare exactly; there is no coarser discretisation.
+Drops are placed on the finest binary grid at which float64 sums along a path are exact
+(about 1e-12 % for realistic problems, far below the tolerance), so budgets computed
+top-down and requirements computed bottom-up compare exactly; the tolerance is widened
+by the rounding (a step per segment of depth), so a limit met exactly is met. There is
+no coarser discretisation.
 """
 
 from __future__ import annotations
@@ -38,15 +40,14 @@ import time
 
 import numpy as np
 
-from sizer.errors import ScenarioError
 from sizer.engines.problem import Problem, Solution, SolveStatus
+from sizer.errors import ScenarioError
 
 __all__ = ["DEFAULT_MAX_FRONT", "DEFAULT_MAX_QUERIES", "exact_grid_pct", "solve_tree",
            "undominated_rows"]
 
 DEFAULT_MAX_FRONT = 100_000
-DEFAULT_MAX_QUERIES = 4096
-_GRID_BITS = 30
+DEFAULT_MAX_QUERIES = 1024
 _ENGINE = "tree"
 
 
@@ -61,38 +62,54 @@ def undominated_rows(problem: Problem, drop_pct: np.ndarray | None = None
     drop = problem.drop_pct if drop_pct is None else drop_pct
     n = problem.n_segments
     seg = problem.segment_of_row
-    rows = np.arange(problem.n_candidates)
-    order = np.lexsort((rows, problem.cost, drop, seg))
-    seg_sorted = seg[order]
-    cost_sorted = problem.cost[order]
-    pos = rows - problem.offsets[seg_sorted]
-    # One padded row per segment, so the running minimum runs over all segments at once.
+    pos = np.arange(problem.n_candidates) - problem.offsets[seg]
+    # One padded row per segment, so sorting and the running minimum run over all
+    # segments at once; padding (inf cost) is never kept.
     width = int(np.diff(problem.offsets).max())
-    pad = np.full((n, width), np.inf)
-    pad[seg_sorted, pos] = cost_sorted
-    best_before = np.empty_like(pad)
+    pad_d = np.full((n, width), np.inf)
+    pad_c = np.full((n, width), np.inf)
+    pad_d[seg, pos] = drop
+    pad_c[seg, pos] = problem.cost
+    order = np.lexsort((pad_c, pad_d), axis=1)  # drop, then cost, then position
+    cost_sorted = np.take_along_axis(pad_c, order, axis=1)
+    best_before = np.empty_like(cost_sorted)
     best_before[:, 0] = np.inf
-    np.minimum.accumulate(pad[:, :-1], axis=1, out=best_before[:, 1:])
-    keep = cost_sorted < best_before[seg_sorted, pos]
+    np.minimum.accumulate(cost_sorted[:, :-1], axis=1, out=best_before[:, 1:])
+    keep = cost_sorted < best_before
     kept_offsets = np.zeros(n + 1, dtype=np.int64)
-    np.cumsum(np.bincount(seg_sorted[keep], minlength=n), out=kept_offsets[1:])
-    return order[keep], kept_offsets
+    np.cumsum(keep.sum(axis=1), out=kept_offsets[1:])
+    return (problem.offsets[:-1, None] + order)[keep], kept_offsets
+
+
+def _path_extent(problem: Problem) -> tuple[float, int]:
+    """Largest Σ |drop| + |fixed| along any path (worst rows), and the deepest path."""
+    own = (np.maximum.reduceat(np.abs(problem.drop_pct), problem.offsets[:-1])
+           + np.abs(problem.fixed_drop_pct)).tolist()
+    depth = [0] * len(own)
+    for s, p in enumerate(problem.parent.tolist()):
+        if p >= 0:
+            own[s] += own[p]
+            depth[s] = depth[p] + 1
+    return max(own), max(depth) + 1
 
 
 def exact_grid_pct(problem: Problem) -> float:
     """Step of the finest binary grid on which every path sum of drops is exact in float64.
 
-    Drops, fixed drops and limits rounded to multiples of this step (2⁻³⁰ % ≈ 9.3e-10 %
-    for any realistic problem) add and subtract without rounding error, so the program
-    compares requirements and budgets exactly whatever the order of the sums.
+    Drops, fixed drops and limits rounded to multiples of this step (2⁻⁴⁰ % ≈ 1e-12 %
+    or finer for realistic problems) add and subtract without rounding error, so the
+    program compares requirements and budgets exactly whatever the order of the sums.
     """
-    bound = (float(np.sum(np.maximum.reduceat(np.abs(problem.drop_pct),
-                                               problem.offsets[:-1])))
-             + float(np.sum(np.abs(problem.fixed_drop_pct))))
+    return _grid(problem)[0]
+
+
+def _grid(problem: Problem) -> tuple[float, int]:
+    """(grid step in %, deepest path in segments)."""
+    extent, depth = _path_extent(problem)
     finite = problem.limit_pct[np.isfinite(problem.limit_pct)]
-    bound += float(np.max(np.abs(finite))) if finite.size else 0.0
-    bits = min(_GRID_BITS, 52 - int(np.ceil(np.log2(bound + 2.0))))
-    return float(2.0 ** -bits)
+    bound = extent + (float(np.max(np.abs(finite))) if finite.size else 0.0) + 2.0
+    # Every magnitude met stays below 2**51 steps, so sums of two are exact.
+    return float(2.0 ** -(51 - int(np.ceil(np.log2(bound))))), depth
 
 
 def _on_grid(values: np.ndarray, step: float) -> np.ndarray:
@@ -117,83 +134,108 @@ def _failure(problem: Problem, status: SolveStatus, message: str, t0: float) -> 
     )
 
 
+def _bound_message(where: str, max_front: int) -> str:
+    return (f"tree engine: the Pareto front at {where} exceeds the bound of {max_front} "
+            "points; use the MILP engine")
+
+
+def _last_of_runs(values: np.ndarray) -> np.ndarray:
+    """Mask of the last element of every run of equal values."""
+    last = np.empty(values.size, dtype=bool)
+    if values.size:
+        np.not_equal(values[:-1], values[1:], out=last[:-1])
+        last[-1] = True
+    return last
+
+
 def _merge_children(kids: list[int], lo: float, f_req: list[np.ndarray],
-                    f_cost: list[np.ndarray], f_delta: list[np.ndarray]
-                    ) -> tuple[np.ndarray, np.ndarray]:
+                    f_cost: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
     """Staircase sum of the children's fronts, floored at the segment's own ``-limit``.
 
     Returns breakpoints ``r`` ascending and the least total cost with every child's
     requirement ≤ r.
     """
-    if not kids:
-        return np.array([lo]), np.zeros(1)
     if len(kids) == 1:
         r, c = f_req[kids[0]], f_cost[kids[0]]
         if r[0] >= lo:
             return r, c
         i = int(np.searchsorted(r, lo, side="right")) - 1
         return np.concatenate(([lo], r[i + 1:])), c[i:]
-    start = max(lo, max(float(f_req[k][0]) for k in kids))
+    start = lo
+    for k in kids:
+        first = float(f_req[k][0])
+        if first > start:
+            start = first
     reqs = np.concatenate([f_req[k] for k in kids])
+    costs = np.concatenate([f_cost[k] for k in kids])
+    # Each child's least cost steps down at its breakpoints; the running sum of all
+    # steps in breakpoint order is Σ_children least cost at r once every child has
+    # started (r ≥ start).
+    steps = np.empty_like(costs)
+    steps[0] = costs[0]
+    np.subtract(costs[1:], costs[:-1], out=steps[1:])
+    firsts = np.cumsum([f_req[k].size for k in kids[:-1]])
+    steps[firsts] = costs[firsts]
     order = np.argsort(reqs, kind="stable")
     rs = reqs[order]
-    # Each child's cost steps down by its deltas as r grows, so the running sum over
-    # all breakpoints is Σ_children least cost at r once every child has started.
-    cs = np.cumsum(np.concatenate([f_delta[k] for k in kids])[order])
+    cs = np.cumsum(steps[order])
     i0 = int(np.searchsorted(rs, start, side="right")) - 1
     tail_r = rs[i0 + 1:]
     if not tail_r.size:
         return np.array([start]), cs[i0:i0 + 1]
-    last = np.empty(tail_r.size, dtype=bool)  # last of each run of equal breakpoints
-    np.not_equal(tail_r[:-1], tail_r[1:], out=last[:-1])
-    last[-1] = True
+    last = _last_of_runs(tail_r)
     return (np.concatenate(([start], tail_r[last])),
             np.concatenate((cs[i0:i0 + 1], cs[i0 + 1:][last])))
 
 
 def _pareto(req: np.ndarray, cost: np.ndarray) -> np.ndarray:
-    """Indices of the non-dominated points, by requirement ascending (cost descending)."""
-    order = np.lexsort((cost, req))
+    """Indices of the non-dominated points, by requirement ascending (cost descending).
+
+    Of exact ties the lowest index survives.
+    """
+    order = np.argsort(req, kind="stable")  # inputs are a few sorted runs: cheap
     c = cost[order]
     keep = np.empty(c.size, dtype=bool)
-    if c.size:
-        keep[0] = True
-        np.less(c[1:], np.minimum.accumulate(c)[:-1], out=keep[1:])
-    return order[keep]
+    if not c.size:
+        return order
+    keep[0] = True
+    np.less(c[1:], np.minimum.accumulate(c)[:-1], out=keep[1:])
+    order = order[keep]
+    return order[_last_of_runs(req[order])]  # equal requirement: the last is cheapest
 
 
 def _query_sets(children: list[list[int]], parent: np.ndarray, own_d: np.ndarray,
-                kept_off: np.ndarray, rmin: list[float], rmax: list[float],
+                kept_off: list[int], rmin: list[float], rmax: list[float],
                 tol_pct: float, max_queries: int) -> list[np.ndarray | None]:
     """Every budget (requirement allowed at a segment's top) the tree above can offer.
 
-    Budget = tol − Σ ancestors' (drop + fixed), over all choices of the ancestors, kept
-    only for segments near the root where the set stays below ``max_queries``; None
-    elsewhere. Budgets above ``rmax`` collapse to it, budgets below ``rmin`` are
-    infeasible and dropped.
+    Budget = tol − Σ ancestors' (drop + fixed), over all choices of the ancestors. Kept
+    for segments near the root, where the set has at most ``max_queries`` values; None
+    elsewhere. Budgets above ``rmax`` act as ``rmax``; budgets below ``rmin`` cannot be
+    met and are left out.
     """
     n = parent.size
     queries: list[np.ndarray | None] = [None] * n
-    for s in range(n):
-        if parent[s] < 0:
-            queries[s] = np.array([tol_pct])
-    off = kept_off.tolist()
+    for s in np.flatnonzero(parent < 0).tolist():
+        queries[s] = np.array([tol_pct])
     for s in range(n):
         q = queries[s]
-        kids = children[s]
+        kids = [k for k in children[s] if rmax[k] != -np.inf]
         if q is None or not kids:
             continue
-        d = own_d[off[s]:off[s + 1]]
-        if q.size * d.size > 64 * max_queries:
+        d = own_d[kept_off[s]:kept_off[s + 1]]
+        raw = (q[:, None] - d[None, :]).ravel()
+        lo = min(rmin[k] for k in kids)
+        hi = max(rmax[k] for k in kids)
+        raw = raw[raw >= lo]
+        if raw.size > 16 * max_queries:  # would not stay small below: not worth sorting
             continue
-        base = np.unique((q[:, None] - d[None, :]).ravel())
+        base = np.unique(np.minimum(raw, hi))
         for k in kids:
-            if rmax[k] == -np.inf:
-                continue
-            lo = int(np.searchsorted(base, rmin[k], side="left"))
-            hi = int(np.searchsorted(base, rmax[k], side="right"))
-            qk = base[lo:hi]
-            if hi < base.size and (not qk.size or qk[-1] < rmax[k]):
+            a = int(np.searchsorted(base, rmin[k], side="left"))
+            b = int(np.searchsorted(base, rmax[k], side="right"))
+            qk = base[a:b]
+            if b < base.size and (not qk.size or qk[-1] < rmax[k]):
                 qk = np.append(qk, rmax[k])
             if qk.size <= max_queries:
                 queries[k] = qk
@@ -218,19 +260,21 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
     parent = problem.parent
     parent_list = parent.tolist()
     children = _children(parent)
-    # Every drop on one binary grid: sums below are then exact in any order.
-    step = exact_grid_pct(problem)
+    # Every drop on one binary grid: the sums below are then exact in any order. Rounding
+    # moves a path sum by at most a step per segment, which the tolerance absorbs, so a
+    # limit met exactly is met here too.
+    step, depth = _grid(problem)
     drop = _on_grid(problem.drop_pct, step)
-    tol_pct = float(np.ceil(tol_pct / step) * step)
-    floor = (-_on_grid(problem.limit_pct, step)).tolist()  # own limit as a requirement
-    rows, kept_off = undominated_rows(problem, drop)
+    tol_pct = float(np.ceil(tol_pct / step + depth + 1) * step)
+    floor_arr = -_on_grid(problem.limit_pct, step)  # a segment's own limit as requirement
+    floor = floor_arr.tolist()
+    rows, kept = undominated_rows(problem, drop)
     n_undominated = rows.size
-    own_d_all = drop[rows] + np.repeat(_on_grid(problem.fixed_drop_pct, step),
-                                       np.diff(kept_off))
+    own_d_all = drop[rows] + np.repeat(_on_grid(problem.fixed_drop_pct, step), np.diff(kept))
 
     # Least requirement of every subtree (least-drop rows throughout), bottom-up, and the
     # least drop above every segment, top-down.
-    least = own_d_all[kept_off[:-1]].tolist()
+    least = own_d_all[kept[:-1]].tolist()
     below_min = list(floor)
     rmin = [0.0] * n
     for s in range(n - 1, -1, -1):
@@ -244,9 +288,9 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
             above_min[s] = above_min[p] + least[p]
     # A row that breaks a limit even with least drops everywhere else is never usable.
     slack = tol_pct - np.asarray(below_min) - np.asarray(above_min)
-    usable = own_d_all <= np.repeat(slack, np.diff(kept_off))
+    usable = own_d_all <= np.repeat(slack, np.diff(kept))
     if not np.all(usable):
-        counts = np.bincount(np.repeat(np.arange(n), np.diff(kept_off))[usable], minlength=n)
+        counts = np.bincount(np.repeat(np.arange(n), np.diff(kept))[usable], minlength=n)
         if np.any(counts == 0):
             s = int(np.flatnonzero(counts == 0)[0])
             return _failure(
@@ -255,14 +299,14 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
                 f"limits even with the least drop everywhere else (excess "
                 f"{least[s] - slack[s] + tol_pct:.6g} %)", t0)
         rows, own_d_all = rows[usable], own_d_all[usable]
-        kept_off = np.concatenate(([0], np.cumsum(counts)))
+        kept = np.concatenate(([0], np.cumsum(counts)))
     own_c_all = problem.cost[rows]
-    off = kept_off.tolist()
+    off = kept.tolist()
 
     # Greatest requirement of every subtree (cheapest rows throughout), bottom-up, and
     # the greatest drop above every segment, top-down: every budget offered to a segment
     # is at least tol − that drop, so the cheapest point within it is all that matters.
-    most = own_d_all[kept_off[1:] - 1].tolist()
+    most = own_d_all[kept[1:] - 1].tolist()
     below_max = list(floor)
     rmax = [0.0] * n
     for s in range(n - 1, -1, -1):
@@ -275,64 +319,73 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
         if p >= 0:
             low_budget[s] = low_budget[p] - most[p]
     high_budget = [tol_pct - a for a in above_min]
-    queries = _query_sets(children, parent, own_d_all, kept_off, rmin, rmax, tol_pct,
+    queries = _query_sets(children, parent, own_d_all, off, rmin, rmax, tol_pct,
                           max_queries)
 
     f_req: list[np.ndarray] = [np.empty(0)] * n
     f_cost: list[np.ndarray] = [np.empty(0)] * n
-    f_delta: list[np.ndarray] = [np.empty(0)] * n
     f_row: list[np.ndarray] = [np.empty(0, dtype=np.int64)] * n
-    f_below: list[np.ndarray] = [np.empty(0)] * n
-    largest = 0
+    f_below: list[np.ndarray | float] = [0.0] * n  # one value when the same for all points
+    largest = _leaf_fronts(children, floor_arr, own_d_all, own_c_all, rows, kept,
+                           np.asarray(low_budget), np.asarray(high_budget),
+                           f_req, f_cost, f_row, f_below)
+    if largest > max_front:
+        return _failure(problem, SolveStatus.ERROR, _bound_message("a leaf", max_front), t0)
     for s in range(n - 1, -1, -1):
-        below_r, below_c = _merge_children(children[s], floor[s], f_req, f_cost, f_delta)
-        a, b = off[s], off[s + 1]
-        own_c = own_c_all[a:b]
-        own_d = own_d_all[a:b]
-        own_rows = rows[a:b]
+        kids = children[s]
         q = queries[s]
-        if below_r.size == 1:
-            r0 = float(below_r[0])
-            if r0 == -np.inf:  # nothing constrained below: only the cheapest row matters
-                req, cost, row, rb = below_r, own_c[-1:] + below_c[0], own_rows[-1:], below_r
-            else:  # drop ascending, cost descending: already a front
-                req = own_d + r0
-                m = int(np.searchsorted(req, high_budget[s], side="right"))
-                req, cost, row = req[:m], own_c[:m] + below_c[0], own_rows[:m]
-                rb = np.full(m, r0)
-        elif q is not None and q.size < below_r.size:
-            # Answer each budget the ancestors can offer: best row and merged point.
-            idx = np.searchsorted(below_r, q[:, None] - own_d[None, :], side="right") - 1
-            total = np.where(idx >= 0, own_c[None, :] + below_c[np.maximum(idx, 0)], np.inf)
-            best = np.argmin(total, axis=1)
-            hit = np.arange(q.size)
-            found = total[hit, best] < np.inf
-            best, bidx = best[found], idx[hit, best][found]
-            req = own_d[best] + below_r[bidx]
-            cost = own_c[best] + below_c[bidx]
-            keep = _pareto(req, cost)
-            req, cost = req[keep], cost[keep]
-            row, rb = own_rows[best[keep]], below_r[bidx[keep]]
+        if not kids:
+            req, cost, row, rb = f_req[s], f_cost[s], f_row[s], f_below[s]
         else:
-            req = (own_d[:, None] + below_r[None, :]).ravel()
-            ok = np.flatnonzero(req <= high_budget[s])
-            req = req[ok]
-            cost = (own_c[:, None] + below_c[None, :]).ravel()[ok]
-            keep = _pareto(req, cost)
-            req, cost, pick = req[keep], cost[keep], ok[keep]
-            row, rb = own_rows[pick // below_r.size], below_r[pick % below_r.size]
-        if req.size > 1:
-            # Points below the least budget ever offered: only the cheapest can be used.
-            i = int(np.searchsorted(req, low_budget[s], side="right")) - 1
-            if q is not None and q.size < req.size:
-                used = np.searchsorted(req, q, side="right") - 1
-                sel = np.unique(used[used >= 0])
-            elif i > 0:
-                sel = slice(i, None)  # type: ignore[assignment]
+            below_r, below_c = _merge_children(kids, floor[s], f_req, f_cost)
+            a, b = off[s], off[s + 1]
+            own_c, own_d, own_rows = own_c_all[a:b], own_d_all[a:b], rows[a:b]
+            if below_r.size == 1:
+                r0 = float(below_r[0])
+                rb = r0
+                if r0 == -np.inf:  # nothing constrained below: only the cheapest row counts
+                    req, cost, row = below_r, own_c[-1:] + below_c[0], own_rows[-1:]
+                else:  # drop ascending, cost descending: already a front
+                    req = own_d + r0
+                    m = int(np.searchsorted(req, high_budget[s], side="right"))
+                    req, cost, row = req[:m], own_c[:m] + below_c[0], own_rows[:m]
+            elif q is not None and q.size < below_r.size:
+                # Answer each budget the ancestors can offer: best row and merged point.
+                idx = np.searchsorted(below_r, q[:, None] - own_d[None, :], side="right") - 1
+                total = np.where(idx >= 0, own_c[None, :] + below_c[np.maximum(idx, 0)],
+                                 np.inf)
+                best = np.argmin(total, axis=1)
+                hit = np.arange(q.size)
+                found = total[hit, best] < np.inf
+                best, bidx = best[found], idx[hit, best][found]
+                req = own_d[best] + below_r[bidx]
+                cost = own_c[best] + below_c[bidx]
+                keep = _pareto(req, cost)
+                req, cost = req[keep], cost[keep]
+                row, rb = own_rows[best[keep]], below_r[bidx[keep]]
             else:
-                sel = None  # type: ignore[assignment]
-            if sel is not None:
-                req, cost, row, rb = req[sel], cost[sel], row[sel], rb[sel]
+                req = (own_d[:, None] + below_r[None, :]).ravel()
+                ok = np.flatnonzero(req <= high_budget[s])
+                req = req[ok]
+                cost = (own_c[:, None] + below_c[None, :]).ravel()[ok]
+                keep = _pareto(req, cost)
+                req, cost, pick = req[keep], cost[keep], ok[keep]
+                row, rb = own_rows[pick // below_r.size], below_r[pick % below_r.size]
+            if req.size > 1:
+                # Of the points within the least budget ever offered only the last
+                # (cheapest) can be chosen.
+                i = int(np.searchsorted(req, low_budget[s], side="right")) - 1
+                if i > 0:
+                    req, cost, row = req[i:], cost[i:], row[i:]
+                    if not isinstance(rb, float):
+                        rb = rb[i:]
+        if q is not None and q.size < req.size:
+            # Keep only the points that answer a budget the ancestors can offer.
+            used = np.searchsorted(req, q, side="right") - 1
+            sel = np.unique(used[used >= 0])
+            req, cost, row = req[sel], cost[sel], row[sel]
+            if not isinstance(rb, float):
+                rb = rb[sel]
         if req.size == 0:
             return _failure(
                 problem, SolveStatus.INFEASIBLE,
@@ -341,12 +394,9 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
         if req.size > largest:
             largest = req.size
             if largest > max_front:
-                return _failure(
-                    problem, SolveStatus.ERROR,
-                    f"tree engine: the Pareto front at segment {s} exceeds the bound of "
-                    f"{max_front} points; use the MILP engine", t0)
+                return _failure(problem, SolveStatus.ERROR,
+                                _bound_message(f"segment {s}", max_front), t0)
         f_req[s], f_cost[s], f_row[s], f_below[s] = req, cost, row, rb
-        f_delta[s] = np.diff(cost, prepend=0.0)
 
     # Each root takes its cheapest feasible point; rebuild the design top-down.
     point = [0] * n
@@ -354,21 +404,20 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
     for s, p in enumerate(parent_list):
         if p < 0:
             i = int(np.searchsorted(f_req[s], tol_pct, side="right")) - 1
-            if i < 0:
+            if i < 0:  # pragma: no cover - fronts keep only points within the budget
                 return _failure(
                     problem, SolveStatus.INFEASIBLE,
-                    f"tree engine: the subtree fed by segment {s} cannot meet its limits "
-                    f"(least excess drop {float(f_req[s][0]):.6g} %)", t0)
+                    f"tree engine: the subtree fed by segment {s} cannot meet its limits", t0)
             point[s] = i
         i = point[s]
         choice[s] = f_row[s][i]
-        rb = f_below[s][i]
+        fb = f_below[s]
+        rb = fb if isinstance(fb, float) else float(fb[i])
         for k in children[s]:
             point[k] = int(np.searchsorted(f_req[k], rb, side="right")) - 1
 
-    # Rounding to the grid moves a path sum by at most half a step per segment.
-    broken = problem.violations(choice, tol_pct=tol_pct + n * step)
-    if broken:  # a guard against a bug, never expected
+    broken = problem.violations(choice, tol_pct=tol_pct + (depth + 1) * step)
+    if broken:  # pragma: no cover - a guard against a bug, never expected
         return _failure(problem, SolveStatus.ERROR,
                         "tree engine: internal check failed: " + "; ".join(broken[:3]), t0)
     return Solution(
@@ -380,3 +429,43 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
                  f"{largest} points"),
         seconds=time.perf_counter() - t0,
     )
+
+
+def _leaf_fronts(children: list[list[int]], floor: np.ndarray, own_d: np.ndarray,
+                 own_c: np.ndarray, rows: np.ndarray, kept: np.ndarray,
+                 low_budget: np.ndarray, high_budget: np.ndarray,
+                 f_req: list[np.ndarray], f_cost: list[np.ndarray],
+                 f_row: list[np.ndarray], f_below: list[np.ndarray | float]) -> int:
+    """Fronts of all leaves at once (most segments are leaves); returns the largest size."""
+    n = floor.size
+    leaf = np.array([not k for k in children])
+    counts = np.diff(kept)
+    seg = np.repeat(np.arange(n), counts)
+    free = leaf & (floor == -np.inf)  # unconstrained leaf: its cheapest row, no requirement
+    for s in np.flatnonzero(free).tolist():
+        b = int(kept[s + 1]) - 1
+        f_req[s] = np.array([-np.inf])
+        f_cost[s] = own_c[b:b + 1]
+        f_row[s] = rows[b:b + 1]
+        f_below[s] = -np.inf
+    req = own_d + floor[seg]
+    # Within each leaf the rows run drop ascending; keep those within the budget above,
+    # and of those within the least budget ever offered only the last.
+    ok = (leaf & ~free)[seg] & (req <= high_budget[seg])
+    low = req <= low_budget[seg]
+    nxt_low = np.zeros_like(ok)
+    same = seg[1:] == seg[:-1]
+    nxt_low[:-1] = same & low[1:] & ok[1:]
+    ok &= ~(low & nxt_low)
+    idx = np.flatnonzero(ok)
+    sizes = np.bincount(seg[idx], minlength=n)
+    bounds = np.concatenate(([0], np.cumsum(sizes))).tolist()
+    req_k, cost_k, row_k = req[idx], own_c[idx], rows[idx]
+    floor_list = floor.tolist()
+    for s in np.flatnonzero(leaf & ~free).tolist():
+        a, b = bounds[s], bounds[s + 1]
+        f_req[s] = req_k[a:b]
+        f_cost[s] = cost_k[a:b]
+        f_row[s] = row_k[a:b]
+        f_below[s] = floor_list[s]
+    return int(sizes.max()) if sizes.size else 0
