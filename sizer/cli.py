@@ -19,9 +19,15 @@ def _cmd_loads(args: argparse.Namespace) -> int:
     from sizer.rules import load_profile
     from sizer.scenario import load_scenario
 
+    if args.csv:
+        _outputs(args)
     scenario = load_scenario(args.file)
     profile = load_profile(scenario.rules)
     segments = design_segments(scenario, profile)
+    if args.csv:
+        from sizer.scenario import write_schedule_csv
+
+        write_schedule_csv(scenario, args.csv)
     print(f"{scenario.title} — design currents ({profile.name})")
     print(f"{'segment':<16} {'from':<16} {'kind':<7} {'V':>6} {'ph':>2} {'I A':>9} "
           f"{'need A':>9} {'device A':>9}")
@@ -322,6 +328,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("loads", help="read a scenario and print every segment's design current")
     p.add_argument("file", help="scenario file (.toml, or .csv schedule)")
+    p.add_argument("--csv", help="also write the nodes back as a CSV schedule here")
     p.set_defaults(run=_cmd_loads)
 
     def solver_options(p: argparse.ArgumentParser) -> None:

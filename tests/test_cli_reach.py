@@ -66,3 +66,21 @@ def test_bad_input_is_one_line_and_exit_2(capsys, flag, value, field):
     err = capsys.readouterr().err
     assert code == 2
     assert err.count("\n") == 1 and f"'{field}'" in err and "Traceback" not in err
+
+
+def test_loads_writes_the_schedule_back_as_csv(tmp_path, capsys):
+    from pathlib import Path
+
+    from sizer.scenario import load_scenario
+
+    demo = Path(__file__).parents[1] / "scenarios" / "kiln-hall.toml"
+    out = tmp_path / "circuits.csv"
+    assert main(["loads", str(demo), "--csv", str(out)]) == 0
+    head = tmp_path / "site.toml"
+    text = demo.read_text(encoding="utf-8")
+    # The head keeps project, economics, prices, defaults and source; the nodes come from CSV.
+    head_text = text[: text.index("[[node]]")].replace(
+        "[project]\n", '[project]\nschedule = "circuits.csv"\n', 1)
+    head.write_text(head_text.replace('catalogue = "costdata/', 'catalogue = "../costdata/'),
+                    encoding="utf-8")
+    assert load_scenario(head).nodes == load_scenario(demo).nodes
