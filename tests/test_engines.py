@@ -422,6 +422,26 @@ def test_time_limit_without_a_design(monkeypatch) -> None:
     assert sol.status is SolveStatus.TIME_LIMIT and not sol.has_solution
 
 
+def test_a_false_infeasible_from_cbc_preprocessing_is_solved_again(monkeypatch) -> None:
+    # CBC 2.10.3 on a 5,000-segment tree: "Cut generators found to be infeasible!
+    # Pre-processing says infeasible or unbounded" on a model whose LP relaxation solved.
+    real_run = milp_engine._run
+    calls = []
+
+    def flaky(prob, solver):
+        calls.append(list(solver.options))
+        if len(calls) == 1:
+            with open(solver.optionsDict["logPath"], "w", encoding="utf-8") as fh:
+                fh.write("Pre-processing says infeasible or unbounded\n")
+            return pulp.LpStatusInfeasible, pulp.LpSolutionInfeasible
+        return real_run(prob, solver)
+
+    monkeypatch.setattr(milp_engine, "_run", flaky)
+    sol = solve(feeder_and_two_branches(), engine="milp")
+    assert sol.status is SolveStatus.OPTIMAL and sol.objective == 250.0
+    assert "preprocess off" in calls[1] and "preprocess off" not in calls[0]
+
+
 def test_missing_solver_names_the_fix(monkeypatch) -> None:
     monkeypatch.setattr(milp_engine, "_highs", lambda *args: None)
     with pytest.raises(SolverError, match=r"pip install 'sizer\[highs\]'"):

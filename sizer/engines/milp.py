@@ -43,11 +43,14 @@ _SEED = 20240611  # fixed so repeated runs explore the same search tree
 _GAP_REL = 1e-9  # prove optimality to this relative gap (solver defaults stop earlier)
 
 
-def _cbc(time_limit_s: float | None, log_path: str | None) -> pulp.LpSolver | None:
+def _cbc(time_limit_s: float | None, log_path: str | None,
+         preprocess: bool = True) -> pulp.LpSolver | None:
     """CBC: one on PATH or from PuLP's [cbc] extra, else the binary bundled in PuLP 3.x."""
+    options = [f"randomCbcSeed {_SEED}", f"randomSeed {_SEED}"]
+    if not preprocess:
+        options.append("preprocess off")
     kwargs = dict(msg=False, timeLimit=time_limit_s, gapRel=_GAP_REL, threads=1,
-                  logPath=log_path, options=[f"randomCbcSeed {_SEED}",
-                                             f"randomSeed {_SEED}"])
+                  logPath=log_path, options=options)
     solver = pulp.COIN_CMD(**kwargs)
     if solver.available():
         return solver
@@ -100,10 +103,10 @@ def _highs(time_limit_s: float | None) -> pulp.LpSolver | None:
 
 
 def _make_solver(solver: str, time_limit_s: float | None,
-                 log_path: str | None) -> pulp.LpSolver:
+                 log_path: str | None, preprocess: bool = True) -> pulp.LpSolver:
     """The PuLP solver object for a solver name; SolverError naming the fix if missing."""
     if solver == "cbc":
-        made = _cbc(time_limit_s, log_path)
+        made = _cbc(time_limit_s, log_path, preprocess)
         fix = ("install PuLP with its CBC solver: on Python 3.11 pip install 'pulp>=3.3,<4' "
                "(bundles CBC), on Python >= 3.12 pip install 'pulp[cbc]'; or use "
                "solver='highs' (pip install 'sizer[highs]')")
@@ -261,6 +264,14 @@ def _run(prob: pulp.LpProblem, solver: pulp.LpSolver) -> tuple[int, int]:
     return prob.status, prob.sol_status
 
 
+def _log_says(log_path: str | None, words: str) -> bool:
+    """True when CBC's log contains ``words``."""
+    if not (log_path and os.path.exists(log_path)):
+        return False
+    with open(log_path, encoding="utf-8", errors="replace") as fh:
+        return words in fh.read()
+
+
 def _read_gap(prob: pulp.LpProblem, solver_name: str, log_path: str | None) -> float | None:
     """The solver's final relative gap, when it says."""
     if solver_name == "highs":
@@ -300,6 +311,19 @@ def solve_milp(problem: Problem, solver: str = "cbc",
         except pulp.PulpSolverError as exc:
             raise SolverError(f"the {solver} solver failed: {exc}") from exc
         ours, proven, has = map_status(status, sol_status, time_limit_s is not None)
+        if ours is SolveStatus.INFEASIBLE and _log_says(log_path, "Pre-processing says"):
+            # CBC 2.10.3's pre-processing can wrongly call a feasible model infeasible on
+            # large instances ("Cut generators found to be infeasible"): ask again
+            # without it before believing it.
+            retry = _make_solver(solver, time_limit_s, log_path, preprocess=False)
+            try:
+                status, sol_status = _run(prob, retry)
+            except pulp.PulpSolverError as exc:
+                raise SolverError(f"the {solver} solver failed: {exc}") from exc
+            ours, proven, has = map_status(status, sol_status, time_limit_s is not None)
+        if ours is SolveStatus.INFEASIBLE and _log_says(log_path, "Stopped on time"):
+            # Stopped by its clock before finding a design, CBC proved nothing.
+            ours, proven, has = SolveStatus.TIME_LIMIT, False, False
         gap = _read_gap(prob, solver, log_path) if ours is SolveStatus.TIME_LIMIT else None
     n = problem.n_segments
     choice = np.full(n, -1, dtype=np.int64)
