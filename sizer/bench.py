@@ -140,7 +140,8 @@ class SizeResult:
     same_optimum: bool | None = None
     milp_excess_pct: float | None = None   # MILP's best objective above the tree optimum
     speedup: float | None = None           # MILP time / tree time (a lower bound if unproven)
-    peak_memory_mb: float = 0.0
+    peak_memory_mb: float = 0.0            # the pipeline, before the MILP is tried
+    milp_peak_memory_mb: float | None = None
     candidate_rows_per_s: float = 0.0
 
 
@@ -197,6 +198,7 @@ def measure(n_segments: int, repeats: int = 3, milp_limit_s: float = 60.0,
     res.total_s = sum(res.stages_s.values())
     rows = res.candidates
     res.candidate_rows_per_s = rows / max(res.stages_s["candidates"], 1e-9)
+    res.peak_memory_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     if run_milp:
         t0 = time.perf_counter()
         milp = solve(problem, engine="milp", time_limit_s=milp_limit_s)
@@ -208,7 +210,7 @@ def measure(n_segments: int, repeats: int = 3, milp_limit_s: float = 60.0,
                                                rtol=1e-6))
         if milp.proven_optimal:
             res.speedup = res.milp_s / max(res.tree_engine_s, 1e-9)
-    res.peak_memory_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+        res.milp_peak_memory_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     return res
 
 

@@ -16,12 +16,12 @@ import os
 import tempfile
 import zipfile
 from collections.abc import Iterable, Mapping, Sequence
-from dataclasses import asdict, is_dataclass
+from dataclasses import asdict, fields, is_dataclass
 from pathlib import Path
 from typing import Any
 
 from sizer.errors import ScenarioError
-from sizer.model import Design
+from sizer.model import Design, SegmentResult
 
 DECIMALS = 6
 # A leading character a spreadsheet would read as a formula.
@@ -30,20 +30,28 @@ _FORMULA_LEAD = ("=", "+", "-", "@", "\t", "\r")
 
 def clean(value: Any) -> Any:
     """JSON-safe copy: floats rounded, non-finite to None, dataclasses to dicts."""
-    if is_dataclass(value) and not isinstance(value, type):
-        value = asdict(value)
-    if isinstance(value, float):
+    kind = type(value)
+    if kind is float:
         if not math.isfinite(value):
             return None
         rounded = round(value, DECIMALS)
         return 0.0 if rounded == 0 else rounded
+    if kind is str or kind is int or kind is bool or value is None:
+        return value
     if isinstance(value, Mapping):
         return {str(k): clean(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
         return [clean(v) for v in value]
-    if hasattr(value, "item") and callable(value.item):  # numpy scalars
+    if is_dataclass(value) and not isinstance(value, type):
+        return clean(asdict(value))
+    if isinstance(value, float):  # float subclasses (numpy float64)
+        return clean(float(value))
+    if hasattr(value, "item") and callable(value.item):  # other numpy scalars
         return clean(value.item())
     return value
+
+
+_SEGMENT_FIELDS = tuple(f.name for f in fields(SegmentResult))
 
 
 def design_document(design: Design, extra: Mapping[str, Any] | None = None) -> dict[str, Any]:
@@ -62,7 +70,7 @@ def design_document(design: Design, extra: Mapping[str, Any] | None = None) -> d
             "lifecycle": design.totals.lifecycle,
             "loss_kwh_per_year": design.totals.loss_kwh_per_year,
         },
-        "segments": [asdict(s) for s in design.segments],
+        "segments": [{k: getattr(s, k) for k in _SEGMENT_FIELDS} for s in design.segments],
     }
     if design.diagnosis:
         doc["diagnosis"] = list(design.diagnosis)
@@ -76,8 +84,27 @@ def design_document(design: Design, extra: Mapping[str, Any] | None = None) -> d
 
 
 def json_text(doc: Any) -> str:
-    """Deterministic JSON text: sorted keys, two-space indent, final newline."""
-    return json.dumps(clean(doc), sort_keys=True, indent=2, ensure_ascii=False) + "\n"
+    """Deterministic JSON text: sorted keys, rounded floats, final newline.
+
+    A top-level object is written one key per line and each element of a list of objects
+    on its own line, so large results stay readable and diffable and use the fast encoder.
+    """
+    data = clean(doc)
+    if not isinstance(data, dict):
+        return json.dumps(data, sort_keys=True, ensure_ascii=False) + "\n"
+
+    def one(value: Any) -> str:
+        return json.dumps(value, sort_keys=True, ensure_ascii=False)
+
+    lines = []
+    for key in sorted(data):
+        value = data[key]
+        if isinstance(value, list) and value and all(isinstance(v, dict) for v in value):
+            inner = ",\n".join(f"    {one(v)}" for v in value)
+            lines.append(f"  {one(key)}: [\n{inner}\n  ]")
+        else:
+            lines.append(f"  {one(key)}: {one(value)}")
+    return "{\n" + ",\n".join(lines) + "\n}\n"
 
 
 def safe_cell(value: Any) -> Any:
