@@ -9,13 +9,13 @@ asked.
 from __future__ import annotations
 
 import time
-from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 
 import sizer
 from sizer.errors import ScenarioError, SizerError
 from sizer.model import Design
+from sizer.workflow import Progress, quiet
 
 DEMO_SCENARIO = "kiln-hall.toml"
 REPORT_NAME = "report.html"
@@ -23,11 +23,7 @@ CSV_NAME = "schedule.csv"
 JSON_NAME = "results.json"
 XLSX_NAME = "schedule.xlsx"
 
-Progress = Callable[[str], None]
 
-
-def _quiet(_: str) -> None:
-    pass
 
 
 @dataclass(frozen=True)
@@ -61,7 +57,7 @@ def bundled_scenario(name: str = DEMO_SCENARIO) -> Path:
 
 
 def run_demo(folder: Path = Path("sizer-demo"), *, force: bool = False,
-             progress: Progress = _quiet) -> DemoResult:
+             progress: Progress = quiet) -> DemoResult:
     """Copy the demo scenario into ``folder``, solve it and write every output there."""
     from sizer.optimize import Objective, prepare
     from sizer.report.export import (

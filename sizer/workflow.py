@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import itertools
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -23,8 +23,8 @@ from sizer.verify import Network, fault_currents_a, load_flow, motor_start_dip_p
 Progress = Callable[[str], None]
 
 
-def _quiet(_: str) -> None:
-    pass
+def quiet(_: str) -> None:
+    """A progress callback that says nothing."""
 
 
 @dataclass(frozen=True)
@@ -46,7 +46,7 @@ class FrontierPoint:
 
 def frontier(prep: Prepared, points: int = 12, *, engine: str = "auto", solver: str = "cbc",
              time_limit_s: float | None = 60.0, fill: bool = True,
-             progress: Progress = _quiet) -> list[FrontierPoint]:
+             progress: Progress = quiet) -> list[FrontierPoint]:
     """Capex against loss PV: weighted sums for the supported points, ε-constraint between.
 
     Weighted sums (tree engine, fast) find the points on the convex hull; where two
@@ -297,22 +297,29 @@ def all_copper(scenario: Scenario) -> Scenario:
 
 
 def compare_options(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",
-                    time_limit_s: float | None = None,
-                    progress: Progress = _quiet) -> list[Option]:
+                    time_limit_s: float | None = None, progress: Progress = quiet,
+                    solved: Sequence[Design] = ()) -> list[Option]:
     """Code-minimum, lifecycle optimum, all-copper and (when pins exist) the pinned design.
 
     Each is verified by load flow like a normal solve; an option that has no feasible
-    design is still listed, with its status.
+    design is still listed, with its status. ``solved`` designs of this scenario (by
+    their objective) are reused instead of solved again.
     """
+    known = {d.objective: d for d in solved if d.segments}
+
+    def solved_or_solve(objective: Objective) -> Design:
+        if objective.value in known:
+            return known[objective.value]
+        return solve_verified(prep, objective, engine=engine, solver=solver,
+                              time_limit_s=time_limit_s)[0]
+
     out = []
     progress("option: code minimum (least upfront cost)")
     out.append(Option("code_minimum", "Code minimum (least upfront cost)",
-                      solve_verified(prep, Objective.CAPEX, engine=engine, solver=solver,
-                                     time_limit_s=time_limit_s)[0]))
+                      solved_or_solve(Objective.CAPEX)))
     progress("option: lifecycle optimum")
     out.append(Option("lifecycle", "Lifecycle optimum (upfront + losses)",
-                      solve_verified(prep, Objective.LIFECYCLE, engine=engine, solver=solver,
-                                     time_limit_s=time_limit_s)[0]))
+                      solved_or_solve(Objective.LIFECYCLE)))
     if any("Al" in n.cable.materials for n in prep.scenario.nodes if n.pin is None):
         progress("option: all copper")
         cu = prepare(all_copper(prep.scenario), prices=prep.prices)

@@ -14,7 +14,7 @@ import datetime as _dt
 import html
 import math
 import re
-from collections.abc import Callable, Iterable, Sequence
+from collections.abc import Iterable, Sequence
 from importlib import resources
 from pathlib import Path
 from string import Template
@@ -28,10 +28,16 @@ from sizer.optimize import Prepared
 from sizer.report import plots
 from sizer.report import tables as tb
 from sizer.report.export import atomic_write
-from sizer.workflow import FrontierPoint, Option, Verification, compare_options, frontier
+from sizer.workflow import (
+    FrontierPoint,
+    Option,
+    Progress,
+    Verification,
+    compare_options,
+    frontier,
+    quiet,
+)
 from sizer.workflow import verify_design as _verify_design
-
-Progress = Callable[[str], None]
 
 # The report's own statement of responsibility, shown at the top and the foot of the page.
 REPORT_CAUTION = (
@@ -53,9 +59,6 @@ _STATUS_WORDS = {
     "violations": "breaks rules",
 }
 
-
-def _quiet(_: str) -> None:
-    pass
 
 
 # --- small HTML helpers ------------------------------------------------------------------
@@ -141,7 +144,7 @@ def pct(value: float | None, digits: int = 2) -> str:
 def write_report(path: str | Path, prep: Prepared, design: Design, *,
                  options: Sequence[Option] | None = None,
                  frontier_points: Sequence[FrontierPoint] | None = None,
-                 protect: Sequence[Path] = (), progress: Progress = _quiet,
+                 protect: Sequence[Path] = (), progress: Progress = quiet,
                  extra_sections: Sequence[str] = ()) -> Path:
     """Compute what is missing (options, frontier), render the report and write it atomically.
 
@@ -158,12 +161,12 @@ def render_report(prep: Prepared, design: Design, *,
                   options: Sequence[Option] | None = None,
                   frontier_points: Sequence[FrontierPoint] | None = None,
                   verification: Verification | None = None,
-                  progress: Progress = _quiet,
+                  progress: Progress = quiet,
                   today: _dt.date | None = None,
                   extra_sections: Sequence[str] = ()) -> str:
     """The whole report as HTML text."""
     if options is None:
-        options = compare_options(prep, progress=progress)
+        options = compare_options(prep, progress=progress, solved=[design])
     if frontier_points is None and design.segments:
         progress("report: frontier of upfront cost against losses")
         frontier_points = frontier(prep, REPORT_FRONTIER_POINTS,
