@@ -334,8 +334,9 @@ def build_parser() -> argparse.ArgumentParser:
     def solver_options(p: argparse.ArgumentParser) -> None:
         p.add_argument("--engine", default="auto", choices=("auto", "tree", "milp"))
         p.add_argument("--solver", default="cbc", choices=("cbc", "highs"))
-        p.add_argument("--time-limit", type=float, default=None,
-                       help="seconds for the MILP; the best design found is returned")
+        p.add_argument("--time-limit", type=float, default=300.0,
+                       help="seconds for the MILP (default 300); past it the best design "
+                            "found is returned with status time_limit and its gap")
         p.add_argument("--quiet", action="store_true", help="no progress display")
 
     p = sub.add_parser("solve", help="size every run of a scenario at least cost")

@@ -20,7 +20,9 @@ def summary(design: Design, title: str, *, max_rows: int = 40, max_findings: int
     cur = design.currency
     lines = [f"{title}", f"status: {_STATUS_WORDS.get(design.status, design.status)}"
              f"   objective: {design.objective}   rules: {design.rules}"
-             + (f"   engine: {design.engine}" if design.engine else "")]
+             + (f"   engine: {design.engine}" if design.engine else "")
+             + (f"   proven gap: {100 * design.gap:.3g} %"
+                if design.status == "time_limit" and design.gap is not None else "")]
     if design.segments:
         lines.append(
             f"{'segment':<14} {'kind':<7} {'length':>8} {'I A':>7} {'dev A':>6} "
