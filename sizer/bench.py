@@ -205,11 +205,10 @@ def measure(n_segments: int, repeats: int = 3, milp_limit_s: float = 60.0,
         res.milp_s = time.perf_counter() - t0
         res.milp_status = milp.status.value
         res.milp_gap = milp.gap
-        if milp.choice is not None:
-            res.same_optimum = bool(np.isclose(milp.objective, sol.objective,  # type: ignore[attr-defined]
-                                               rtol=1e-6))
-        if milp.proven_optimal:
-            res.speedup = res.milp_s / max(res.tree_engine_s, 1e-9)
+        if milp.has_solution:
+            res.same_optimum = bool(np.isclose(milp.objective, sol.objective, rtol=1e-6))
+            res.milp_excess_pct = 100.0 * (milp.objective / sol.objective - 1.0)
+        res.speedup = res.milp_s / max(res.tree_engine_s, 1e-9)
         res.milp_peak_memory_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     return res
 
