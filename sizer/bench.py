@@ -24,6 +24,9 @@ import time
 from collections.abc import Callable, Sequence
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
+from typing import TypeVar
+
+T = TypeVar("T")
 
 STAGES = ("read", "currents", "candidates", "engine", "verify", "report")
 
@@ -145,13 +148,16 @@ class SizeResult:
     candidate_rows_per_s: float = 0.0
 
 
-def _time(fn: Callable[[], object], repeats: int) -> tuple[float, object]:
+def _time(fn: Callable[[], T], repeats: int) -> tuple[float, T]:
+    """Median wall time of ``repeats`` calls, and the last call's result."""
     times = []
-    result: object = None
-    for _ in range(repeats):
+    for _ in range(repeats - 1):
         t0 = time.perf_counter()
-        result = fn()
+        fn()
         times.append(time.perf_counter() - t0)
+    t0 = time.perf_counter()
+    result = fn()
+    times.append(time.perf_counter() - t0)
     return statistics.median(times), result
 
 
@@ -188,11 +194,11 @@ def measure(n_segments: int, repeats: int = 3, milp_limit_s: float = 60.0,
     problem = build_problem(prep, Objective.LIFECYCLE)
     res.stages_s["engine"], sol = _time(lambda: solve(problem, engine="tree"), repeats)
     res.tree_engine_s = res.stages_s["engine"]
-    choice = sol.choice  # type: ignore[attr-defined]
+    choice = sol.choice
     design = design_from_choice(prep, choice, status="optimal", objective="lifecycle",
-                                solution=sol)  # type: ignore[arg-type]
+                                solution=sol)
     res.stages_s["verify"], ver = _time(lambda: verify_design(prep, choice), repeats)
-    verified = with_verification(prep, design, choice, ver)  # type: ignore[arg-type]
+    verified = with_verification(prep, design, choice, ver)
     res.stages_s["report"], _ = _time(
         lambda: (json_text(design_document(verified)), schedule_csv(verified)), repeats)
     res.total_s = sum(res.stages_s.values())
