@@ -437,6 +437,10 @@ def main(argv: Sequence[str] | None = None) -> int:
         located = isinstance(exc, ScenarioError) and exc.file
         print(str(exc) if located else f"sizer: {exc}", file=sys.stderr)
         return exc.exit_code
+    except OSError as exc:  # disk full, permission denied, read-only folder, ...
+        where = f"{exc.filename}: " if exc.filename else ""
+        print(f"sizer: {where}cannot read or write: {exc.strerror or exc}", file=sys.stderr)
+        return 2
     except KeyboardInterrupt:
         print("sizer: interrupted", file=sys.stderr)
         return 130

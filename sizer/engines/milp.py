@@ -305,7 +305,6 @@ def solve_milp(problem: Problem, solver: str = "cbc",
         log_path = os.path.join(tmp, "cbc.log") if solver == "cbc" else None
         lp_solver = _make_solver(solver, time_limit_s, log_path)
         prob, x = build_model(problem)
-        t_build = time.perf_counter() - t0
         try:
             status, sol_status = _run(prob, lp_solver)
         except pulp.PulpSolverError as exc:
@@ -358,8 +357,8 @@ def solve_milp(problem: Problem, solver: str = "cbc",
     return Solution(
         status=ours, choice=choice, objective=objective, proven_optimal=proven, gap=gap,
         engine=f"milp-{solver}",
+        # No run times here: the message reaches the results files, which must not vary.
         message=(f"MILP ({solver}): {words[ours]}{msg_extra}; {n} segments, "
-                 f"{problem.n_candidates} candidates; build {t_build:.2f} s, "
-                 f"total {seconds:.2f} s"),
+                 f"{problem.n_candidates} candidates"),
         seconds=seconds,
     )

@@ -164,7 +164,10 @@ def atomic_write(path: str | Path, data: str | bytes, *, protect: Sequence[Path]
     folder = resolved.parent
     if not folder.is_dir():
         raise ScenarioError("its folder does not exist", file=str(target))
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+    except OSError as exc:
+        raise ScenarioError(f"cannot write: {exc.strerror or exc}", file=str(target)) from exc
     try:
         # mkstemp makes the file private; give it the permissions a plain open() would.
         os.chmod(tmp, 0o666 & ~_umask())
@@ -179,6 +182,9 @@ def atomic_write(path: str | Path, data: str | bytes, *, protect: Sequence[Path]
                 ft.flush()
                 os.fsync(ft.fileno())
         os.replace(tmp, resolved)
+    except OSError as exc:
+        Path(tmp).unlink(missing_ok=True)
+        raise ScenarioError(f"cannot write: {exc.strerror or exc}", file=str(target)) from exc
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise
