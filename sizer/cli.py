@@ -7,9 +7,14 @@ import sys
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from sizer import CAUTION
 from sizer.errors import ScenarioError, SizerError
+
+if TYPE_CHECKING:
+    from sizer.model import Scenario
+    from sizer.optimize import Prepared
 
 Command = Callable[[argparse.Namespace], int]
 
@@ -22,6 +27,7 @@ def _cmd_loads(args: argparse.Namespace) -> int:
     if args.csv:
         _outputs(args)
     scenario = load_scenario(args.file)
+    _outputs(args, scenario.inputs)
     profile = load_profile(scenario.rules)
     segments = design_segments(scenario, profile)
     if args.csv:
@@ -109,24 +115,34 @@ def _cmd_reach(args: argparse.Namespace) -> int:
     return 0
 
 
-def _outputs(args: argparse.Namespace) -> list[Path]:
-    """Output paths named on the command line, checked before any work is done."""
+def _outputs(args: argparse.Namespace, inputs: Sequence[str] = ()) -> list[Path]:
+    """Output paths named on the command line, checked before anything is written.
+
+    Called once before any work (against the named file) and again with every file the
+    scenario read (its head and CSV schedule), so an input is never overwritten and no
+    output is written when another would be refused.
+    """
     outs = [Path(p) for p in (getattr(args, "json", None), getattr(args, "csv", None),
                               getattr(args, "report", None), getattr(args, "xlsx", None))
             if isinstance(p, str)]
-    scenario = Path(args.file).resolve()
+    protected = {Path(p).resolve() for p in (args.file, *inputs)}
     for out in outs:
-        if out.resolve() == scenario:
+        if out.resolve() in protected:
             raise ScenarioError("refusing to overwrite the input scenario", file=str(out))
         if not out.resolve().parent.is_dir():
             raise ScenarioError("its folder does not exist", file=str(out))
     return outs
 
 
+def _protect(args: argparse.Namespace, scenario: Scenario) -> list[Path]:
+    """Every input file of this run, for the writers to refuse."""
+    return [Path(args.file), *(Path(p) for p in scenario.inputs)]
+
+
 def _write_design_files(args: argparse.Namespace, design, scenario, extra=None) -> None:
     from sizer.report.export import atomic_write, design_document, json_text, schedule_csv
 
-    protect = [Path(args.file)]
+    protect = _protect(args, scenario)
     if getattr(args, "json", None):
         atomic_write(args.json, json_text(design_document(design, extra)), protect=protect)
     if getattr(args, "csv", None):
@@ -137,11 +153,12 @@ def _write_design_files(args: argparse.Namespace, design, scenario, extra=None) 
         write_xlsx(args.xlsx, design, protect=protect)
 
 
-def _prepare(args: argparse.Namespace, *, keep_pins: bool = False):
+def _prepare(args: argparse.Namespace, *, keep_pins: bool = False) -> Prepared:
     from sizer.optimize import prepare
     from sizer.scenario import load_scenario
 
     scenario = load_scenario(args.file)
+    _outputs(args, scenario.inputs)
     return prepare(scenario, keep_pins=keep_pins)
 
 
@@ -163,7 +180,7 @@ def _cmd_solve(args: argparse.Namespace) -> int:
         if args.report and design.segments:
             from sizer.report.html import write_report
 
-            write_report(args.report, prep, design, protect=[Path(args.file)],
+            write_report(args.report, prep, design, protect=_protect(args, prep.scenario),
                          progress=say)
     print(summary(design, prep.scenario.title))
     return 0 if design.segments else (1 if design.status == "infeasible" else 2)
@@ -215,7 +232,7 @@ def _cmd_frontier(args: argparse.Namespace) -> int:
             {"capex": p.capex, "loss_pv": p.loss_pv, "lifecycle": p.lifecycle,
              "method": p.method, "parameter": p.parameter,
              "proven_optimal": p.proven_optimal} for p in points]}
-        atomic_write(args.json, json_text(doc), protect=[Path(args.file)])
+        atomic_write(args.json, json_text(doc), protect=_protect(args, prep.scenario))
     return 0
 
 
@@ -227,11 +244,12 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
 
     _outputs(args)
     scenario = load_scenario(args.file)
+    _outputs(args, scenario.inputs)
     with _progress_bar(args) as bar:
         result = sweep(scenario, args.vary, mode=args.mode, objective=Objective(args.objective),
                        jobs=args.jobs, scheduler=args.scheduler, progress=bar,
                        engine=args.engine, solver=args.solver, time_limit_s=args.time_limit)
-    protect = [Path(args.file)]
+    protect = _protect(args, scenario)
     if args.json:
         write_sweep_json(result, args.json, protect=protect)
     if args.report:

@@ -228,6 +228,7 @@ class Scenario:
     prices: Prices
     source: Source
     nodes: tuple[Node, ...]
+    inputs: tuple[str, ...] = ()   # every file read (head and CSV schedule): never overwritten
 
     def index(self) -> dict[str, int]:
         """Node id → position in ``nodes``."""

@@ -44,6 +44,7 @@ import io
 import math
 import os
 import re
+import tokenize
 import tomllib
 from collections.abc import Callable, Mapping
 from functools import lru_cache
@@ -81,6 +82,7 @@ from sizer.validation import (
     check_insulation,
     check_node_count,
     check_pin,
+    check_terminals,
     check_voltage_levels,
     suggest,
     supply_bus,
@@ -115,6 +117,11 @@ INSTALLATION_WORDS = ("conduit", "steel_conduit", "tray", "buried", "free_air")
 # sizer sizes low-voltage cable: 1000 V AC is the top of the low-voltage range (IEC 60038).
 MAX_VOLTAGE_V = 1000.0
 DEFAULT_POWER_FACTOR = 0.9
+# Sanity bounds, not rules: beyond them an input is a typo, and the candidate grid
+# (segments x materials x sizes x sets) would exhaust memory or overflow.
+MAX_LENGTH_M = 100_000.0   # 100 km, far beyond any low-voltage run
+MAX_SETS = 20              # parallel sets of one run
+MAX_GROUPING = 1000        # current-carrying conductors in one raceway
 # Mechanical horsepower (the NEC and NEMA motor rating unit), 745.7 W, from pint.
 HP_W = parse_quantity("1 hp", "W")
 
@@ -231,11 +238,28 @@ def _quantity(value: str, unit: str) -> float:
 
 
 def read_length(value: Any, text: bool = False) -> float:
-    """A route length in metres, positive and finite."""
+    """A route length in metres, positive and at most MAX_LENGTH_M."""
     x = _length_m(_unit_text(value, "120 ft"))
     if not x > 0:
         raise ScenarioError(f"must be a positive length, got {_show(value)}")
+    if x > MAX_LENGTH_M:
+        raise ScenarioError(f"must be at most {MAX_LENGTH_M / 1000:g} km (a low-voltage run "
+                            f"is far shorter: check the unit), got {_show(value)}")
     return x
+
+
+def _at_most(read: Reader, top: int, what: str) -> Reader:
+    """``read``, refusing values above ``top``."""
+    def reader(value: Any, text: bool = False) -> Any:
+        x = read(value, text)
+        if x is not None and x > top:
+            raise ScenarioError(f"must be at most {top} {what}, got {_show(value)}")
+        return x
+    return reader
+
+
+read_sets = _at_most(read_count, MAX_SETS, "parallel sets")
+read_grouping = _at_most(_auto(read_count), MAX_GROUPING, "conductors in one raceway")
 
 
 def read_voltage(value: Any, text: bool = False) -> float:
@@ -364,8 +388,10 @@ class _Fields:
         for key in self.raw:
             if key not in known:
                 hint = suggest(str(key), known)
-                self.report.add(f"unknown {what} '{key}'{hint}", node=self.node,
-                                field=self.prefix + str(key), file=self.file)
+                # A quoted TOML key may hold a line break: escape it, one error one line.
+                name = str(key) if str(key).isprintable() else repr(str(key))[1:-1]
+                self.report.add(f"unknown {what} '{name}'{hint}", node=self.node,
+                                field=self.prefix + name, file=self.file)
                 self.bad.add(str(key))
                 if hint:   # later checks keep quiet about the key it was meant to be
                     meant = hint.split("'")[1]
@@ -384,7 +410,8 @@ class _Fields:
             return read(self.raw[key], self.text)
         except ScenarioError as exc:
             message = exc.message
-        except (ValueError, TypeError, ArithmeticError, AttributeError, KeyError) as exc:
+        except (ValueError, TypeError, ArithmeticError, AttributeError, KeyError,
+                tokenize.TokenError) as exc:
             # A value pint or a parser chokes on: still one clear line, never a traceback.
             message = f"cannot read {_show(self.raw[key])} ({type(exc).__name__})"
         self.report.add(message, node=self.node, field=self.prefix + key, file=self.file)
@@ -532,7 +559,9 @@ def _load_file(path: Path, file: str, shown: str) -> Scenario:
     if schedule is not None:
         raw_nodes += _read_schedule(path.parent / schedule, schedule, report)
     check_node_count(len(raw_nodes), report)
-    if not raw_nodes and "node" not in data:
+    # No nodes at all, or an empty list (node = [], a schedule with a header only) that
+    # no other error explains.
+    if not raw_nodes and ("node" not in data or not report.errors):
         report.add("has no nodes: add [[node]] tables (or a schedule under [project])",
                    field="node")
     drafts = [_read_node(raw, i, nfile, where, text, report)
@@ -547,8 +576,10 @@ def _load_file(path: Path, file: str, shown: str) -> Scenario:
     nodes = _build_nodes(tree, defaults, profile, report) if tree is not None else ()
     report.raise_if_any()
     assert economics is not None and source is not None and rules is not None
+    inputs = (str(path),) + ((str(path.parent / schedule),) if schedule is not None else ())
     return Scenario(file=shown, title=title, rules=rules.lower(), currency=currency or "",
-                    economics=economics, prices=prices, source=source, nodes=nodes)
+                    economics=economics, prices=prices, source=source, nodes=nodes,
+                    inputs=inputs)
 
 
 def _profile(rules: str | None, report: Report, file: str) -> Any:
@@ -606,6 +637,13 @@ def _economics(top: _Fields, currency: str | None, report: Report,
     }
     if f.bad or any(values[k] is None for k in values if k != "loss_load_factor"):
         return None
+    lf, llf = values["load_factor"], values["loss_load_factor"]
+    # Any load curve has LF² <= loss load factor <= LF (the economics module refuses others).
+    if llf is not None and not lf * lf * (1 - 1e-9) <= llf <= lf * (1 + 1e-9):
+        f.report.add(f"{llf:g} is impossible with load_factor {lf:g}: any load curve has "
+                     f"LF² = {lf * lf:.4g} ≤ loss load factor ≤ LF = {lf:g}",
+                     field="economics.loss_load_factor", file=file)
+        return None
     return f.build(Economics, **values)
 
 
@@ -634,7 +672,12 @@ def _prices(top: _Fields, currency: str | None, path: Path, report: Report,
         # Beside the scenario if it is there; otherwise as written (the price loader
         # looks in the working folder and then in the bundled costdata/).
         beside = path.parent / catalogue
-        catalogue_path = beside if beside.is_file() else Path(catalogue)
+        try:
+            catalogue_path = beside if beside.is_file() else Path(catalogue)
+        except OSError as exc:   # e.g. a name longer than the file system allows
+            report.add(f"cannot be a price list file: {exc.strerror}",
+                       field="prices.catalogue", file=file)
+            f.bad.add("catalogue")
     if currency is None:
         return Prices(catalogue_path)
 
@@ -657,8 +700,8 @@ _DEFAULT_READERS: dict[str, Reader] = {
     "terminals": _auto(read_temperature),
     "ambient": read_ambient,
     "installation": read_installation,
-    "grouping": _auto(read_count),
-    "max_sets": read_count,
+    "grouping": read_grouping,
+    "max_sets": read_sets,
     "power_factor": read_fraction,
     "clearing_time": _auto(read_time),
 }
@@ -689,8 +732,10 @@ def _source(top: _Fields, report: Report, file: str) -> tuple[Source | None, str
     """The source, and its id (known even when another of its fields is bad)."""
     raw = top.raw.get("source")
     if isinstance(raw, list):
-        report.add(f"exactly one source is allowed, found {len(raw)} (write one [source] "
-                   "table)", field="source")
+        found = (f"found {len(raw)}" if len(raw) != 1 else
+                 "found a list of one ([[source]] or source = [...])")
+        report.add(f"exactly one source is allowed, {found} (write one [source] table)",
+                   field="source")
         return None, None
     table = top.table("source")
     if table is None:
@@ -753,15 +798,17 @@ def _read_schedule(path: Path, written: str, report: Report) -> list[RawNode]:
     except ScenarioError as exc:
         report.add_error(exc, field="project.schedule", file=report.file)
         return []
-    # Comment lines become blank lines, so line numbers still match the file.
-    lines = ["" if line.lstrip().startswith("#") else line for line in text.splitlines()]
+    # Comment lines become blank lines, so line numbers still match the file. Only CR/LF
+    # end a line: str.splitlines would also split inside a cell at U+2028, U+0085, ...
+    lines = ["" if line.lstrip().startswith("#") else line
+             for line in re.split(r"\r\n|\r|\n", text)]
     header_line = next((line for line in lines if line.strip()), "")
     delimiter = max((",", ";", "\t"), key=header_line.count)
     reader = csv.reader(io.StringIO("\n".join(lines)), delimiter=delimiter)
     header: list[str] | None = None
     known: list[str | None] = []
     out: list[RawNode] = []
-    for cells in reader:
+    for cells in _csv_rows(reader, report, file):
         if not any(c.strip() for c in cells):
             continue
         if header is None:
@@ -794,6 +841,17 @@ def _read_schedule(path: Path, written: str, report: Report) -> list[RawNode]:
     return out
 
 
+def _csv_rows(reader: Any, report: Report, file: str) -> Any:
+    """The reader's rows, until one the csv module cannot read (a cell over its limit).
+
+    That row ends the schedule with one error instead of a traceback.
+    """
+    try:
+        yield from reader
+    except csv.Error as exc:
+        report.add(f"line {reader.line_num} cannot be read as CSV: {exc}", file=file)
+
+
 def read_description(value: Any, text: bool = False) -> str:
     """Free text, possibly empty."""
     return "" if value == "" else read_text(value, text)
@@ -817,8 +875,8 @@ _NODE_READERS: dict[str, Reader] = {
     "terminals": _auto(read_temperature),
     "ambient": read_ambient,
     "installation": read_installation,
-    "grouping": _auto(read_count),
-    "max_sets": read_count,
+    "grouping": read_grouping,
+    "max_sets": read_sets,
 }
 
 
@@ -932,6 +990,11 @@ def _build_nodes(tree: Any, defaults: dict[str, Any], profile: Any,
         if message:
             report.add(message, field="defaults.insulation")
             defaults["_bad"].add("insulation")
+    if profile is not None and "terminals" not in defaults["_bad"]:
+        message = check_terminals(defaults["terminals"], profile)
+        if message:
+            report.add(message, field="defaults.terminals")
+            defaults["_bad"].add("terminals")
     settings_cache: dict[tuple[Any, ...], CableSettings] = {}
     nodes: list[Node] = []
     for p in tree.order:
@@ -952,6 +1015,10 @@ def _build_nodes(tree: Any, defaults: dict[str, Any], profile: Any,
                 message = check_insulation(v["insulation"], profile)
                 if message:
                     report.add(message, node=d.id, field="insulation", file=d.file)
+            if "terminals" in v:
+                message = check_terminals(v["terminals"], profile)
+                if message:
+                    report.add(message, node=d.id, field="terminals", file=d.file)
             pin = v.get("conductor")
             if pin is not None and not {"materials", "max_sets"} & d.bad:
                 message = check_pin(pin, cable.materials, cable.max_sets, profile)
