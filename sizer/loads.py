@@ -80,6 +80,9 @@ def next_rating_a(ratings_a: np.ndarray, current_a: np.ndarray) -> np.ndarray:
     return np.where(pos < len(ratings), out, np.nan)
 
 
+# Extreme inputs (a power factor of 1e-300, a load of 1e300 kW) may overflow: the results
+# are checked for finiteness below and reported as bad input, never as a numpy warning.
+@np.errstate(over="ignore", invalid="ignore", divide="ignore")
 def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, ...]:
     """One Segment per node, aligned with ``scenario.nodes``, with its design currents.
 
@@ -197,6 +200,14 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
     ocpd = np.where(np.isnan(given), chosen, given)
 
     report = Report(file)
+    overflow = ~np.isfinite(current) | ~np.isfinite(required) | ~np.isfinite(s_abs)
+    feeds_overflow = np.zeros(n, dtype=bool)   # overflowing because of a node below it
+    feeds_overflow[parent[overflow & has_parent]] = True
+    for k in np.flatnonzero(overflow & ~feeds_overflow):
+        report.add("the design current is too large to compute: check the load, the power "
+                   "factor and the voltage of this node and those below it",
+                   node=nodes[k].id, field="load")
+    report.raise_if_any()
     largest = max(profile.standard_ratings_a)
     for k in np.flatnonzero(np.isnan(ocpd)):
         report.add(f"needs {need[k]:.0f} A, above the largest standard device rating "

@@ -20,6 +20,7 @@ The checks, by name (``TREE_CHECKS`` and ``PROFILE_CHECKS``):
   load, motor, continuous flag of its own; demand factors only where there is demand
   below; a transformer feeds at least one node;
 - ``insulation`` (profile): insulation ratings are ones the rule profile tables;
+- ``terminals`` (profile): terminal ratings are temperature columns of its table;
 - ``pins`` (profile): a pinned conductor is in the profile's catalogue, made in its
   material, allowed by the node's materials and within its max_sets.
 """
@@ -414,6 +415,21 @@ def check_insulation(insulation_c: float, profile: Any) -> str | None:
     shown = ", ".join(f"\"{t:g} degC\"" for t in allowed)
     return (f"the {profile.name} profile has no {insulation_c:g} degC insulation rating "
             f"(use {shown})")
+
+
+def check_terminals(terminals_c: float | None, profile: Any) -> str | None:
+    """Message when a terminal rating is not a temperature column of the profile's table.
+
+    The terminal limit is read from that column; None ("auto") is always fine.
+    """
+    if terminals_c is None:
+        return None
+    columns = tuple(float(t) for t in profile.column_temps_c)
+    if any(abs(terminals_c - t) < 1e-6 for t in columns):
+        return None
+    shown = ", ".join(f"\"{t:g} degC\"" for t in columns)
+    return (f"the {profile.name} profile has no {terminals_c:g} degC ampacity column for "
+            f"terminals (use {shown} or \"auto\")")
 
 
 def check_pin(pin: Any, materials: Sequence[str], max_sets: int, profile: Any) -> str | None:
