@@ -122,6 +122,10 @@ DEFAULT_POWER_FACTOR = 0.9
 MAX_LENGTH_M = 100_000.0   # 100 km, far beyond any low-voltage run
 MAX_SETS = 20              # parallel sets of one run
 MAX_GROUPING = 1000        # current-carrying conductors in one raceway
+MAX_CURRENT_A = 1.0e6      # a device rating or an available fault current (1 MA)
+MIN_FAULT_A = 10.0
+CLEARING_TIME_S = (1e-3, 5.0)  # the adiabatic limit holds up to 5 s (IEC 60949)
+MAX_PRICE = 1.0e6          # per kWh, per kW-month or per kg, in any currency
 # Mechanical horsepower (the NEC and NEMA motor rating unit), 745.7 W, from pint.
 HP_W = parse_quantity("1 hp", "W")
 
@@ -274,18 +278,39 @@ def read_voltage(value: Any, text: bool = False) -> float:
 
 
 def read_current(value: Any, text: bool = False) -> float:
-    """A positive current in amperes."""
+    """A positive current in amperes, at most MAX_CURRENT_A."""
     x = _quantity(_unit_text(value, "20 A"), "A")
     if not x > 0:
         raise ScenarioError(f"must be a positive current, got {_show(value)}")
+    if x > MAX_CURRENT_A:
+        raise ScenarioError(f"must be at most {MAX_CURRENT_A / 1e3:g} kA, got {_show(value)}")
+    return x
+
+
+def read_fault_current(value: Any, text: bool = False) -> float:
+    """An available fault current in amperes (10 A to 1 MA)."""
+    x = read_current(value, text)
+    if x < MIN_FAULT_A:
+        raise ScenarioError(f"must be at least {MIN_FAULT_A:g} A, got {_show(value)}")
     return x
 
 
 def read_time(value: Any, text: bool = False) -> float:
-    """A positive time in seconds."""
+    """A device clearing time in seconds, 1 ms to 5 s."""
     x = _quantity(_unit_text(value, "0.1 s"), "s")
     if not x > 0:
         raise ScenarioError(f"must be a positive time, got {_show(value)}")
+    low, high = CLEARING_TIME_S
+    if not low <= x <= high:
+        raise ScenarioError(f"must be between {low * 1e3:g} ms and {high:g} s (the range of "
+                            f"the adiabatic withstand check), got {_show(value)}")
+    return x
+
+
+def _price_bound(x: float, value: Any) -> float:
+    if x > MAX_PRICE:
+        raise ScenarioError(f"must be at most {MAX_PRICE:g} (check the unit), got "
+                            f"{_show(value)}")
     return x
 
 
@@ -616,11 +641,11 @@ def _economics(top: _Fields, currency: str | None, report: Report,
         def reader(value: Any, text: bool = False) -> float:
             value = _unit_text(value, f"0.12 {currency}/{per}")
             try:
-                return parse_money(value, currency, per)
+                return _price_bound(parse_money(value, currency, per), value)
             except UnitError:
                 if alt is None:
                     raise
-                return parse_money(value, currency, alt)
+                return _price_bound(parse_money(value, currency, alt), value)
         return reader
 
     values = {
@@ -685,7 +710,7 @@ def _prices(top: _Fields, currency: str | None, path: Path, report: Report,
         x = parse_money(_unit_text(value, f"10.5 {currency}/kg"), currency, "kg")
         if not x > 0:
             raise ScenarioError(f"must be a positive price, got {_show(value)}")
-        return x
+        return _price_bound(x, value)
 
     copper = f.get("copper", per_kg)
     aluminium = f.get("aluminium", per_kg)
@@ -749,7 +774,7 @@ def _source(top: _Fields, report: Report, file: str) -> tuple[Source | None, str
     f.node = sid
     voltage = f.require("voltage", read_voltage, " (e.g. voltage = \"480 V\")")
     phases = f.require("phases", read_phases, " (phases = 1 or 3)")
-    fault = f.get("fault_current", read_current)
+    fault = f.get("fault_current", read_fault_current)
     x_r = f.get("x_r", read_number, 10.0)
     if f.bad:
         return None, sid

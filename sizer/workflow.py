@@ -169,6 +169,12 @@ def verify_design(prep: Prepared, choice: np.ndarray) -> Verification:
     source_level = src.fault_current_a if src.fault_current_a is not None else math.inf
     near = np.array([fault[p] if p >= 0 else source_level for p in prep.parent.tolist()])
     findings = list(_withstand_findings(prep, choice, near))
+    drop = np.asarray(lf.drop_pct, dtype=float)
+    over = np.flatnonzero(drop > prep.leaf_limit_pct + 1e-6)
+    findings += [Violation(prep.segments[i].id, "total drop (load flow)", float(drop[i]),
+                           float(prep.leaf_limit_pct[i]),
+                           f"the load flow gives {drop[i]:.2f} % from the source, over "
+                           f"{prep.leaf_limit_pct[i]:g} %") for i in over.tolist()]
     dips = []
     limit = prep.profile.motor_start_dip_pct
     for i, seg in enumerate(prep.segments):

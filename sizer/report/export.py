@@ -74,8 +74,9 @@ def design_document(design: Design, extra: Mapping[str, Any] | None = None) -> d
     }
     if design.diagnosis:
         doc["diagnosis"] = list(design.diagnosis)
-    if design.status in ("compliant", "violations"):
-        doc["violations"] = [asdict(v) for v in design.violations]
+    # Rules the design breaks: for check, every rule; for solve, what verification found
+    # (short-circuit withstand, motor-start dip) beyond the rules the optimiser enforced.
+    doc["violations"] = [asdict(v) for v in design.violations]
     if design.notes:
         doc["notes"] = list(design.notes)
     if extra:
