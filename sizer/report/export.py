@@ -121,7 +121,8 @@ def csv_text(header: Sequence[str], rows: Iterable[Sequence[Any]]) -> str:
     writer = csv.writer(buf, lineterminator="\n")
     writer.writerow(header)
     for row in rows:
-        writer.writerow([safe_cell(_fmt(v)) for v in row])
+        # Only text from the scenario is neutralised; a negative number stays a number.
+        writer.writerow([safe_cell(v) if isinstance(v, str) else _fmt(v) for v in row])
     return buf.getvalue()
 
 
