@@ -241,6 +241,15 @@ def _quantity(value: str, unit: str) -> float:
     return parse_quantity(value, unit)
 
 
+def _positive_at_most(x: float, value: Any, what: str, top: float, top_text: str) -> float:
+    """``x`` when 0 < x <= top, else the one-line error naming ``what`` and the bound."""
+    if not x > 0:
+        raise ScenarioError(f"must be a positive {what}, got {_show(value)}")
+    if x > top:
+        raise ScenarioError(f"must be at most {top_text}, got {_show(value)}")
+    return x
+
+
 def read_length(value: Any, text: bool = False) -> float:
     """A route length in metres, positive and at most MAX_LENGTH_M."""
     x = _length_m(_unit_text(value, "120 ft"))
@@ -280,11 +289,7 @@ def read_voltage(value: Any, text: bool = False) -> float:
 def read_current(value: Any, text: bool = False) -> float:
     """A positive current in amperes, at most MAX_CURRENT_A."""
     x = _quantity(_unit_text(value, "20 A"), "A")
-    if not x > 0:
-        raise ScenarioError(f"must be a positive current, got {_show(value)}")
-    if x > MAX_CURRENT_A:
-        raise ScenarioError(f"must be at most {MAX_CURRENT_A / 1e3:g} kA, got {_show(value)}")
-    return x
+    return _positive_at_most(x, value, "current", MAX_CURRENT_A, f"{MAX_CURRENT_A / 1e3:g} kA")
 
 
 def read_fault_current(value: Any, text: bool = False) -> float:
@@ -297,11 +302,10 @@ def read_fault_current(value: Any, text: bool = False) -> float:
 
 def read_time(value: Any, text: bool = False) -> float:
     """A device clearing time in seconds, 1 ms to 5 s."""
-    x = _quantity(_unit_text(value, "0.1 s"), "s")
-    if not x > 0:
-        raise ScenarioError(f"must be a positive time, got {_show(value)}")
     low, high = CLEARING_TIME_S
-    if not low <= x <= high:
+    x = _positive_at_most(_quantity(_unit_text(value, "0.1 s"), "s"), value, "time", high,
+                          f"{high:g} s (the range of the adiabatic withstand check)")
+    if x < low:
         raise ScenarioError(f"must be between {low * 1e3:g} ms and {high:g} s (the range of "
                             f"the adiabatic withstand check), got {_show(value)}")
     return x
@@ -311,7 +315,7 @@ def _price_bound(x: float, value: Any) -> float:
     if x > MAX_PRICE:
         raise ScenarioError(f"must be at most {MAX_PRICE:g} (check the unit), got "
                             f"{_show(value)}")
-    return x
+    return x  # zero is a valid price (free energy, no demand charge)
 
 
 def read_temperature(value: Any, text: bool = False) -> float:
@@ -708,9 +712,7 @@ def _prices(top: _Fields, currency: str | None, path: Path, report: Report,
 
     def per_kg(value: Any, text: bool = False) -> float:
         x = parse_money(_unit_text(value, f"10.5 {currency}/kg"), currency, "kg")
-        if not x > 0:
-            raise ScenarioError(f"must be a positive price, got {_show(value)}")
-        return _price_bound(x, value)
+        return _positive_at_most(x, value, "price", MAX_PRICE, f"{MAX_PRICE:g} (check the unit)")
 
     copper = f.get("copper", per_kg)
     aluminium = f.get("aluminium", per_kg)
