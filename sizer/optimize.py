@@ -18,13 +18,13 @@ from sizer.candidates import (
     MATERIALS,
     LocalDiagnosis,
     build_candidates,
-    conductor_label,
     transformer_drops_pct,
 )
 from sizer.catalogue import Catalogue, load_catalogue
 from sizer.catalogue.prices import PriceList, load_price_list, resolve_price_list
 from sizer.economics import EconomicParams, demand_charge_per_w_year
 from sizer.engines import Problem, Solution, SolveStatus, solve
+from sizer.engines.problem import path_totals
 from sizer.loads import design_segments
 from sizer.model import (
     CandidateTable,
@@ -144,12 +144,7 @@ def build_problem(prep: Prepared, objective: Objective, *, loss_weight: float | 
 
 def path_drops_pct(parent: np.ndarray, own_pct: np.ndarray, fixed_pct: np.ndarray) -> np.ndarray:
     """Cumulative drop from the source to each segment's far end (parents come first)."""
-    out = own_pct + fixed_pct
-    for s in range(out.shape[0]):
-        p = parent[s]
-        if p >= 0:
-            out[s] += out[p]
-    return out
+    return path_totals(parent, own_pct + fixed_pct)
 
 
 def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: str, objective: str,
@@ -380,28 +375,8 @@ def violations(prep: Prepared, choice: np.ndarray, design: Design) -> list[Viola
     return out
 
 
-def label_of_row(prep: Prepared, row: int) -> str:
-    """A candidate row as the trade writes it."""
-    t = prep.table
-    return conductor_label(prep.catalogue, int(t.material[row]), int(t.size_index[row]),
-                           int(t.sets[row]))
 
 
-def rows_of(prep: Prepared, s: int) -> range:
-    """Candidate rows of segment ``s``."""
-    return range(int(prep.table.offsets[s]), int(prep.table.offsets[s + 1]))
-
-
-def with_scenario(prep: Prepared, scenario: Scenario) -> Prepared:
-    """Re-prepare for a changed scenario (prices or economics)."""
-    return prepare(scenario)
-
-
-def load_and_prepare(path: str | Path, *, keep_pins: bool = False) -> Prepared:
-    """Read a scenario file and prepare it."""
-    from sizer.scenario import load_scenario
-
-    return prepare(load_scenario(path), keep_pins=keep_pins)
 
 
 # --- motor starting as a second path constraint -------------------------------------------

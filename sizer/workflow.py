@@ -100,11 +100,6 @@ def _non_dominated(points: list[FrontierPoint]) -> list[FrontierPoint]:
     return out
 
 
-def solve_scenario(prep: Prepared, objective: Objective, *, engine: str = "auto",
-                   solver: str = "cbc", time_limit_s: float | None = None) -> Design:
-    """The optimum design of a prepared scenario."""
-    return optimise(prep, objective, engine=engine, solver=solver, time_limit_s=time_limit_s)
-
 
 # --- verification ---------------------------------------------------------------------
 
@@ -264,7 +259,7 @@ def solve_verified(prep: Prepared, objective: Objective, *, engine: str = "auto"
         if not design.segments:
             return design, None
         audit(prep, design)
-        choice = _choice_of(prep, design)
+        choice = np.asarray(design.choice, dtype=np.int64)
         ver = verify_design(prep, choice)
         over = ver.loadflow_drop_pct - prep.leaf_limit_pct
         bad = np.isfinite(over) & (over > 1e-6)
@@ -276,10 +271,6 @@ def solve_verified(prep: Prepared, objective: Objective, *, engine: str = "auto"
         limits[bad] = limits[bad] - (ver.loadflow_drop_pct[bad] - est[bad]) - 1e-4
         rounds += 1
 
-
-def _choice_of(prep: Prepared, design: Design) -> np.ndarray:
-    """Recover candidate rows from a design built by this module."""
-    return np.asarray(design.choice, dtype=np.int64)
 
 
 # --- options side by side ---------------------------------------------------------------

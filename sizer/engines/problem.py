@@ -69,6 +69,15 @@ def _as_int(name: str, value: object, size: int | None = None) -> np.ndarray:
     return _frozen(arr.astype(np.int64))
 
 
+def path_totals(parent: np.ndarray, own: np.ndarray) -> np.ndarray:
+    """Sum of ``own`` over the path source → s, for every segment (parents come first)."""
+    total = np.asarray(own, dtype=np.float64).tolist()
+    for s, p in enumerate(np.asarray(parent).tolist()):  # parents first: one pass suffices
+        if p >= 0:
+            total[s] += total[p]
+    return np.asarray(total)
+
+
 @dataclass(frozen=True, eq=False)  # arrays inside: compare by identity
 class Problem:
     """One candidate per segment, least cost, path voltage-drop limits.
@@ -198,11 +207,7 @@ class Problem:
         own = np.asarray(per_row, dtype=np.float64)[choice]
         if per_segment is not None:
             own = own + per_segment
-        total = own.tolist()
-        for s, p in enumerate(self.parent.tolist()):  # parents first: one pass suffices
-            if p >= 0:
-                total[s] += total[p]
-        return np.asarray(total)
+        return path_totals(self.parent, own)
 
     def path_drop_pct(self, choice: np.ndarray) -> np.ndarray:
         """Cumulative drop (%) at every segment's far end for a choice of rows."""
