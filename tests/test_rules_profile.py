@@ -149,11 +149,9 @@ def test_awg_areas_are_nec_table_8_circular_mils() -> None:
 
 @pytest.mark.parametrize("name", PROFILES)
 def test_size_order_matches_the_catalogue(name: str) -> None:
-    try:
-        from sizer.catalogue import load_catalogue
-        cat = load_catalogue(load_profile(name).catalogue)
-    except (ImportError, AttributeError, FileNotFoundError, NotImplementedError):
-        pytest.skip("sizer.catalogue is not ready yet")
+    from sizer.catalogue import load_catalogue
+
+    cat = load_catalogue(load_profile(name).catalogue)
     assert tuple(cat.sizes) == load_profile(name).sizes
     # nominal names agree with the catalogue's areas (Table 8 rounds to 4 figures)
     np.testing.assert_allclose(cat.area_mm2, load_profile(name).size_area_mm2, rtol=2e-3)
