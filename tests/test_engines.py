@@ -312,6 +312,16 @@ def test_tree_and_milp_agree_on_random_trees(seed: int, n: int, kmax: int, shape
         assert np.allclose(p.cost[a.choice[differ]].sum(), p.cost[b.choice[differ]].sum())
 
 
+@fast(200)
+@given(seed=st.integers(0, 2**32 - 1), n=st.integers(2, 60), kmax=st.integers(1, 8),
+       shape=st.integers(0, 2), tight=st.booleans())
+def test_tree_and_milp_agree_on_hundreds_of_smaller_trees(seed: int, n: int, kmax: int,
+                                                         shape: int, tight: bool) -> None:
+    # Many smaller trees beside the few large ones above: two hundred more agreements
+    # per CI run at a cost CBC can afford.
+    test_tree_and_milp_agree_on_random_trees.hypothesis.inner_test(seed, n, kmax, shape, tight)
+
+
 @fast(25)
 @given(seed=st.integers(0, 2**32 - 1), n=st.integers(50, 2000), shape=st.integers(0, 2))
 def test_tree_speedups_do_not_change_the_answer(seed: int, n: int, shape: int) -> None:
