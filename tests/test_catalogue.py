@@ -6,13 +6,13 @@ values written here from memory of a source say so.
 
 from __future__ import annotations
 
-import csv
 import math
 import tomllib
 from pathlib import Path
 
 import numpy as np
 import pytest
+from reference_tables import read_reference
 
 from sizer import catalogue as cat
 from sizer.conductors import MM2_PER_CMIL, awg_area_mm2, r_dc_ohm_per_m
@@ -28,12 +28,6 @@ AWG_SIZES = ("14 AWG", "12 AWG", "10 AWG", "8 AWG", "6 AWG", "4 AWG", "3 AWG", "
 METRIC_SIZES = ("1.5 mm2", "2.5 mm2", "4 mm2", "6 mm2", "10 mm2", "16 mm2", "25 mm2",
                 "35 mm2", "50 mm2", "70 mm2", "95 mm2", "120 mm2", "150 mm2", "185 mm2",
                 "240 mm2", "300 mm2", "400 mm2", "500 mm2", "630 mm2")
-
-
-def read_reference(name: str) -> list[dict[str, str]]:
-    with open(REF / name, encoding="utf-8") as fh:
-        lines = [ln for ln in fh if not ln.startswith("#")]
-    return list(csv.DictReader(lines))
 
 
 def table8_name(size: str) -> str:

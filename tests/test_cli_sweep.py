@@ -3,6 +3,7 @@
 import json
 
 from builders import write_scenario
+
 from sizer.cli import main
 
 ONE_BRANCH = """

@@ -1,8 +1,8 @@
 """Motor starting: the dip found by the load flow, and the optimiser keeping it in limits."""
 
 import pytest
-
 from builders import write_scenario
+
 from sizer.optimize import Objective, motor_start_terms, prepare
 from sizer.scenario import load_scenario
 from sizer.workflow import solve_verified

@@ -8,8 +8,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-
 from builders import write_scenario
+
 from sizer.cli import main
 from sizer.economics import economic_size_index
 from sizer.optimize import Objective, optimise, prepare

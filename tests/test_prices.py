@@ -15,6 +15,8 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from reference_tables import awg_name as _awg_name
+from reference_tables import read_reference as _reference
 
 from sizer.catalogue.prices import (
     PriceList,
@@ -31,15 +33,6 @@ COSTDATA = Path(__file__).resolve().parents[1] / "costdata"
 # Densities: Cu 8.89 g/cm³ (IEC 60028) [C], Al 2.703 g/cm³ [M] (shared/reference/README.md).
 DENSITY_KG_PER_M3 = {"Cu": 8890.0, "Al": 2703.0}
 CMIL_TO_MM2 = np.pi / 4 * 0.0254**2  # 1 cmil = (π/4)(0.0254 mm)², exact
-
-
-def _reference(name: str) -> list[dict[str, str]]:
-    with open(REFERENCE / name, encoding="utf-8") as fh:
-        return list(csv.DictReader(line for line in fh if not line.startswith("#")))
-
-
-def _awg_name(text: str) -> str:
-    return parse_size(f"{text} kcmil" if text.isdigit() and int(text) >= 250 else f"{text} AWG")
 
 
 @dataclass(frozen=True)

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import csv
 import math
 from pathlib import Path
 
@@ -10,6 +9,7 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from reference_tables import awg_name, read_reference
 
 from sizer.errors import ScenarioError, UnitError
 from sizer.rules import (
@@ -26,15 +26,6 @@ from sizer.rules import (
 )
 
 REFERENCE = Path(__file__).parent / "reference"
-
-
-def read_reference(name: str) -> list[dict[str, str]]:
-    lines = (REFERENCE / name).read_text(encoding="utf-8").splitlines()
-    return list(csv.DictReader(line for line in lines if not line.startswith("#")))
-
-
-def awg_name(size: str) -> str:
-    return f"{size} AWG" if "/" in size or int(size) < 250 else f"{size} kcmil"
 
 
 # --- NEC Table 310.16 ------------------------------------------------------------------------

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import csv
 import dataclasses
 import math
 import shutil
@@ -10,6 +9,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from reference_tables import read_reference
 
 from sizer.errors import ScenarioError, UnitError
 from sizer.rules import INSTALLATIONS, PROFILES, RuleProfile, load_profile, read_profile
@@ -26,11 +26,6 @@ AWG_SIZES = ("14 AWG", "12 AWG", "10 AWG", "8 AWG", "6 AWG", "4 AWG", "3 AWG", "
 METRIC_SIZES = ("1.5 mm2", "2.5 mm2", "4 mm2", "6 mm2", "10 mm2", "16 mm2", "25 mm2", "35 mm2",
                 "50 mm2", "70 mm2", "95 mm2", "120 mm2", "150 mm2", "185 mm2", "240 mm2",
                 "300 mm2", "400 mm2", "500 mm2", "630 mm2")
-
-
-def read_reference(name: str) -> list[dict[str, str]]:
-    lines = (REFERENCE / name).read_text(encoding="utf-8").splitlines()
-    return list(csv.DictReader(line for line in lines if not line.startswith("#")))
 
 
 @pytest.mark.parametrize("name", PROFILES)
