@@ -380,13 +380,17 @@ def read_load(value: Any, text: bool = False) -> LoadSpec:
         raise
 
 
+def _power_of_kind(value: Any, kind: str, example: str, words: str) -> float:
+    """A positive power of one kind (``"apparent"`` VA or ``"real"`` W)."""
+    spec = _parse_load(_unit_text(value, example))
+    if spec.kind != kind or not spec.value > 0:
+        raise ScenarioError(f"must be a positive {words}, got {_show(value)}")
+    return spec.value
+
+
 def read_rating_va(value: Any, text: bool = False) -> float:
     """A transformer rating: apparent power in VA."""
-    spec = _parse_load(_unit_text(value, "75 kVA"))
-    if spec.kind != "apparent" or not spec.value > 0:
-        raise ScenarioError(f"must be a positive apparent power such as \"75 kVA\", "
-                            f"got {_show(value)}")
-    return spec.value
+    return _power_of_kind(value, "apparent", "75 kVA", 'apparent power such as "75 kVA"')
 
 
 def read_pin(value: Any, text: bool = False) -> Any:
@@ -999,11 +1003,7 @@ def _read_motor(raw: Mapping[str, Any], parent: _Fields) -> Motor | None:
 
 
 def _motor_power(value: Any, text: bool = False) -> float:
-    spec = _parse_load(_unit_text(value, "15 kW"))
-    if spec.kind != "real" or not spec.value > 0:
-        raise ScenarioError(f"must be a positive real power such as \"15 kW\" or \"20 hp\", "
-                            f"got {_show(value)}")
-    return spec.value
+    return _power_of_kind(value, "real", "15 kW", 'real power such as "15 kW" or "20 hp"')
 
 
 # --- from drafts to nodes --------------------------------------------------------------------
