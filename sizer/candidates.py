@@ -58,6 +58,24 @@ class SegmentArrays:
     own_limit_pct: np.ndarray
 
 
+def conductors_per_set(phases: np.ndarray, neutral: np.ndarray) -> np.ndarray:
+    """Phase and neutral conductors in one parallel set (the EGC apart): 2, 3 or 4."""
+    return np.where(phases == 1, 2, 3 + neutral.astype(np.int64))
+
+
+def installed_cost(prices: PriceList, length_m: np.ndarray, conductors: np.ndarray,
+                   mat: np.ndarray, size: np.ndarray, sets: np.ndarray,
+                   egc: np.ndarray) -> np.ndarray:
+    """Upfront cost of each row: per set, its conductors and EGC bought and pulled."""
+    def pick(table_cu: np.ndarray, table_al: np.ndarray, k: np.ndarray) -> np.ndarray:
+        return np.where(mat == 0, table_cu[k], table_al[k])
+
+    cu, al = prices.conductor("Cu"), prices.conductor("Al")
+    per_set = (conductors * pick(cu, al, size) + pick(cu, al, egc)
+               + pick(prices.labour("Cu"), prices.labour("Al"), size))
+    return length_m * sets * per_set
+
+
 def segment_arrays(
     segments: tuple[Segment, ...], profile: RuleProfile, catalogue: Catalogue
 ) -> SegmentArrays:
@@ -78,7 +96,7 @@ def segment_arrays(
             allowed[s, pin_m[s]] = True
     phases = np.array([seg.phases for seg in segments], dtype=np.int64)
     neutral = np.array([seg.neutral for seg in segments], dtype=bool)
-    conductors = np.where(phases == 1, 2, 3 + neutral.astype(np.int64))
+    conductors = conductors_per_set(phases, neutral)
     default_grouping = np.where(phases == 1, 2, 3)
     grouping = np.array(
         [seg.node.cable.grouping or 0 for seg in segments], dtype=np.int64
@@ -230,10 +248,7 @@ def build_candidates(
     egc = np.where(egc_ok, egc, 0)
 
     # --- money --------------------------------------------------------------------------
-    conductor_price = np.where(mat == 0, prices.conductor("Cu")[size], prices.conductor("Al")[size])
-    egc_price = np.where(mat == 0, prices.conductor("Cu")[egc], prices.conductor("Al")[egc])
-    labour = np.where(mat == 0, prices.labour("Cu")[size], prices.labour("Al")[size])
-    capex = length * sets * (sa.conductors[seg] * conductor_price + egc_price + labour)
+    capex = installed_cost(prices, length, sa.conductors[seg], mat, size, sets, egc)
     keep &= np.isfinite(capex) & egc_ok
 
     r_ohm = r_m * length / sets
@@ -370,18 +385,12 @@ def reprice(
     if tuple(prices.sizes) != tuple(catalogue.sizes):
         raise ScenarioError(f"the price list is for the {prices.catalogue} sizes, not the "
                             f"{catalogue.name} catalogue", field="catalogue")
-    phases = np.array([seg.phases for seg in segments], dtype=np.int64)
-    neutral = np.array([seg.neutral for seg in segments], dtype=bool)
-    # Phase + neutral conductors per set, as segment_arrays counts them.
-    conductors = np.where(phases == 1, 2, 3 + neutral.astype(np.int64))
+    conductors = conductors_per_set(
+        np.array([seg.phases for seg in segments], dtype=np.int64),
+        np.array([seg.neutral for seg in segments], dtype=bool))
     seg = table.segment
-    mat = table.material
-    size = table.size_index
-    egc = table.egc_size_index
     length = np.array([s.length_m for s in segments], dtype=float)[seg]
-    conductor_price = np.where(mat == 0, prices.conductor("Cu")[size], prices.conductor("Al")[size])
-    egc_price = np.where(mat == 0, prices.conductor("Cu")[egc], prices.conductor("Al")[egc])
-    labour = np.where(mat == 0, prices.labour("Cu")[size], prices.labour("Al")[size])
-    capex = length * table.sets * (conductors[seg] * conductor_price + egc_price + labour)
+    capex = installed_cost(prices, length, conductors[seg], table.material, table.size_index,
+                           table.sets, table.egc_size_index)
     loss_pv = table.loss_w * loss_pv_per_w
     return replace(table, capex=capex, loss_pv=loss_pv)
