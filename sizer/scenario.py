@@ -725,7 +725,8 @@ def _prices(top: _Fields, currency: str | None, path: Path, report: Report,
     return Prices(catalogue_path, copper, aluminium)
 
 
-_DEFAULT_READERS: dict[str, Reader] = {
+# The cable settings a node inherits from [defaults]: read the same way in both places.
+_CABLE_READERS: dict[str, Reader] = {
     "materials": read_materials,
     "insulation": read_temperature,
     "terminals": _auto(read_temperature),
@@ -733,6 +734,9 @@ _DEFAULT_READERS: dict[str, Reader] = {
     "installation": read_installation,
     "grouping": read_grouping,
     "max_sets": read_sets,
+}
+_DEFAULT_READERS: dict[str, Reader] = {
+    **_CABLE_READERS,
     "power_factor": read_fraction,
     "clearing_time": _auto(read_time),
 }
@@ -901,13 +905,7 @@ _NODE_READERS: dict[str, Reader] = {
     "conductor": read_pin,
     "neutral": read_bool,
     "clearing_time": _auto(read_time),
-    "materials": read_materials,
-    "insulation": read_temperature,
-    "terminals": _auto(read_temperature),
-    "ambient": read_ambient,
-    "installation": read_installation,
-    "grouping": read_grouping,
-    "max_sets": read_sets,
+    **_CABLE_READERS,
 }
 
 
