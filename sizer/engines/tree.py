@@ -242,6 +242,23 @@ def _query_sets(children: list[list[int]], parent: np.ndarray, own_d: np.ndarray
     return queries
 
 
+def _subtree_requirements(own: list[float], floor: list[float], parent: list[int],
+                          ) -> tuple[list[float], list[float]]:
+    """Bottom-up: each subtree's requirement with ``own`` drop per segment.
+
+    Returns (requirement of the subtree topped by s, greatest requirement below s), the
+    latter starting from ``floor`` (a segment's own limit term).
+    """
+    below = list(floor)
+    req = [0.0] * len(own)
+    for s in range(len(own) - 1, -1, -1):
+        req[s] = own[s] + below[s]
+        p = parent[s]
+        if p >= 0 and req[s] > below[p]:
+            below[p] = req[s]
+    return req, below
+
+
 def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
                tol_pct: float = 1e-9, max_queries: int = DEFAULT_MAX_QUERIES) -> Solution:
     """Solve a pure tree problem exactly by the bottom-up Pareto-front program.
@@ -275,13 +292,7 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
     # Least requirement of every subtree (least-drop rows throughout), bottom-up, and the
     # least drop above every segment, top-down.
     least = own_d_all[kept[:-1]].tolist()
-    below_min = list(floor)
-    rmin = [0.0] * n
-    for s in range(n - 1, -1, -1):
-        rmin[s] = least[s] + below_min[s]
-        p = parent_list[s]
-        if p >= 0 and rmin[s] > below_min[p]:
-            below_min[p] = rmin[s]
+    rmin, below_min = _subtree_requirements(least, floor, parent_list)
     above_min = [0.0] * n
     for s, p in enumerate(parent_list):
         if p >= 0:
@@ -307,13 +318,7 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
     # the greatest drop above every segment, top-down: every budget offered to a segment
     # is at least tol − that drop, so the cheapest point within it is all that matters.
     most = own_d_all[kept[1:] - 1].tolist()
-    below_max = list(floor)
-    rmax = [0.0] * n
-    for s in range(n - 1, -1, -1):
-        rmax[s] = most[s] + below_max[s]
-        p = parent_list[s]
-        if p >= 0 and rmax[s] > below_max[p]:
-            below_max[p] = rmax[s]
+    rmax, _ = _subtree_requirements(most, floor, parent_list)
     low_budget = [tol_pct] * n
     for s, p in enumerate(parent_list):
         if p >= 0:
