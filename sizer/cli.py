@@ -172,7 +172,7 @@ def _cmd_solve(args: argparse.Namespace) -> int:
         say("reading the scenario and building candidates")
         prep = _prepare(args)
         say(f"solving {len(prep.segments)} segments, {len(prep.table)} candidates")
-        design, _ver = solve_verified(prep, Objective(args.objective), engine=args.engine,
+        design, ver = solve_verified(prep, Objective(args.objective), engine=args.engine,
                                       solver=args.solver, time_limit_s=args.time_limit,
                                       motor_start=args.motor_start)
         say("writing files")
@@ -181,7 +181,7 @@ def _cmd_solve(args: argparse.Namespace) -> int:
             from sizer.report.html import write_report
 
             write_report(args.report, prep, design, protect=_protect(args, prep.scenario),
-                         progress=say)
+                         progress=say, verification=ver)
     print(summary(design, prep.scenario.title))
     return 0 if design.segments else (1 if design.status == "infeasible" else 2)
 
@@ -259,9 +259,9 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
         from sizer.workflow import solve_verified
 
         prep = prepare(scenario)
-        design, _ = solve_verified(prep, Objective(args.objective), engine=args.engine,
-                                   solver=args.solver, time_limit_s=args.time_limit)
-        write_report(args.report, prep, design, protect=protect,
+        design, ver = solve_verified(prep, Objective(args.objective), engine=args.engine,
+                                     solver=args.solver, time_limit_s=args.time_limit)
+        write_report(args.report, prep, design, protect=protect, verification=ver,
                      extra_sections=[sweep_section_html(result)])
     print(sweep_summary_text(result))  # ends with the caution
     if result.interrupted:

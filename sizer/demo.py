@@ -92,7 +92,7 @@ def run_demo(folder: Path = Path("sizer-demo"), *, force: bool = False,
     progress("reading the scenario and building candidates")
     prep = prepare(load_scenario(scenario_path))
     progress(f"solving {len(prep.segments)} runs for the lifecycle optimum")
-    design, _ver = solve_verified(prep, Objective.LIFECYCLE)
+    design, ver = solve_verified(prep, Objective.LIFECYCLE)
     if not design.segments:
         raise SizerError("the demo scenario has no design: " + "; ".join(design.diagnosis))
     protect = [scenario_path]
@@ -104,7 +104,7 @@ def run_demo(folder: Path = Path("sizer-demo"), *, force: bool = False,
     if with_xlsx:
         xlsx_path = write_xlsx(folder / XLSX_NAME, design, protect=protect)
     report = write_report(folder / REPORT_NAME, prep, design, protect=protect,
-                          progress=progress)
+                          progress=progress, verification=ver)
     return DemoResult(folder=folder, scenario=scenario_path, report=report,
                       schedule_csv=csv_path, results_json=json_path, schedule_xlsx=xlsx_path,
                       design=design, title=prep.scenario.title,

@@ -145,14 +145,16 @@ def write_report(path: str | Path, prep: Prepared, design: Design, *,
                  options: Sequence[Option] | None = None,
                  frontier_points: Sequence[FrontierPoint] | None = None,
                  protect: Sequence[Path] = (), progress: Progress = quiet,
-                 extra_sections: Sequence[str] = ()) -> Path:
+                 extra_sections: Sequence[str] = (),
+                 verification: Verification | None = None) -> Path:
     """Compute what is missing (options, frontier), render the report and write it atomically.
 
     ``extra_sections`` are finished, escaped HTML sections (e.g. the sweep's) placed
     before the footer.
     """
     text = render_report(prep, design, options=options, frontier_points=frontier_points,
-                         progress=progress, extra_sections=extra_sections)
+                         verification=verification, progress=progress,
+                         extra_sections=extra_sections)
     progress("report: writing the file")
     return atomic_write(path, text, protect=protect)
 
