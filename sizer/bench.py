@@ -170,6 +170,7 @@ def measure(n_segments: int, repeats: int = 3, milp_limit_s: float = 60.0,
     from sizer.catalogue import load_catalogue
     from sizer.engines import solve
     from sizer.loads import design_segments
+    from sizer.model import DesignStatus
     from sizer.optimize import Objective, build_problem, design_from_choice, prepare
     from sizer.report.export import design_document, json_text, schedule_csv
     from sizer.rules import load_profile
@@ -195,7 +196,7 @@ def measure(n_segments: int, repeats: int = 3, milp_limit_s: float = 60.0,
     res.stages_s["engine"], sol = _time(lambda: solve(problem, engine="tree"), repeats)
     res.tree_engine_s = res.stages_s["engine"]
     choice = sol.choice
-    design = design_from_choice(prep, choice, status="optimal", objective="lifecycle",
+    design = design_from_choice(prep, choice, status=DesignStatus.OPTIMAL, objective="lifecycle",
                                 solution=sol)
     res.stages_s["verify"], ver = _time(lambda: verify_design(prep, choice), repeats)
     verified = with_verification(prep, design, choice, ver)

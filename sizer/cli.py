@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
@@ -10,7 +11,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from sizer import CAUTION
-from sizer.errors import ScenarioError, SizerError
+from sizer.errors import InternalError, ScenarioError, SizerError
 
 if TYPE_CHECKING:
     from sizer.model import Scenario
@@ -183,29 +184,21 @@ def _cmd_solve(args: argparse.Namespace) -> int:
             write_report(args.report, prep, design, protect=_protect(args, prep.scenario),
                          progress=say, verification=ver)
     print(summary(design, prep.scenario.title))
-    return 0 if design.segments else (1 if design.status == "infeasible" else 2)
+    return 0 if design.segments else 1
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
-    from sizer.optimize import check
+    from sizer.model import DesignStatus
     from sizer.report.terminal import summary
-    from sizer.workflow import verify_design, with_verification
+    from sizer.workflow import check_verified
 
     _outputs(args)
     prep = _prepare(args, keep_pins=True)
-    design = check(prep, engine=args.engine, solver=args.solver)
-    if design.segments:
-        import numpy as np
-
-        choice = np.asarray(design.choice, dtype=np.int64)
-        design = with_verification(prep, design, choice, verify_design(prep, choice))
-        if design.violations:
-            from dataclasses import replace
-
-            design = replace(design, status="violations")
+    design, _ = check_verified(prep, engine=args.engine, solver=args.solver,
+                               time_limit_s=args.time_limit)
     _write_design_files(args, design, prep.scenario)
     print(summary(design, prep.scenario.title))
-    return 0 if design.status == "compliant" else 1
+    return 0 if design.status is DesignStatus.COMPLIANT else 1
 
 
 def _cmd_frontier(args: argparse.Namespace) -> int:
@@ -442,7 +435,11 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    """Run the command line; return the exit code (0 done, 1 infeasible/violations, 2 bad input)."""
+    """Run the command line; return the exit code.
+
+    0 done; 1 no design (infeasible, or none found in time) or rule violations; 2 bad
+    input; 3 an internal error of sizer's own; 130 interrupted.
+    """
     parser = build_parser()
     try:
         args = parser.parse_args(argv)
@@ -455,6 +452,13 @@ def main(argv: Sequence[str] | None = None) -> int:
         located = isinstance(exc, ScenarioError) and exc.file
         print(str(exc) if located else f"sizer: {exc}", file=sys.stderr)
         return exc.exit_code
+    except (RecursionError, MemoryError, ArithmeticError, LookupError, TypeError,
+            AttributeError, AssertionError) as exc:  # our bug, not the user's input
+        if os.environ.get("SIZER_TRACEBACK"):
+            raise
+        print(f"sizer: internal error: {type(exc).__name__}: {exc} (please report this; "
+              f"SIZER_TRACEBACK=1 shows where)", file=sys.stderr)
+        return InternalError.exit_code
     except OSError as exc:  # disk full, permission denied, read-only folder, ...
         where = f"{exc.filename}: " if exc.filename else ""
         print(f"sizer: {where}cannot read or write: {exc.strerror or exc}", file=sys.stderr)

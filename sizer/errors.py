@@ -96,3 +96,18 @@ class InfeasibleError(SizerError):
 
 class SolverError(SizerError, RuntimeError):
     """The optimisation solver is missing or failed; the message names the fix."""
+
+
+class InternalError(SizerError, RuntimeError):
+    """sizer itself went wrong: not the user's input, so exit code 3 and "please report".
+
+    A broken invariant, misuse of an engine, a load flow that does not converge.
+    """
+
+    exit_code = 3
+
+    def __init__(self, message: str, *, field: str | None = None) -> None:
+        self.message = message
+        self.field = field
+        text = f"{field}: {message}" if field else message
+        super().__init__(f"internal error: {text} (please report this)")

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from enum import StrEnum
 from pathlib import Path
 from typing import Literal
 
@@ -353,11 +354,43 @@ class Violation:
     message: str = ""
 
 
+class DesignStatus(StrEnum):
+    """What a design document is, as written in every result (the JSON ``status``)."""
+
+    OPTIMAL = "optimal"          # proven least cost
+    TIME_LIMIT = "time_limit"    # a real design, stopped at the time limit (see its gap)
+    NO_DESIGN = "no_design"      # the solver stopped without finding any design
+    INFEASIBLE = "infeasible"    # proven: no design meets the rules (see the diagnosis)
+    COMPLIANT = "compliant"      # a pinned design that meets every rule
+    VIOLATIONS = "violations"    # a pinned design that breaks rules (see violations)
+
+    @property
+    def words(self) -> str:
+        """The status in plain words, as every report and summary shows it."""
+        return _STATUS_WORDS[self]
+
+    @property
+    def has_design(self) -> bool:
+        """True when the document carries a design (segments), False for the reasons why not."""
+        return self not in (DesignStatus.NO_DESIGN, DesignStatus.INFEASIBLE)
+
+
+_STATUS_WORDS = {
+    DesignStatus.OPTIMAL: "optimal (proven)",
+    DesignStatus.TIME_LIMIT: "stopped at the time limit: best design found, optimality "
+                             "not proven",
+    DesignStatus.NO_DESIGN: "no design found (the solver stopped before finding one)",
+    DesignStatus.INFEASIBLE: "no design satisfies the rules",
+    DesignStatus.COMPLIANT: "the design meets every rule checked",
+    DesignStatus.VIOLATIONS: "the design breaks rules",
+}
+
+
 @dataclass(frozen=True)
 class Design:
     """A finished design (or the reason there is none)."""
 
-    status: str                 # optimal | infeasible | time_limit | error | compliant | violations
+    status: DesignStatus
     objective: str
     rules: str
     currency: str

@@ -8,6 +8,7 @@ rows back into a ``Design``. Solver names stay in ``sizer.engines``.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, replace
 from enum import StrEnum
 from pathlib import Path
@@ -29,6 +30,7 @@ from sizer.loads import design_segments
 from sizer.model import (
     CandidateTable,
     Design,
+    DesignStatus,
     Scenario,
     Segment,
     SegmentResult,
@@ -147,7 +149,8 @@ def path_drops_pct(parent: np.ndarray, own_pct: np.ndarray, fixed_pct: np.ndarra
     return path_totals(parent, own_pct + fixed_pct)
 
 
-def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: str, objective: str,
+def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStatus,
+                       objective: str,
                        solution: Solution | None = None,
                        diagnosis: tuple[str, ...] = ()) -> Design:
     """Re-evaluate the chosen rows from the table and assemble the Design."""
@@ -191,12 +194,41 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: str, objec
     )
 
 
-def empty_design(prep: Prepared, status: str, objective: str,
+def empty_design(prep: Prepared, status: DesignStatus, objective: str,
                  diagnosis: tuple[str, ...]) -> Design:
-    """A design document with no segments (infeasible or error)."""
+    """A design document with no segments: why there is no design."""
     return Design(status=status, objective=objective, rules=prep.profile.name,
                   currency=prep.scenario.currency, totals=Totals(0.0, 0.0, 0.0),
                   segments=(), diagnosis=diagnosis)
+
+
+def design_from_solution(prep: Prepared, solution: Solution, objective: str, *,
+                         status: DesignStatus | None = None,
+                         diagnosis: Callable[[], list[str]] | None = None) -> Design:
+    """The one way a solver outcome becomes a Design.
+
+    A solution with a usable choice becomes a design (``status`` overrides the solver's
+    word, e.g. for a pinned check); a proven-infeasible one carries ``diagnosis()``; any
+    other stop without a choice (time limit before an incumbent, an engine error) is
+    ``no_design`` with the solver's message, never a design made of rows that were not
+    chosen.
+    """
+    if solution.has_solution:
+        if status is None:
+            status = (DesignStatus.OPTIMAL if solution.status is SolveStatus.OPTIMAL
+                      else DesignStatus.TIME_LIMIT)
+        return design_from_choice(prep, solution.choice, status=status, objective=objective,
+                                  solution=solution)
+    if solution.status is SolveStatus.INFEASIBLE:
+        lines = diagnosis() if diagnosis is not None else [solution.message]
+        return empty_design(prep, DesignStatus.INFEASIBLE, objective, tuple(lines))
+    if solution.status is SolveStatus.TIME_LIMIT:
+        why = (f"no design was found within the time limit ({solution.seconds:.1f} s with "
+               f"{solution.engine}); give the solver more time (--time-limit) or use the tree "
+               f"engine where the problem allows it")
+    else:
+        why = f"the {solution.engine or 'solver'} stopped without a design: {solution.message}"
+    return empty_design(prep, DesignStatus.NO_DESIGN, objective, (why,))
 
 
 def optimise(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
@@ -211,21 +243,19 @@ def optimise(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
         side["drop2_pct"], side["limit2_pct"] = motor_start_terms(prep)
     empty = np.diff(prep.table.offsets) == 0
     if empty.any():
-        return empty_design(prep, SolveStatus.INFEASIBLE.value, objective.value,
+        return empty_design(prep, DesignStatus.INFEASIBLE, objective.value,
                             tuple(diagnose(prep)))
     problem = build_problem(prep, objective, loss_weight=loss_weight, limit_pct=limit_pct,
                             **side)
     solution = solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
-    if solution.status is SolveStatus.INFEASIBLE:
+
+    def why() -> list[str]:
         lines = diagnose(prep, limit_pct)
         if "drop2_pct" in side:
             lines = [*_motor_start_diagnosis(prep), *lines[:-1]] or lines
-        return empty_design(prep, solution.status.value, objective.value, tuple(lines))
-    if solution.status is SolveStatus.ERROR or solution.choice is None:
-        return empty_design(prep, SolveStatus.ERROR.value, objective.value,
-                            (solution.message,))
-    return design_from_choice(prep, solution.choice, status=solution.status.value,
-                              objective=objective.value, solution=solution)
+        return lines
+
+    return design_from_solution(prep, solution, objective.value, diagnosis=why)
 
 
 # --- diagnosis ------------------------------------------------------------------------
@@ -321,27 +351,28 @@ def _path(prep: Prepared, s: int) -> list[int]:
 # --- checking a pinned design ---------------------------------------------------------
 
 
-def check(prep: Prepared, *, engine: str = "auto", solver: str = "cbc") -> Design:
+def check(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",
+          time_limit_s: float | None = None) -> Design:
     """Evaluate the design as pinned (unpinned segments filled at least cost) against the rules.
 
     ``prep`` must come from ``prepare(..., keep_pins=True)`` so that pinned rows breaking
-    a rule are still in the table.
+    a rule are still in the table. The status is compliant or violations (from the
+    candidate rows only: ``sizer.workflow.check_verified`` adds the load flow's word).
     """
     empty = np.diff(prep.table.offsets) == 0
     if empty.any():
-        return empty_design(prep, SolveStatus.INFEASIBLE.value, "check", tuple(diagnose(prep)))
+        return empty_design(prep, DesignStatus.INFEASIBLE, "check", tuple(diagnose(prep)))
     problem = build_problem(prep, Objective.CAPEX)
-    solution = solve(problem, engine=engine, solver=solver)
+    solution = solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
     if solution.status is not SolveStatus.OPTIMAL:
         # The pins break a path limit: fill the rest without path limits and report.
         relaxed = replace(problem, limit_pct=np.full_like(problem.limit_pct, np.inf))
-        solution = solve(relaxed, engine=engine, solver=solver)
-    if solution.choice is None:
-        return empty_design(prep, SolveStatus.ERROR.value, "check", (solution.message,))
-    design = design_from_choice(prep, solution.choice, status="compliant", objective="check",
-                                solution=solution)
+        solution = solve(relaxed, engine=engine, solver=solver, time_limit_s=time_limit_s)
+    design = design_from_solution(prep, solution, "check", status=DesignStatus.COMPLIANT)
+    if not design.segments:
+        return design
     found = violations(prep, solution.choice, design)
-    return replace(design, status="violations" if found else "compliant",
+    return replace(design, status=DesignStatus.VIOLATIONS if found else DesignStatus.COMPLIANT,
                    violations=tuple(found))
 
 

@@ -31,7 +31,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from sizer.errors import ScenarioError
+from sizer.errors import InternalError
 
 S_BASE_VA = 1.0e6
 """System power base (VA); results do not depend on it."""
@@ -93,14 +93,14 @@ def _array(name: str, value: object, dtype: type, n: int | None) -> np.ndarray:
         arr: np.ndarray = np.array(value, dtype=dtype)
         exact = dtype is not np.int64 or np.array_equal(arr, np.asarray(value))
     except (TypeError, ValueError) as exc:
-        raise ScenarioError(f"cannot be read as {dtype.__name__} numbers ({exc})",
+        raise InternalError(f"cannot be read as {dtype.__name__} numbers ({exc})",
                             field=name) from None
     if not exact:
-        raise ScenarioError("must hold whole numbers", field=name)
+        raise InternalError("must hold whole numbers", field=name)
     if arr.ndim != 1:
-        raise ScenarioError(f"must be one-dimensional, got shape {arr.shape}", field=name)
+        raise InternalError(f"must be one-dimensional, got shape {arr.shape}", field=name)
     if n is not None and len(arr) != n:
-        raise ScenarioError(f"has {len(arr)} entries, expected {n} (one per node)",
+        raise InternalError(f"has {len(arr)} entries, expected {n} (one per node)",
                             field=name)
     arr.setflags(write=False)
     return arr
@@ -109,7 +109,7 @@ def _array(name: str, value: object, dtype: type, n: int | None) -> np.ndarray:
 def _check(name: str, bad: np.ndarray, what: str) -> None:
     if np.any(bad):
         first = int(np.flatnonzero(bad)[0])
-        raise ScenarioError(f"{what} (first at node index {first})", field=name)
+        raise InternalError(f"{what} (first at node index {first})", field=name)
 
 
 @dataclass(frozen=True, eq=False)
@@ -266,9 +266,9 @@ def _sweep(
 
 def _check_iteration(tol_pu: float, max_iter: int) -> None:
     if not (tol_pu > 0 and math.isfinite(tol_pu)):
-        raise ScenarioError(f"must be a positive number, got {tol_pu}", field="tol_pu")
+        raise InternalError(f"must be a positive number, got {tol_pu}", field="tol_pu")
     if max_iter < 1:
-        raise ScenarioError(f"must be at least 1, got {max_iter}", field="max_iter")
+        raise InternalError(f"must be at least 1, got {max_iter}", field="max_iter")
 
 
 def load_flow(net: Network, tol_pu: float = 1e-8, max_iter: int = 100) -> LoadFlowResult:
@@ -313,17 +313,17 @@ def fault_currents_a(
     and is only referred to each circuit's voltage.
     """
     if source_v is None or not (math.isfinite(source_v) and source_v > 0):
-        raise ScenarioError(f"must be a positive voltage, got {source_v}", field="source_v")
+        raise InternalError(f"must be a positive voltage, got {source_v}", field="source_v")
     if source_phases not in (1, 3):
-        raise ScenarioError(f"must be 1 or 3, got {source_phases}", field="source_phases")
+        raise InternalError(f"must be 1 or 3, got {source_phases}", field="source_phases")
     if source_fault_a is None:
         z_src = 0j
     else:
         if not (math.isfinite(source_fault_a) and source_fault_a > 0):
-            raise ScenarioError(f"must be a positive current, got {source_fault_a}",
+            raise InternalError(f"must be a positive current, got {source_fault_a}",
                                 field="source_fault_a")
         if not source_x_r >= 0:
-            raise ScenarioError(f"must be >= 0, got {source_x_r}", field="source_x_r")
+            raise InternalError(f"must be >= 0, got {source_x_r}", field="source_x_r")
         base_a = S_BASE_VA / ((_SQRT3 if source_phases == 3 else 1.0) * source_v)
         angle = math.atan(source_x_r)  # atan(inf) = π/2: a pure reactance
         z_src = complex(math.cos(angle), math.sin(angle)) * base_a / source_fault_a
@@ -382,19 +382,19 @@ def motor_start_dip_pct(
     out while starting (default 0: everything in ``load_va`` keeps running, which errs
     towards a larger dip). Dip = ``100·(|V_before| − |V_during|)`` with V in pu.
 
-    If the tree cannot carry its running load (no convergence), a ScenarioError is
+    If the tree cannot carry its running load (no convergence), an InternalError is
     raised; if it collapses only during the start, the dip is reported as 100 %.
     """
     _check_iteration(tol_pu, max_iter)
     if not (0 <= node < net.n):
-        raise ScenarioError(f"node index {node} is not in the network of {net.n} nodes",
+        raise InternalError(f"node index {node} is not in the network of {net.n} nodes",
                             field="node")
     if not (np.isfinite(start_va) and np.isfinite(running_va)):
-        raise ScenarioError("starting and running demand must be finite", field="motor")
+        raise InternalError("starting and running demand must be finite", field="motor")
     s_pu = net.load_va / S_BASE_VA
     before = _sweep(net, s_pu, tol_pu, max_iter)
     if not before.converged:
-        raise ScenarioError("the load flow does not converge at running load, so no "
+        raise InternalError("the load flow does not converge at running load, so no "
                             "motor-start dip can be computed", field="motor")
     s_start = s_pu.copy()
     s_start[node] -= complex(running_va) / S_BASE_VA

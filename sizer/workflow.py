@@ -14,9 +14,9 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from sizer.conductors import adiabatic_withstand_a
-from sizer.engines import SolveStatus, solve
-from sizer.errors import SizerError
-from sizer.model import Design, Scenario, Violation
+from sizer.engines import solve
+from sizer.errors import InternalError
+from sizer.model import Design, DesignStatus, Scenario, Violation
 from sizer.optimize import Objective, Prepared, build_problem, check, optimise, prepare
 from sizer.verify import Network, fault_currents_a, load_flow, motor_start_dip_pct
 
@@ -61,7 +61,7 @@ def frontier(prep: Prepared, points: int = 12, *, engine: str = "auto", solver: 
         progress(f"frontier: weight {w:.3g} ({i + 1}/{len(weights)})")
         problem = build_problem(prep, Objective.LIFECYCLE, loss_weight=float(w))
         sol = solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
-        if sol.choice is None or sol.status is SolveStatus.INFEASIBLE:
+        if not sol.has_solution:
             return []
         key = tuple(int(r) for r in sol.choice)
         if key not in found:
@@ -77,8 +77,7 @@ def frontier(prep: Prepared, points: int = 12, *, engine: str = "auto", solver: 
             progress(f"frontier: loss PV cap {cap:,.0f}")
             problem = build_problem(prep, Objective.CAPEX, loss_pv_cap=cap)
             sol = solve(problem, engine="milp", solver=solver, time_limit_s=time_limit_s)
-            if sol.choice is None or sol.status not in (SolveStatus.OPTIMAL,
-                                                         SolveStatus.TIME_LIMIT):
+            if not sol.has_solution:
                 continue
             key = tuple(int(r) for r in sol.choice)
             if key in found:
@@ -273,6 +272,23 @@ def solve_verified(prep: Prepared, objective: Objective, *, engine: str = "auto"
 
 
 
+def check_verified(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",
+                   time_limit_s: float | None = None) -> tuple[Design, Verification | None]:
+    """Check the design as pinned, verify it by load flow and fault level, and say so.
+
+    ``prep`` comes from ``prepare(..., keep_pins=True)``. The status is ``violations``
+    when the rules or the verification find anything, else ``compliant``.
+    """
+    design = check(prep, engine=engine, solver=solver, time_limit_s=time_limit_s)
+    if not design.segments:
+        return design, None
+    choice = np.asarray(design.choice, dtype=np.int64)
+    ver = verify_design(prep, choice)
+    design = with_verification(prep, design, choice, ver)
+    status = DesignStatus.VIOLATIONS if design.violations else DesignStatus.COMPLIANT
+    return replace(design, status=status), ver
+
+
 # --- options side by side ---------------------------------------------------------------
 
 
@@ -326,10 +342,8 @@ def compare_options(prep: Prepared, *, engine: str = "auto", solver: str = "cbc"
     if any(n.pin is not None for n in prep.scenario.nodes):
         progress("option: the design as pinned")
         pinned = prepare(prep.scenario, keep_pins=True, prices=prep.prices)
-        design = check(pinned, engine=engine, solver=solver)
-        if design.segments:
-            choice = np.asarray(design.choice, dtype=np.int64)
-            design = with_verification(pinned, design, choice, verify_design(pinned, choice))
+        design, _ = check_verified(pinned, engine=engine, solver=solver,
+                                   time_limit_s=time_limit_s)
         out.append(Option("as_pinned", "Your pinned design (rest at least cost)", design))
     return out
 
@@ -375,7 +389,8 @@ def audit(prep: Prepared, design: Design, *, rel_tol: float = 1e-6) -> None:
         own = p.drop_branch_pct if s.kind == "branch" else p.drop_feeder_pct
         if not s.pinned and s.vd_pct > own * (1 + rel_tol):
             problems.append(f"'{s.id}' own drop {s.vd_pct:.3f} % over {own:g} %")
-        if leaf[s.id] and not s.pinned and design.status in ("optimal", "time_limit") and (
+        solved = design.status in (DesignStatus.OPTIMAL, DesignStatus.TIME_LIMIT)
+        if leaf[s.id] and not s.pinned and solved and (
                 s.path_vd_pct > p.drop_total_pct * (1 + rel_tol)):
             problems.append(f"'{s.id}' path drop {s.path_vd_pct:.3f} % over {p.drop_total_pct:g} %")
     for name, total in (("capex", design.totals.capex), ("loss_pv", design.totals.loss_pv)):
@@ -383,5 +398,5 @@ def audit(prep: Prepared, design: Design, *, rel_tol: float = 1e-6) -> None:
         if not math.isclose(summed, total, rel_tol=rel_tol, abs_tol=1e-6):
             problems.append(f"total {name} {total:.2f} but the segments sum to {summed:.2f}")
     if problems:
-        raise SizerError("internal check of the design failed (please report this): "
-                         + "; ".join(problems[:3]))
+        raise InternalError("the check of the design from its own numbers failed: "
+                            + "; ".join(problems[:3]))

@@ -18,7 +18,7 @@ from hypothesis import strategies as st
 from sizer.engines import Problem, SolveStatus, solve
 from sizer.engines import milp as milp_engine
 from sizer.engines import tree as tree_engine
-from sizer.errors import ScenarioError, SolverError
+from sizer.errors import InternalError, ScenarioError, SolverError
 
 HAS_HIGHS = milp_engine.solver_available("highs")
 TOL = 1e-9
@@ -498,7 +498,8 @@ def test_problem_validation(change: dict, message: str) -> None:
     fields = dict(parent=p.parent, offsets=p.offsets, cost=p.cost, drop_pct=p.drop_pct,
                   limit_pct=p.limit_pct)
     fields.update(change)
-    with pytest.raises(ScenarioError, match=message):
+    # A malformed problem is sizer's own bug, never the user's input: exit code 3.
+    with pytest.raises(InternalError, match=message):
         Problem(**fields)
 
 

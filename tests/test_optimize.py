@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 import json
 import math
 from pathlib import Path
@@ -81,7 +82,7 @@ def test_frontier_is_monotone(demo):
     capex = [p.capex for p in pts]
     loss = [p.loss_pv for p in pts]
     assert capex == sorted(capex)
-    assert all(b < a for a, b in zip(loss, loss[1:], strict=False))
+    assert all(b < a for a, b in itertools.pairwise(loss))
 
 
 # --- a known optimum: a fatter feeder lets both branches be thinner ----------------------

@@ -16,7 +16,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from sizer.errors import ScenarioError
+from sizer.errors import InternalError
 from sizer.verify import (
     S_BASE_VA,
     LoadFlowResult,
@@ -396,7 +396,7 @@ def test_fault_amperes_fall_down_every_path_without_transformers(net, source_a, 
 def test_fault_rejects_bad_source(kwargs, field):
     net = make_net([-1], 0.01, 480.0)
     args = {"source_fault_a": 10e3, "source_v": 480.0, "source_x_r": 5.0} | kwargs
-    with pytest.raises(ScenarioError) as err:
+    with pytest.raises(InternalError) as err:
         fault_currents_a(net, **args)
     assert err.value.field == field
 
@@ -441,13 +441,13 @@ def test_running_demand_taken_out_while_starting():
 def test_motor_start_collapse_and_bad_input():
     heavy = make_net([-1, 0], [0.01, 0.3], 240.0, phases=[3, 1],
                      load_va=[0j, 60e3])
-    with pytest.raises(ScenarioError):
+    with pytest.raises(InternalError):
         motor_start_dip_pct(heavy, 1, 1e3)  # cannot carry its running load
     weak = make_net([-1, 0], [0.01, 0.3], 240.0, phases=[3, 1], load_va=[0j, 8e3])
     assert load_flow(weak).converged
     # a start so heavy that the constant-power load beside it collapses
     assert motor_start_dip_pct(weak, 1, 1e6) == 100.0
-    with pytest.raises(ScenarioError):
+    with pytest.raises(InternalError):
         motor_start_dip_pct(weak, 2, 1e3)
 
 
@@ -477,7 +477,7 @@ def test_network_rejects_bad_arrays(change, field):
         "load_va": np.zeros(2, complex), "xfmr_rating_va": np.zeros(2),
         "xfmr_z_pct": np.zeros(2, complex), "xfmr_secondary_v": np.zeros(2),
     }
-    with pytest.raises(ScenarioError) as err:
+    with pytest.raises(InternalError) as err:
         Network(**(good | change))
     assert err.value.field == field
 
@@ -495,9 +495,9 @@ def test_network_is_frozen_and_read_only():
 
 def test_iteration_settings_are_checked():
     net = make_net([-1], 0.01, 480.0)
-    with pytest.raises(ScenarioError):
+    with pytest.raises(InternalError):
         load_flow(net, tol_pu=0.0)
-    with pytest.raises(ScenarioError):
+    with pytest.raises(InternalError):
         load_flow(net, max_iter=0)
 
 

@@ -36,6 +36,9 @@ def solve(problem: Problem, engine: str = "auto", solver: str = "cbc",
     if solver not in SOLVERS:
         raise ScenarioError(f"unknown solver {solver!r}; choose one of {', '.join(SOLVERS)}",
                             field="solver")
+    if engine == "tree" and problem.has_side_constraints:
+        raise ScenarioError("the tree engine takes no side constraints (motor start, budget "
+                            "caps, frontier caps); use engine 'auto' or 'milp'", field="engine")
     if engine == "milp" or (engine == "auto" and problem.has_side_constraints):
         return solve_milp(problem, solver=solver, time_limit_s=time_limit_s)
     first = _tree.solve_tree(problem, max_front=_tree.DEFAULT_MAX_FRONT)

@@ -18,7 +18,7 @@ from enum import StrEnum
 
 import numpy as np
 
-from sizer.errors import ScenarioError
+from sizer.errors import InternalError
 
 __all__ = ["Problem", "Solution", "SolveStatus"]
 
@@ -44,17 +44,17 @@ def _as_float(name: str, value: object, size: int, *, finite: bool = True) -> np
     try:
         arr = np.asarray(value, dtype=np.float64)
     except (TypeError, ValueError) as exc:
-        raise ScenarioError(f"must be numbers ({exc})", field=name) from exc
+        raise InternalError(f"must be numbers ({exc})", field=name) from exc
     if arr.ndim == 0:
         arr = np.full(size, float(arr))
     if arr.shape != (size,):
-        raise ScenarioError(f"must have shape ({size},), got {arr.shape}", field=name)
+        raise InternalError(f"must have shape ({size},), got {arr.shape}", field=name)
     if finite and not np.all(np.isfinite(arr)):
         bad = int(np.flatnonzero(~np.isfinite(arr))[0])
-        raise ScenarioError(f"must be finite; entry {bad} is {arr[bad]}", field=name)
+        raise InternalError(f"must be finite; entry {bad} is {arr[bad]}", field=name)
     if np.any(np.isnan(arr)):
         bad = int(np.flatnonzero(np.isnan(arr))[0])
-        raise ScenarioError(f"entry {bad} is NaN", field=name)
+        raise InternalError(f"entry {bad} is NaN", field=name)
     return _frozen(arr)
 
 
@@ -62,10 +62,10 @@ def _as_int(name: str, value: object, size: int | None = None) -> np.ndarray:
     """Read a 1-D int64 array (of length ``size`` when given)."""
     arr = np.asarray(value)
     if arr.ndim != 1 or not (arr.size == 0 or np.issubdtype(arr.dtype, np.integer)):
-        raise ScenarioError(f"must be a 1-D integer array, got {arr.dtype} {arr.shape}",
+        raise InternalError(f"must be a 1-D integer array, got {arr.dtype} {arr.shape}",
                             field=name)
     if size is not None and arr.shape != (size,):
-        raise ScenarioError(f"must have shape ({size},), got {arr.shape}", field=name)
+        raise InternalError(f"must have shape ({size},), got {arr.shape}", field=name)
     return _frozen(arr.astype(np.int64))
 
 
@@ -113,12 +113,12 @@ class Problem:
         parent = _as_int("parent", self.parent)
         n = parent.size
         if n == 0:
-            raise ScenarioError("the problem has no segments", field="parent")
+            raise InternalError("the problem has no segments", field="parent")
         idx = np.arange(n)
         bad = np.flatnonzero((parent >= idx) | (parent < -1))
         if bad.size:
             s = int(bad[0])
-            raise ScenarioError(
+            raise InternalError(
                 f"segment {s} has parent {int(parent[s])}; segments must be ordered "
                 "parents first (-1 <= parent[s] < s)", field="parent")
         put(self, "parent", parent)
@@ -127,7 +127,7 @@ class Problem:
         counts = np.diff(offsets)
         if offsets[0] != 0 or np.any(counts < 1):
             s = int(np.flatnonzero(counts < 1)[0]) if np.any(counts < 1) else 0
-            raise ScenarioError(
+            raise InternalError(
                 f"offsets must start at 0 and give every segment at least one candidate "
                 f"(segment {s} has none)", field="offsets")
         put(self, "offsets", offsets)
@@ -138,7 +138,7 @@ class Problem:
         put(self, "fixed_drop_pct", _as_float("fixed_drop_pct", self.fixed_drop_pct, n))
         limit = _as_float("limit_pct", self.limit_pct, n, finite=False)
         if np.any(limit == -np.inf):
-            raise ScenarioError("must be a number or +inf, not -inf", field="limit_pct")
+            raise InternalError("must be a number or +inf, not -inf", field="limit_pct")
         put(self, "limit_pct", limit)
 
         for name, cap_name in (("capex", "capex_cap"), ("loss_pv", "loss_pv_cap")):
@@ -147,33 +147,33 @@ class Problem:
                 put(self, name, _as_float(name, arr, m))
             if cap is not None:
                 if arr is None:
-                    raise ScenarioError(f"{cap_name} needs {name} per candidate",
+                    raise InternalError(f"{cap_name} needs {name} per candidate",
                                         field=cap_name)
                 if not np.isfinite(cap):
-                    raise ScenarioError("must be a finite number", field=cap_name)
+                    raise InternalError("must be a finite number", field=cap_name)
                 put(self, cap_name, float(cap))
 
         groups = tuple(_as_int("same_choice_groups", g) for g in self.same_choice_groups)
         for g in groups:
             if g.size and (g.min() < 0 or g.max() >= n):
-                raise ScenarioError(f"segment index out of range 0..{n - 1}",
+                raise InternalError(f"segment index out of range 0..{n - 1}",
                                     field="same_choice_groups")
             if np.unique(g).size != g.size:
-                raise ScenarioError("a group names a segment twice", field="same_choice_groups")
+                raise InternalError("a group names a segment twice", field="same_choice_groups")
         put(self, "same_choice_groups", groups)
         if self.choice_key is not None:
             put(self, "choice_key", _as_int("choice_key", self.choice_key, m))
         elif any(g.size > 1 for g in groups):
-            raise ScenarioError("same_choice_groups needs choice_key per candidate",
+            raise InternalError("same_choice_groups needs choice_key per candidate",
                                 field="choice_key")
 
         if (self.drop2_pct is None) != (self.limit2_pct is None):
-            raise ScenarioError("drop2_pct and limit2_pct go together", field="drop2_pct")
+            raise InternalError("drop2_pct and limit2_pct go together", field="drop2_pct")
         if self.drop2_pct is not None:
             put(self, "drop2_pct", _as_float("drop2_pct", self.drop2_pct, m))
             limit2 = _as_float("limit2_pct", self.limit2_pct, n, finite=False)
             if np.any(limit2 == -np.inf):
-                raise ScenarioError("must be a number or +inf, not -inf", field="limit2_pct")
+                raise InternalError("must be a number or +inf, not -inf", field="limit2_pct")
             put(self, "limit2_pct", limit2)
 
     @property

@@ -41,7 +41,7 @@ import time
 import numpy as np
 
 from sizer.engines.problem import Problem, Solution, SolveStatus
-from sizer.errors import ScenarioError
+from sizer.errors import InternalError
 
 __all__ = ["DEFAULT_MAX_FRONT", "DEFAULT_MAX_QUERIES", "exact_grid_pct", "solve_tree",
            "undominated_rows"]
@@ -270,7 +270,7 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
     """
     t0 = time.perf_counter()
     if problem.has_side_constraints:
-        raise ScenarioError(
+        raise InternalError(
             "the tree engine takes no side constraints (budget caps, groups, second drop "
             "limit); use engine='milp'", field="engine")
     n = problem.n_segments

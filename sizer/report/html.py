@@ -23,7 +23,7 @@ import numpy as np
 
 from sizer import CAUTION, __version__
 from sizer.catalogue.prices import resolve_price_list
-from sizer.model import Design, Scenario
+from sizer.model import Design, DesignStatus, Scenario
 from sizer.optimize import Prepared
 from sizer.report import plots
 from sizer.report import tables as tb
@@ -50,14 +50,6 @@ REPORT_CAUTION = (
 REPORT_FRONTIER_POINTS = 10
 REPORT_FRONTIER_TIME_LIMIT_S = 20.0
 
-_STATUS_WORDS = {
-    "optimal": "optimal (proven)",
-    "time_limit": "best found within the time limit (not proven optimal)",
-    "infeasible": "no design satisfies the rules",
-    "error": "solver error",
-    "compliant": "meets every rule checked",
-    "violations": "breaks rules",
-}
 
 
 
@@ -252,7 +244,7 @@ class _Page:
         d = self.design
         if not d.segments:
             items = "".join(f"<li>{esc(x)}</li>" for x in d.diagnosis)
-            return (f'<p class="headline">No design: {esc(_STATUS_WORDS.get(d.status, d.status))}'
+            return (f'<p class="headline">No design: {esc(DesignStatus(d.status).words)}'
                     f".</p><ul>{items}</ul>")
         t = d.totals
         lf = [s.loadflow_drop_pct for s in d.segments if s.loadflow_drop_pct is not None]
@@ -278,7 +270,7 @@ class _Page:
         return (f'<p class="headline">{esc(self.headline())}</p>'
                 f'<div class="cards">{"".join(cards)}</div>'
                 f'<p class="muted">Design: {esc(_objective_words(d))}, status '
-                f"{esc(_STATUS_WORDS.get(d.status, d.status))}"
+                f"{esc(DesignStatus(d.status).words)}"
                 f"{', engine ' + esc(d.engine) if d.engine else ''}.</p>")
 
     def headline(self) -> str:
@@ -393,7 +385,7 @@ class _Page:
         rows: list[list[object]] = []
         classes: list[str] = []
         for r in self.option_rows:
-            title = r.title if r.feasible else f"{r.title}: {_STATUS_WORDS.get(r.status, r.status)}"
+            title = r.title if r.feasible else f"{r.title}: {DesignStatus(r.status).words}"
             rows.append([title, num(r.capex), num(r.loss_pv), num(r.lifecycle),
                          num(r.loss_kwh_per_year), num(r.loss_cost_per_year),
                          num(r.worst_drop_pct, 2), num(r.worst_loadflow_drop_pct, 2),

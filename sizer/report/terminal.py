@@ -3,26 +3,17 @@
 from __future__ import annotations
 
 from sizer import CAUTION
-from sizer.model import Design
-
-_STATUS_WORDS = {
-    "optimal": "optimal (proven)",
-    "time_limit": "stopped at the time limit: best design found, optimality not proven",
-    "infeasible": "no design satisfies the rules",
-    "error": "solver error",
-    "compliant": "the design meets every rule checked",
-    "violations": "the design breaks rules",
-}
+from sizer.model import Design, DesignStatus
 
 
 def summary(design: Design, title: str, *, max_rows: int = 40, max_findings: int = 8) -> str:
     """A one-screen text summary; long schedules and finding lists are cut short."""
     cur = design.currency
-    lines = [f"{title}", f"status: {_STATUS_WORDS.get(design.status, design.status)}"
+    lines = [f"{title}", f"status: {DesignStatus(design.status).words}"
              f"   objective: {design.objective}   rules: {design.rules}"
              + (f"   engine: {design.engine}" if design.engine else "")
              + (f"   proven gap: {100 * design.gap:.3g} %"
-                if design.status == "time_limit" and design.gap is not None else "")]
+                if design.status is DesignStatus.TIME_LIMIT and design.gap is not None else "")]
     if design.segments:
         lines.append(
             f"{'segment':<14} {'kind':<7} {'length':>8} {'I A':>7} {'dev A':>6} "
