@@ -12,7 +12,7 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-import sizer
+from sizer.bundled import bundled_folder
 from sizer.errors import ScenarioError, SizerError
 from sizer.model import Design
 from sizer.workflow import Progress, quiet
@@ -49,10 +49,10 @@ class DemoResult:
 
 def bundled_scenario(name: str = DEMO_SCENARIO) -> Path:
     """Path of a demo scenario shipped in ``scenarios/`` beside the package."""
-    path = Path(sizer.__file__).resolve().parents[1] / "scenarios" / name
+    path = bundled_folder("scenarios") / name
     if not path.is_file():
         raise SizerError(f"the bundled demo scenario is missing: {path} "
-                         "(sizer demo runs from a source checkout or a full install)")
+                         "(reinstall sizer: the wheel carries its demo scenarios)")
     return path
 
 

@@ -22,6 +22,7 @@ from typing import Protocol
 import numpy as np
 import numpy.typing as npt
 
+from sizer.bundled import bundled_folder
 from sizer.errors import ScenarioError, UnitError
 from sizer.units import MATERIALS, parse_length_m, parse_material, parse_money, parse_size
 
@@ -30,7 +31,7 @@ COLUMNS = ("material", "size", "conductor_price", "labour", "metal_kg")
 BASIS_KEYS: dict[str, str] = {"Cu": "copper_price_basis", "Al": "aluminium_price_basis"}
 # The scenario's [prices] field that re-indexes each metal (for error locations).
 REINDEX_FIELDS: dict[str, str] = {"Cu": "copper", "Al": "aluminium"}
-COSTDATA_DIR = Path(__file__).resolve().parents[2] / "costdata"
+COSTDATA_DIR = bundled_folder("costdata")
 
 _HEADER = re.compile(r"^#\s*(?P<key>[A-Za-z_]+)\s*:\s*(?P<value>.*?)\s*$")
 
@@ -296,7 +297,7 @@ def _check_complete(rows: list[_Row], catalogue: SizeCatalogue, file: str) -> No
 
 
 def bundled_price_list_path(name: str) -> Path:
-    """Path of a price list shipped in ``costdata/`` of the source checkout.
+    """Path of a price list shipped in ``costdata/`` (in the checkout or the wheel).
 
     Accepts ``"demo-us.csv"``, ``"demo-us"`` or ``"costdata/demo-us.csv"``.
     """
