@@ -40,20 +40,19 @@ the rule profile decides. Every problem is reported as one line
 from __future__ import annotations
 
 import csv
+import dataclasses
 import io
-import math
 import os
 import re
 import tokenize
 import tomllib
 from collections.abc import Callable, Mapping
-from functools import lru_cache
 from pathlib import Path
 from typing import Any
 
-from sizer.errors import ScenarioError, UnitError
+from sizer import fields
+from sizer.errors import ScenarioError
 from sizer.model import (
-    AMBIENT_RANGE_C,
     CableSettings,
     Economics,
     Motor,
@@ -63,17 +62,16 @@ from sizer.model import (
     Source,
     Transformer,
 )
-from sizer.units import (
-    CURRENCIES,
-    LoadSpec,
-    parse_conductor,
-    parse_length_m,
-    parse_load,
-    parse_material,
-    parse_money,
-    parse_percent,
-    parse_quantity,
+from sizer.readers import (
+    HP_W,
+    Reader,
+    read_fraction,
+    read_motor_power,
+    read_number,
+    read_text,
+    show,
 )
+from sizer.units import CURRENCIES
 from sizer.validation import (
     TREE_CHECKS,
     NodeDraft,
@@ -91,311 +89,18 @@ from sizer.validation import (
 __all__ = ["NODE_KEYS", "SCHEDULE_COLUMNS", "load_scenario", "write_schedule_csv"]
 
 TOP_KEYS = ("project", "economics", "prices", "defaults", "source", "node")
-PROJECT_KEYS = ("title", "rules", "currency", "schedule")
-ECONOMICS_KEYS = ("energy_price", "demand_charge", "escalation", "discount_rate",
-                  "load_growth", "lifetime", "load_factor", "loss_load_factor", "hours",
-                  "emission_factor")
-ECONOMICS_REQUIRED = ("energy_price", "discount_rate", "lifetime", "load_factor")
-PRICES_KEYS = ("catalogue", "copper", "aluminium", "aluminum")
-CABLE_KEYS = ("materials", "insulation", "terminals", "ambient", "installation",
-              "grouping", "max_sets")
-DEFAULTS_KEYS = (*CABLE_KEYS, "power_factor", "clearing_time")
-SOURCE_KEYS = ("id", "voltage", "phases", "fault_current", "x_r")
-TRANSFORMER_KEYS = ("rating", "secondary", "impedance", "x_r", "secondary_phases",
-                    "core_loss")
-MOTOR_KEYS = ("kw", "hp", "power", "start_multiple", "start_pf")
-NODE_KEYS = ("id", "parent", "description", "length", "voltage", "phases", "load",
-             "power_factor", "continuous", "ocpd", "demand_factor", "conductor", "neutral",
-             "clearing_time", "motor", "transformer", *CABLE_KEYS)
-SCHEDULE_COLUMNS = (
-    *(k for k in NODE_KEYS if k not in ("motor", "transformer")),
-    *(f"transformer.{k}" for k in TRANSFORMER_KEYS),
-    *(f"motor.{k}" for k in MOTOR_KEYS),
-)
-# The installation words of the scenario format (CONTRACT.md); the catalogue decides.
-INSTALLATION_WORDS = ("conduit", "steel_conduit", "tray", "buried", "free_air")
-# sizer sizes low-voltage cable: 1000 V AC is the top of the low-voltage range (IEC 60038).
-MAX_VOLTAGE_V = 1000.0
-DEFAULT_POWER_FACTOR = 0.9
-# Sanity bounds, not rules: beyond them an input is a typo, and the candidate grid
-# (segments x materials x sizes x sets) would exhaust memory or overflow.
-MAX_LENGTH_M = 100_000.0   # 100 km, far beyond any low-voltage run
-MAX_SETS = 20              # parallel sets of one run
-MAX_GROUPING = 1000        # current-carrying conductors in one raceway
-MAX_CURRENT_A = 1.0e6      # a device rating or an available fault current (1 MA)
-MIN_FAULT_A = 10.0
-CLEARING_TIME_S = (1e-3, 5.0)  # the adiabatic limit holds up to 5 s (IEC 60949)
-MAX_PRICE = 1.0e6          # per kWh, per kW-month or per kg, in any currency
-# Mechanical horsepower (the NEC and NEMA motor rating unit), 745.7 W, from pint.
-HP_W = parse_quantity("1 hp", "W")
-
-
-# --- reading one value ----------------------------------------------------------------------
-# Each reader takes the raw value (TOML value, or CSV cell text when ``text`` is True) and
-# returns the parsed value or raises ScenarioError with a message; the caller adds where.
-
-Reader = Callable[[Any, bool], Any]
-
-
-def _show(value: Any) -> str:
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    return repr(value)
-
-
-def _unit_text(value: Any, example: str) -> str:
-    if isinstance(value, bool) or not isinstance(value, str):
-        raise ScenarioError(f"must be a quantity with its unit, in quotes, e.g. \"{example}\", "
-                            f"got {_show(value)}")
-    return value
-
-
-def read_text(value: Any, text: bool = False) -> str:
-    """One line of non-empty text."""
-    if not isinstance(value, str):
-        raise ScenarioError(f"must be text in quotes, got {_show(value)}")
-    s = value.strip()
-    if not s:
-        raise ScenarioError("must not be empty")
-    if any(ord(c) < 32 for c in s):
-        raise ScenarioError(f"must be one line of text, got {value!r}")
-    return s
-
-
-def read_number(value: Any, text: bool = False) -> float:
-    """A plain finite number (a CSV cell's text is read as one)."""
-    if isinstance(value, bool):
-        raise ScenarioError(f"must be a number, got {_show(value)}")
-    if isinstance(value, int | float):
-        try:
-            x = float(value)
-        except OverflowError as exc:
-            raise ScenarioError(f"is too large, got {value}") from exc
-    elif isinstance(value, str) and text:
-        try:
-            x = float(value.strip())
-        except ValueError as exc:
-            raise ScenarioError(f"must be a number, got {value!r}") from exc
-    elif isinstance(value, str):
-        raise ScenarioError(f"must be a plain number without quotes or unit, got {value!r}")
-    else:
-        raise ScenarioError(f"must be a number, got {_show(value)}")
-    if not math.isfinite(x):
-        raise ScenarioError(f"must be a finite number, got {_show(value)}")
-    return x
-
-
-def read_fraction(value: Any, text: bool = False) -> float:
-    """A number in (0, 1]: power factor, demand factor, load factor."""
-    x = read_number(value, text)
-    if not 0 < x <= 1:
-        raise ScenarioError(f"must be in (0, 1], got {_show(value)}")
-    return x
-
-
-def read_phases(value: Any, text: bool = False) -> int:
-    """1 or 3."""
-    x = read_number(value, text)
-    if x not in (1.0, 3.0):
-        raise ScenarioError(f"must be 1 or 3, got {_show(value)}")
-    return int(x)
-
-
-def read_count(value: Any, text: bool = False) -> int:
-    """A whole number of at least 1."""
-    x = read_number(value, text)
-    if x != int(x) or x < 1:
-        raise ScenarioError(f"must be a whole number of at least 1, got {_show(value)}")
-    return int(x)
-
-
-def _auto(read: Reader) -> Reader:
-    """Let ``"auto"`` stand for None (the rule profile decides)."""
-    def reader(value: Any, text: bool = False) -> Any:
-        if isinstance(value, str) and value.strip().lower() == "auto":
-            return None
-        return read(value, text)
-    return reader
-
-
-def read_bool(value: Any, text: bool = False) -> bool:
-    """A boolean: true or false (a CSV cell may also say yes/no/1/0)."""
-    if isinstance(value, bool):
-        return value
-    if text and isinstance(value, str):
-        word = value.strip().lower()
-        if word in ("true", "yes", "y", "1"):
-            return True
-        if word in ("false", "no", "n", "0"):
-            return False
-    raise ScenarioError(f"must be true or false, got {_show(value)}")
-
-
-# pint parsing costs ~20 µs; schedules repeat the same strings many times over.
-_length_m = lru_cache(maxsize=4096)(parse_length_m)
-_parse_load = lru_cache(maxsize=4096)(parse_load)
-
-
-@lru_cache(maxsize=4096)
-def _quantity(value: str, unit: str) -> float:
-    return parse_quantity(value, unit)
-
-
-def _positive_at_most(x: float, value: Any, what: str, top: float, top_text: str) -> float:
-    """``x`` when 0 < x <= top, else the one-line error naming ``what`` and the bound."""
-    if not x > 0:
-        raise ScenarioError(f"must be a positive {what}, got {_show(value)}")
-    if x > top:
-        raise ScenarioError(f"must be at most {top_text}, got {_show(value)}")
-    return x
-
-
-def read_length(value: Any, text: bool = False) -> float:
-    """A route length in metres, positive and at most MAX_LENGTH_M."""
-    x = _length_m(_unit_text(value, "120 ft"))
-    if not x > 0:
-        raise ScenarioError(f"must be a positive length, got {_show(value)}")
-    if x > MAX_LENGTH_M:
-        raise ScenarioError(f"must be at most {MAX_LENGTH_M / 1000:g} km (a low-voltage run "
-                            f"is far shorter: check the unit), got {_show(value)}")
-    return x
-
-
-def _at_most(read: Reader, top: int, what: str) -> Reader:
-    """``read``, refusing values above ``top``."""
-    def reader(value: Any, text: bool = False) -> Any:
-        x = read(value, text)
-        if x is not None and x > top:
-            raise ScenarioError(f"must be at most {top} {what}, got {_show(value)}")
-        return x
-    return reader
-
-
-read_sets = _at_most(read_count, MAX_SETS, "parallel sets")
-read_grouping = _at_most(_auto(read_count), MAX_GROUPING, "conductors in one raceway")
-
-
-def read_voltage(value: Any, text: bool = False) -> float:
-    """A low voltage in volts."""
-    x = _quantity(_unit_text(value, "480 V"), "V")
-    if not x > 0:
-        raise ScenarioError(f"must be a positive voltage, got {_show(value)}")
-    if x > MAX_VOLTAGE_V:
-        raise ScenarioError(f"sizer sizes low-voltage circuits, up to {MAX_VOLTAGE_V:g} V; "
-                            f"got {_show(value)}")
-    return x
-
-
-def read_current(value: Any, text: bool = False) -> float:
-    """A positive current in amperes, at most MAX_CURRENT_A."""
-    x = _quantity(_unit_text(value, "20 A"), "A")
-    return _positive_at_most(x, value, "current", MAX_CURRENT_A, f"{MAX_CURRENT_A / 1e3:g} kA")
-
-
-def read_fault_current(value: Any, text: bool = False) -> float:
-    """An available fault current in amperes (10 A to 1 MA)."""
-    x = read_current(value, text)
-    if x < MIN_FAULT_A:
-        raise ScenarioError(f"must be at least {MIN_FAULT_A:g} A, got {_show(value)}")
-    return x
-
-
-def read_time(value: Any, text: bool = False) -> float:
-    """A device clearing time in seconds, 1 ms to 5 s."""
-    low, high = CLEARING_TIME_S
-    x = _positive_at_most(_quantity(_unit_text(value, "0.1 s"), "s"), value, "time", high,
-                          f"{high:g} s (the range of the adiabatic withstand check)")
-    if x < low:
-        raise ScenarioError(f"must be between {low * 1e3:g} ms and {high:g} s (the range of "
-                            f"the adiabatic withstand check), got {_show(value)}")
-    return x
-
-
-def _price_bound(x: float, value: Any) -> float:
-    if x > MAX_PRICE:
-        raise ScenarioError(f"must be at most {MAX_PRICE:g} (check the unit), got "
-                            f"{_show(value)}")
-    return x  # zero is a valid price (free energy, no demand charge)
-
-
-def read_temperature(value: Any, text: bool = False) -> float:
-    """A conductor or terminal temperature rating in degC."""
-    x = _quantity(_unit_text(value, "90 degC"), "degC")
-    if not 0 < x <= 300:
-        raise ScenarioError(f"must be a temperature rating such as \"90 degC\", "
-                            f"got {_show(value)}")
-    return x
-
-
-def read_ambient(value: Any, text: bool = False) -> float:
-    """An ambient temperature in degC, within what cable routes see."""
-    x = _quantity(_unit_text(value, "30 degC"), "degC")
-    lo, hi = AMBIENT_RANGE_C
-    if not lo <= x <= hi:
-        raise ScenarioError(f"must be a plausible ambient, {lo:g} degC to {hi:g} degC, "
-                            f"got {_show(value)}")
-    return x
-
-
-def read_percent(value: Any, text: bool = False) -> float:
-    """A percentage, returned as a fraction ("2 %" -> 0.02)."""
-    return parse_percent(_unit_text(value, "2 %")) / 100.0
-
-
-def read_materials(value: Any, text: bool = False) -> tuple[str, ...]:
-    """A list of materials (or text such as "Cu, Al")."""
-    if isinstance(value, str):
-        parts: list[Any] = [p for p in re.split(r"[,;/\s]+", value.strip()) if p]
-    elif isinstance(value, list):
-        parts = value
-    else:
-        raise ScenarioError(f"must be a list such as [\"Cu\", \"Al\"], got {_show(value)}")
-    materials = tuple(dict.fromkeys(parse_material(p) for p in parts))
-    if not materials:
-        raise ScenarioError("must name at least one material (\"Cu\", \"Al\")")
-    return materials
-
-
-def read_installation(value: Any, text: bool = False) -> str:
-    """An installation word the conductor catalogue knows."""
-    from sizer.catalogue import installation
-
-    word = read_text(value)
-    try:
-        installation(word)
-    except ScenarioError as exc:
-        raise ScenarioError(f"unknown installation {word!r}{suggest(word, INSTALLATION_WORDS)} "
-                            f"(use {', '.join(INSTALLATION_WORDS)})") from exc
-    return word
-
-
-def read_load(value: Any, text: bool = False) -> LoadSpec:
-    """A load in A, W/kW/hp or VA/kVA."""
-    raw = _unit_text(value, "12 kW")
-    try:
-        return _parse_load(raw)
-    except UnitError as exc:
-        if "not negative" in exc.message:
-            raise ScenarioError(f"must be a load of at least 0, got {raw!r}") from exc
-        raise
-
-
-def _power_of_kind(value: Any, kind: str, example: str, words: str) -> float:
-    """A positive power of one kind (``"apparent"`` VA or ``"real"`` W)."""
-    spec = _parse_load(_unit_text(value, example))
-    if spec.kind != kind or not spec.value > 0:
-        raise ScenarioError(f"must be a positive {words}, got {_show(value)}")
-    return spec.value
-
-
-def read_rating_va(value: Any, text: bool = False) -> float:
-    """A transformer rating: apparent power in VA."""
-    return _power_of_kind(value, "apparent", "75 kVA", 'apparent power such as "75 kVA"')
-
-
-def read_pin(value: Any, text: bool = False) -> Any:
-    """A pinned conductor ``"[N x ]SIZE MATERIAL"``."""
-    return parse_conductor(_unit_text(value, "2x 500 kcmil Al"))
+PROJECT_KEYS = fields.keys("project")
+ECONOMICS_KEYS = fields.keys("economics")
+PRICES_KEYS = fields.keys("prices")
+DEFAULTS_KEYS = fields.keys("defaults")
+# The settings a CableSettings holds (the rest of [defaults] is per node).
+CABLE_KEYS = tuple(f.name for f in fields.in_table("defaults")
+                   if f.attr in {x.name for x in dataclasses.fields(CableSettings)})
+SOURCE_KEYS = fields.keys("source")
+TRANSFORMER_KEYS = fields.keys("transformer")
+MOTOR_KEYS = fields.keys("motor")
+NODE_KEYS = fields.keys("node")
+SCHEDULE_COLUMNS = fields.schedule_columns()
 
 
 # --- reading a table -----------------------------------------------------------------------
@@ -446,7 +151,7 @@ class _Fields:
         except (ValueError, TypeError, ArithmeticError, AttributeError, KeyError,
                 tokenize.TokenError) as exc:
             # A value pint or a parser chokes on: still one clear line, never a traceback.
-            message = f"cannot read {_show(self.raw[key])} ({type(exc).__name__})"
+            message = f"cannot read {show(self.raw[key])} ({type(exc).__name__})"
         self.report.add(message, node=self.node, field=self.prefix + key, file=self.file)
         self.bad.add(key)
         return None
@@ -466,7 +171,7 @@ class _Fields:
         value = self.raw.get(key)
         if value is None or isinstance(value, dict):
             return value
-        self.report.add(f"must be a table such as [{key}] or {{ ... }}, got {_show(value)}",
+        self.report.add(f"must be a table such as [{key}] or {{ ... }}, got {show(value)}",
                         node=self.node, field=self.prefix + key, file=self.file)
         self.bad.add(key)
         return None
@@ -645,29 +350,11 @@ def _economics(top: _Fields, currency: str | None, report: Report,
     if currency is None:  # prices cannot be read without a currency; already reported
         return None
 
-    def money_per(per: str, alt: str | None = None) -> Reader:
-        def reader(value: Any, text: bool = False) -> float:
-            value = _unit_text(value, f"0.12 {currency}/{per}")
-            try:
-                return _price_bound(parse_money(value, currency, per), value)
-            except UnitError:
-                if alt is None:
-                    raise
-                return _price_bound(parse_money(value, currency, alt), value)
-        return reader
-
-    values = {
-        "energy_price_per_kwh": f.require("energy_price", money_per("kWh")),
-        "discount_rate": f.require("discount_rate", read_percent, " (e.g. \"7 %\")"),
-        "lifetime_years": f.require("lifetime", _years, " (e.g. \"25 year\")"),
-        "load_factor": f.require("load_factor", read_fraction, " (e.g. 0.55)"),
-        "demand_charge_per_kw_month": f.get("demand_charge", money_per("kW", "kW*month"), 0.0),
-        "escalation": f.get("escalation", read_percent, 0.0),
-        "load_growth": f.get("load_growth", read_percent, 0.0),
-        "loss_load_factor": f.get("loss_load_factor", read_fraction),
-        "hours_per_year": f.get("hours", _hours, 8760.0),
-        "emission_kg_per_kwh": f.get("emission_factor", _emission, 0.4),
-    }
+    values = {}
+    for fld in fields.in_table("economics"):
+        read = fld.reader(currency)
+        values[fld.attr] = (f.require(fld.name, read, fld.hint) if fld.required
+                            else f.get(fld.name, read, fld.default))
     if f.bad or any(values[k] is None for k in values if k != "loss_load_factor"):
         return None
     lf, llf = values["load_factor"], values["loss_load_factor"]
@@ -678,18 +365,6 @@ def _economics(top: _Fields, currency: str | None, report: Report,
                      field="economics.loss_load_factor", file=file)
         return None
     return f.build(Economics, **values)
-
-
-def _years(value: Any, text: bool = False) -> float:
-    return _quantity(_unit_text(value, "25 year"), "year")
-
-
-def _hours(value: Any, text: bool = False) -> float:
-    return _quantity(_unit_text(value, "8760 h"), "h")
-
-
-def _emission(value: Any, text: bool = False) -> float:
-    return _quantity(_unit_text(value, "0.4 kg/kWh"), "kg/kWh")
 
 
 def _prices(top: _Fields, currency: str | None, path: Path, report: Report,
@@ -714,53 +389,39 @@ def _prices(top: _Fields, currency: str | None, path: Path, report: Report,
     if currency is None:
         return Prices(catalogue_path)
 
-    def per_kg(value: Any, text: bool = False) -> float:
-        x = parse_money(_unit_text(value, f"10.5 {currency}/kg"), currency, "kg")
-        return _positive_at_most(x, value, "price", MAX_PRICE, f"{MAX_PRICE:g} (check the unit)")
-
-    copper = f.get("copper", per_kg)
-    aluminium = f.get("aluminium", per_kg)
+    copper = f.get("copper", fields.field("prices", "copper").reader(currency))
+    aluminium_field = fields.field("prices", "aluminium")
+    aluminium = f.get("aluminium", aluminium_field.reader(currency))
     if aluminium is None:
-        aluminium = f.get("aluminum", per_kg)
+        aluminium = f.get("aluminum", aluminium_field.reader(currency))
     return Prices(catalogue_path, copper, aluminium)
 
 
 # The cable settings a node inherits from [defaults]: read the same way in both places.
-_CABLE_READERS: dict[str, Reader] = {
-    "materials": read_materials,
-    "insulation": read_temperature,
-    "terminals": _auto(read_temperature),
-    "ambient": read_ambient,
-    "installation": read_installation,
-    "grouping": read_grouping,
-    "max_sets": read_sets,
-}
-_DEFAULT_READERS: dict[str, Reader] = {
-    **_CABLE_READERS,
-    "power_factor": read_fraction,
-    "clearing_time": _auto(read_time),
-}
+_DEFAULT_READERS = fields.readers("defaults")
 
 
-def _defaults(top: _Fields, report: Report, file: str) -> dict[str, Any]:
+@dataclasses.dataclass
+class _Defaults:
+    """The values of [defaults] (registry defaults where not given) and its bad keys."""
+
+    values: dict[str, Any]
+    bad: set[str]
+
+
+def _defaults(top: _Fields, report: Report, file: str) -> _Defaults:
     raw = top.table("defaults") or {}
     f = _Fields(raw, report, file=file, prefix="defaults.")
     f.unknown_keys(DEFAULTS_KEYS)
-    base = CableSettings()
-    values: dict[str, Any] = {
-        "materials": base.materials, "insulation": base.insulation_c,
-        # Terminal rating not given: the rule profile's terminal rule decides.
-        "terminals": None, "ambient": base.ambient_c, "installation": base.installation,
-        "grouping": base.grouping, "max_sets": base.max_sets,
-        "power_factor": DEFAULT_POWER_FACTOR, "clearing_time": None,
-    }
+    # Not given: the registry's defaults; terminals, grouping and clearing time None
+    # (the rule profile decides).
+    values: dict[str, Any] = {fld.name: fld.default for fld in fields.in_table("defaults")}
     for key, read in _DEFAULT_READERS.items():
         if key in raw:
             value = f.get(key, read)
             if key not in f.bad:
                 values[key] = value
-    values["_bad"] = f.bad
-    return values
+    return _Defaults(values, f.bad)
 
 
 def _source(top: _Fields, report: Report, file: str) -> tuple[Source | None, str | None]:
@@ -782,14 +443,13 @@ def _source(top: _Fields, report: Report, file: str) -> tuple[Source | None, str
     f.unknown_keys(SOURCE_KEYS)
     sid = f.require("id", read_text)
     f.node = sid
-    voltage = f.require("voltage", read_voltage, " (e.g. voltage = \"480 V\")")
-    phases = f.require("phases", read_phases, " (phases = 1 or 3)")
-    fault = f.get("fault_current", read_fault_current)
-    x_r = f.get("x_r", read_number, 10.0)
+    values = {}
+    for fld in fields.in_table("source")[1:]:
+        values[fld.attr] = (f.require(fld.name, fld.reader(), fld.hint) if fld.required
+                            else f.get(fld.name, fld.reader(), fld.default))
     if f.bad:
         return None, sid
-    return f.build(Source, id=sid, voltage_v=voltage, phases=phases, fault_current_a=fault,
-                   x_r=x_r), sid
+    return f.build(Source, id=sid, **values), sid
 
 
 RawNode = tuple[dict[str, Any], str, str, bool]   # fields, file, where, fields are text
@@ -809,7 +469,7 @@ def _raw_nodes(top: _Fields, report: Report, file: str) -> list[RawNode]:
                    field="node")
         return []
     if not isinstance(raw, list):
-        report.add(f"must be [[node]] tables, got {_show(raw)}", field="node")
+        report.add(f"must be [[node]] tables, got {show(raw)}", field="node")
         return []
     check_node_count(len(raw), report)
     out: list[RawNode] = []
@@ -887,26 +547,7 @@ def _csv_rows(reader: Any, report: Report, file: str) -> Any:
         report.add(f"line {reader.line_num} cannot be read as CSV: {exc}", file=file)
 
 
-def read_description(value: Any, text: bool = False) -> str:
-    """Free text, possibly empty."""
-    return "" if value == "" else read_text(value, text)
-
-
-_NODE_READERS: dict[str, Reader] = {
-    "description": read_description,
-    "length": read_length,
-    "voltage": read_voltage,
-    "phases": read_phases,
-    "load": read_load,
-    "power_factor": read_fraction,
-    "continuous": read_bool,
-    "ocpd": read_current,
-    "demand_factor": read_fraction,
-    "conductor": read_pin,
-    "neutral": read_bool,
-    "clearing_time": _auto(read_time),
-    **_CABLE_READERS,
-}
+_NODE_READERS = {k: v for k, v in fields.readers("node").items() if k not in ("id", "parent")}
 
 
 def _read_node(raw: Mapping[str, Any], position: int, file: str, where: str, text: bool,
@@ -954,24 +595,13 @@ def _sub(f: _Fields, raw: Mapping[str, Any], name: str) -> _Fields:
 def _read_transformer(raw: Mapping[str, Any], parent: _Fields) -> Transformer | None:
     f = _sub(parent, raw, "transformer")
     f.unknown_keys(TRANSFORMER_KEYS)
-    values = {
-        "rating_va": f.require("rating", read_rating_va, " (e.g. rating = \"75 kVA\")"),
-        "secondary_v": f.require("secondary", read_voltage, " (e.g. secondary = \"208 V\")"),
-        "impedance_pct": f.require("impedance", _percent_number,
-                                   " (nameplate %Z, e.g. impedance = \"4.5 %\")"),
-        "x_r": f.require("x_r", read_number,
-                         " (X/R ratio from the maker's test report; 2-6 is typical of "
-                         "15-500 kVA dry-type units)"),
-        "secondary_phases": f.get("secondary_phases", read_phases, 3),
-        "core_loss_pct": f.get("core_loss", _percent_number, 0.5),
-    }
+    values = {}
+    for fld in fields.in_table("transformer"):
+        values[fld.attr] = (f.require(fld.name, fld.reader(), fld.hint) if fld.required
+                            else f.get(fld.name, fld.reader(), fld.default))
     if f.bad:
         return None
     return f.build(Transformer, **values)
-
-
-def _percent_number(value: Any, text: bool = False) -> float:
-    return parse_percent(_unit_text(value, "4.5 %"))
 
 
 def _read_motor(raw: Mapping[str, Any], parent: _Fields) -> Motor | None:
@@ -985,41 +615,39 @@ def _read_motor(raw: Mapping[str, Any], parent: _Fields) -> Motor | None:
         return None
     key = ratings[0]
     if key == "power":
-        power = f.get("power", _motor_power)
+        power = f.get("power", read_motor_power)
     else:
         number = f.get(key, read_number)
         power = None if number is None else number * (1000.0 if key == "kw" else HP_W)
         if power is not None and not power > 0:
-            f.report.add(f"must be a positive rating, got {_show(raw[key])}", node=f.node,
+            f.report.add(f"must be a positive rating, got {show(raw[key])}", node=f.node,
                          field=f"motor.{key}", file=f.file)
             return None
-    start_multiple = f.get("start_multiple", read_number, 6.0)
-    start_pf = f.get("start_pf", read_fraction, 0.3)
+    start_multiple = f.get("start_multiple", read_number,
+                           fields.field("motor", "start_multiple").default)
+    start_pf = f.get("start_pf", read_fraction, fields.field("motor", "start_pf").default)
     if f.bad or power is None:
         return None
     return f.build(Motor, power_w=power, start_multiple=start_multiple, start_pf=start_pf)
 
 
-def _motor_power(value: Any, text: bool = False) -> float:
-    return _power_of_kind(value, "real", "15 kW", 'real power such as "15 kW" or "20 hp"')
-
-
 # --- from drafts to nodes --------------------------------------------------------------------
 
 
-def _build_nodes(tree: Any, defaults: dict[str, Any], profile: Any,
+def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                  report: Report) -> tuple[Node, ...]:
     """Nodes parents first, with inherited settings; profile checks on the way."""
-    if profile is not None and "insulation" not in defaults["_bad"]:
+    defaults = given.values
+    if profile is not None and "insulation" not in given.bad:
         message = check_insulation(defaults["insulation"], profile)
         if message:
             report.add(message, field="defaults.insulation")
-            defaults["_bad"].add("insulation")
-    if profile is not None and "terminals" not in defaults["_bad"]:
+            given.bad.add("insulation")
+    if profile is not None and "terminals" not in given.bad:
         message = check_terminals(defaults["terminals"], profile)
         if message:
             report.add(message, field="defaults.terminals")
-            defaults["_bad"].add("terminals")
+            given.bad.add("terminals")
     settings_cache: dict[tuple[Any, ...], CableSettings] = {}
     nodes: list[Node] = []
     for p in tree.order:

@@ -42,9 +42,11 @@ from typing import Any, Literal
 
 import numpy as np
 
+from sizer import fields
 from sizer.candidates import MATERIALS, reprice
 from sizer.catalogue.prices import PriceList
 from sizer.errors import InfeasibleError, ScenarioError, SizerError, UnitError
+from sizer.fields import Field
 from sizer.model import Scenario
 from sizer.optimize import Objective, Prepared, economic_params, optimise, path_drops_pct, prepare
 from sizer.units import parse_money, parse_percent, parse_quantity, quantity
@@ -68,45 +70,15 @@ POOL_MIN_SECONDS = 4.0
 # --- the fields a sweep can vary ---------------------------------------------------------
 
 
-@dataclass(frozen=True)
-class FieldSpec:
-    """A field a sweep can vary: where it lives and the unit its numbers are in.
-
-    ``unit`` is the unit of the numbers a sweep reads and writes (``{cur}`` stands for
-    the project currency); the model holds the value (a fraction where the unit is %)
-    in ``attr`` of ``Scenario.economics``, or it is the metal price per kg of ``metal``.
-    """
-
-    name: str
-    unit: str
-    attr: str = ""
-    metal: str = ""
-    percent: bool = False
-    per: str = ""           # money fields: the "per" unit of parse_money
-    alt_per: str = ""       # an accepted alternative "per" unit
-
-    def unit_in(self, currency: str) -> str:
-        """The unit with the currency filled in."""
-        return self.unit.format(cur=currency)
-
-
-FIELDS: Mapping[str, FieldSpec] = MappingProxyType({f.name: f for f in (
-    FieldSpec("energy_price", "{cur}/kWh", attr="energy_price_per_kwh", per="kWh"),
-    # A tariff per kW of monthly peak, as the scenario writes it.
-    FieldSpec("demand_charge", "{cur}/kW", attr="demand_charge_per_kw_month", per="kW",
-              alt_per="kW*month"),
-    FieldSpec("escalation", "%", attr="escalation", percent=True),
-    FieldSpec("discount_rate", "%", attr="discount_rate", percent=True),
-    FieldSpec("load_growth", "%", attr="load_growth", percent=True),
-    FieldSpec("lifetime", "year", attr="lifetime_years"),
-    FieldSpec("load_factor", "", attr="load_factor"),
-    FieldSpec("loss_load_factor", "", attr="loss_load_factor"),
-    FieldSpec("hours", "h", attr="hours_per_year"),
-    FieldSpec("emission_factor", "kg/kWh", attr="emission_kg_per_kwh"),
-    FieldSpec("copper", "{cur}/kg", metal="Cu", per="kg"),
-    FieldSpec("aluminium", "{cur}/kg", metal="Al", per="kg"),
-)})
-_ALIASES = {"aluminum": "aluminium"}
+# The fields a sweep varies, from the one field registry; numbers are in ``Field.unit``.
+FIELDS: Mapping[str, Field] = MappingProxyType({f.name: f for f in fields.sweep_fields()})
+_ALIASES = {alias.split(".", 1)[1]: name for alias, name in fields.ALIASES.items()}
+# A range to show in messages, per field.
+_EXAMPLES = MappingProxyType({
+    "energy_price": "0.06:0.30:9", "demand_charge": "8:20:4", "escalation": "0:4:5",
+    "discount_rate": "4:10:4", "load_growth": "0:3:4", "lifetime": "15:40:6",
+    "load_factor": "0.3:0.9:7", "loss_load_factor": "0.2:0.8:7", "hours": "4000:8760:5",
+    "emission_factor": "0.2:0.8:4", "copper": "6:14:5", "aluminium": "2:4:5"})
 
 
 def _field_error(name: str, message: str) -> ScenarioError:
@@ -115,13 +87,13 @@ def _field_error(name: str, message: str) -> ScenarioError:
 
 @dataclass(frozen=True)
 class VaryRange:
-    """One varied field and its values, in the field's unit (``FieldSpec.unit``)."""
+    """One varied field and its values, in the field's unit (``Field.unit``)."""
 
     name: str
     values: tuple[float, ...]
 
     @property
-    def spec(self) -> FieldSpec:
+    def spec(self) -> Field:
         """The field's specification."""
         return FIELDS[self.name]
 
@@ -136,6 +108,7 @@ def parse_value(name: str, text: str, currency: str) -> float:
 
     ``"0.12"`` and ``"0.12 USD/kWh"`` both read 0.12 for energy_price; ``"7"`` and
     ``"7 %"`` both read 7 for discount_rate; ``"25"`` and ``"300 month"`` read 25 years.
+    The value must pass the scenario reader's own bounds for the field.
     """
     spec = FIELDS[name]
     t = text.strip()
@@ -145,15 +118,23 @@ def parse_value(name: str, text: str, currency: str) -> float:
         value = _with_unit(spec, t, currency)
     if not math.isfinite(value):
         raise _field_error(name, f"{text!r} is not a finite number")
+    # The scenario's reader decides what is allowed, so a sweep never goes where a
+    # scenario file could not.
+    unit = spec.unit_in(currency)
+    raw: object = value if not unit else f"{value!r} {unit}"
+    try:
+        spec.reader(currency)(raw, False)
+    except ScenarioError as exc:
+        raise _field_error(name, f"{text!r}: {exc.message}") from None
     return value
 
 
-def _with_unit(spec: FieldSpec, text: str, currency: str) -> float:
+def _with_unit(spec: Field, text: str, currency: str) -> float:
     unit = spec.unit_in(currency)
     try:
-        if spec.per:
+        if spec.money_per:
             try:
-                return parse_money(text, currency, spec.per)
+                return parse_money(text, currency, spec.money_per)
             except UnitError:
                 if not spec.alt_per:
                     raise
@@ -169,16 +150,11 @@ def _with_unit(spec: FieldSpec, text: str, currency: str) -> float:
     except UnitError as exc:
         shown = f"{unit}" if unit else "a plain number"
         raise _field_error(spec.name, f"{exc.message} (give {shown}, e.g. "
-                                      f"{_example(spec, currency)})") from None
+                                      f"{_example(spec)})") from None
 
 
-def _example(spec: FieldSpec, currency: str) -> str:
-    examples = {"energy_price": "0.06:0.30:9", "demand_charge": "8:20:4",
-                "escalation": "0:4:5", "discount_rate": "4:10:4", "load_growth": "0:3:4",
-                "lifetime": "15:40:6", "load_factor": "0.3:0.9:7",
-                "loss_load_factor": "0.2:0.8:7", "hours": "4000:8760:5",
-                "emission_factor": "0.2:0.8:4", "copper": "6:14:5", "aluminium": "2:4:5"}
-    return f"{spec.name}={examples[spec.name]}"
+def _example(spec: Field) -> str:
+    return f"{spec.name}={_EXAMPLES[spec.name]}"
 
 
 def parse_vary(text: str, currency: str) -> VaryRange:
@@ -198,7 +174,7 @@ def parse_vary(text: str, currency: str) -> VaryRange:
                             f"(vary one of {', '.join(FIELDS)})", field="--vary")
     body = body.strip()
     if not body:
-        raise _field_error(name, f"no values (write e.g. {_example(FIELDS[name], currency)})")
+        raise _field_error(name, f"no values (write e.g. {_example(FIELDS[name])})")
     if ":" in body:
         parts = body.split(":")
         if len(parts) != 3:
@@ -241,7 +217,7 @@ def base_value(prep: Prepared, name: str) -> float:
     spec = FIELDS[name]
     if spec.metal:
         return float(prep.prices.metal_per_kg[spec.metal])
-    if spec.attr == "loss_load_factor":
+    if spec.name == "loss_load_factor":
         return float(prep.economics.theta)
     value = float(getattr(prep.scenario.economics, spec.attr))
     # 0.07 → 7 %, rounded so that 7 / 100 gives back the scenario's 0.07 exactly.
@@ -289,8 +265,7 @@ def prepared_at(base: Prepared, names: Sequence[str], values: Sequence[float]) -
         spec = FIELDS[name]
         if spec.metal:
             metal[spec.metal] = float(value)
-            price_changes["copper_per_kg" if spec.metal == "Cu" else "aluminium_per_kg"] = \
-                float(value)
+            price_changes[spec.attr] = float(value)
         else:
             # As the scenario reader does: "7 %" → 7 / 100.
             econ_changes[spec.attr] = float(value) / 100.0 if spec.percent else float(value)

@@ -240,7 +240,7 @@ def test_results_json_has_every_key_of_the_design(tmp_path):
 def test_audit_catches_a_design_that_disagrees_with_itself(tmp_path):
     from dataclasses import replace
 
-    from sizer.errors import SizerError
+    from sizer.errors import InternalError
     from sizer.workflow import audit
 
     path = write_scenario(tmp_path, FEEDER_AND_TWO_BRANCHES.format(feeder=300, branch=250),
@@ -250,8 +250,8 @@ def test_audit_catches_a_design_that_disagrees_with_itself(tmp_path):
     audit(prep, design)  # a sound design passes
     bent = replace(design, segments=(replace(design.segments[0], vd_pct=0.1),
                                      *design.segments[1:]))
-    with pytest.raises(SizerError, match="internal check"):
+    with pytest.raises(InternalError, match="check of the design"):
         audit(prep, bent)
     wrong_total = replace(design, totals=replace(design.totals, capex=design.totals.capex + 5))
-    with pytest.raises(SizerError, match="capex"):
+    with pytest.raises(InternalError, match="capex"):
         audit(prep, wrong_total)

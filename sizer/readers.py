@@ -1,0 +1,358 @@
+"""Readers of one scenario value: raw TOML value (or CSV cell text) to an SI value.
+
+Each reader takes the raw value and ``text`` (True for a CSV cell, whose numbers come as
+text) and returns the parsed value, or raises ScenarioError with a one-line message;
+the caller adds the file, node and field. Bounds here are sanity bounds of our own, not
+rules: beyond them an input is a typo, and the candidate grid would exhaust memory.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Callable
+from functools import lru_cache
+from typing import Any
+
+from sizer.errors import ScenarioError, UnitError
+from sizer.model import AMBIENT_RANGE_C
+from sizer.units import (
+    LoadSpec,
+    parse_conductor,
+    parse_length_m,
+    parse_load,
+    parse_material,
+    parse_money,
+    parse_percent,
+    parse_quantity,
+)
+from sizer.validation import suggest
+
+Reader = Callable[[Any, bool], Any]
+
+
+def show(value: Any) -> str:
+    """A raw value as a message quotes it (TOML booleans in lower case)."""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    return repr(value)
+
+
+def _unit_text(value: Any, example: str) -> str:
+    if isinstance(value, bool) or not isinstance(value, str):
+        raise ScenarioError(f"must be a quantity with its unit, in quotes, e.g. \"{example}\", "
+                            f"got {show(value)}")
+    return value
+
+
+# The installation words of the scenario format (CONTRACT.md); the catalogue decides.
+INSTALLATION_WORDS = ("conduit", "steel_conduit", "tray", "buried", "free_air")
+# sizer sizes low-voltage cable: 1000 V AC is the top of the low-voltage range (IEC 60038).
+MAX_VOLTAGE_V = 1000.0
+DEFAULT_POWER_FACTOR = 0.9
+# Sanity bounds, not rules: beyond them an input is a typo, and the candidate grid
+# (segments x materials x sizes x sets) would exhaust memory or overflow.
+MAX_LENGTH_M = 100_000.0   # 100 km, far beyond any low-voltage run
+MAX_SETS = 20              # parallel sets of one run
+MAX_GROUPING = 1000        # current-carrying conductors in one raceway
+MAX_CURRENT_A = 1.0e6      # a device rating or an available fault current (1 MA)
+MIN_FAULT_A = 10.0
+CLEARING_TIME_S = (1e-3, 5.0)  # the adiabatic limit holds up to 5 s (IEC 60949)
+MAX_PRICE = 1.0e6          # per kWh, per kW-month or per kg, in any currency
+# Mechanical horsepower (the NEC and NEMA motor rating unit), 745.7 W, from pint.
+HP_W = parse_quantity("1 hp", "W")
+
+
+def read_text(value: Any, text: bool = False) -> str:
+    """One line of non-empty text."""
+    if not isinstance(value, str):
+        raise ScenarioError(f"must be text in quotes, got {show(value)}")
+    s = value.strip()
+    if not s:
+        raise ScenarioError("must not be empty")
+    if any(ord(c) < 32 for c in s):
+        raise ScenarioError(f"must be one line of text, got {value!r}")
+    return s
+
+
+def read_number(value: Any, text: bool = False) -> float:
+    """A plain finite number (a CSV cell's text is read as one)."""
+    if isinstance(value, bool):
+        raise ScenarioError(f"must be a number, got {show(value)}")
+    if isinstance(value, int | float):
+        try:
+            x = float(value)
+        except OverflowError as exc:
+            raise ScenarioError(f"is too large, got {value}") from exc
+    elif isinstance(value, str) and text:
+        try:
+            x = float(value.strip())
+        except ValueError as exc:
+            raise ScenarioError(f"must be a number, got {value!r}") from exc
+    elif isinstance(value, str):
+        raise ScenarioError(f"must be a plain number without quotes or unit, got {value!r}")
+    else:
+        raise ScenarioError(f"must be a number, got {show(value)}")
+    if not math.isfinite(x):
+        raise ScenarioError(f"must be a finite number, got {show(value)}")
+    return x
+
+
+def read_fraction(value: Any, text: bool = False) -> float:
+    """A number in (0, 1]: power factor, demand factor, load factor."""
+    x = read_number(value, text)
+    if not 0 < x <= 1:
+        raise ScenarioError(f"must be in (0, 1], got {show(value)}")
+    return x
+
+
+def read_phases(value: Any, text: bool = False) -> int:
+    """1 or 3."""
+    x = read_number(value, text)
+    if x not in (1.0, 3.0):
+        raise ScenarioError(f"must be 1 or 3, got {show(value)}")
+    return int(x)
+
+
+def read_count(value: Any, text: bool = False) -> int:
+    """A whole number of at least 1."""
+    x = read_number(value, text)
+    if x != int(x) or x < 1:
+        raise ScenarioError(f"must be a whole number of at least 1, got {show(value)}")
+    return int(x)
+
+
+def auto(read: Reader) -> Reader:
+    """Let ``"auto"`` stand for None (the rule profile decides)."""
+    def reader(value: Any, text: bool = False) -> Any:
+        if isinstance(value, str) and value.strip().lower() == "auto":
+            return None
+        return read(value, text)
+    return reader
+
+
+def read_bool(value: Any, text: bool = False) -> bool:
+    """A boolean: true or false (a CSV cell may also say yes/no/1/0)."""
+    if isinstance(value, bool):
+        return value
+    if text and isinstance(value, str):
+        word = value.strip().lower()
+        if word in ("true", "yes", "y", "1"):
+            return True
+        if word in ("false", "no", "n", "0"):
+            return False
+    raise ScenarioError(f"must be true or false, got {show(value)}")
+
+
+# pint parsing costs ~20 µs; schedules repeat the same strings many times over.
+_length_m = lru_cache(maxsize=4096)(parse_length_m)
+_parse_load = lru_cache(maxsize=4096)(parse_load)
+
+
+@lru_cache(maxsize=4096)
+def _quantity(value: str, unit: str) -> float:
+    return parse_quantity(value, unit)
+
+
+def _positive_at_most(x: float, value: Any, what: str, top: float, top_text: str) -> float:
+    """``x`` when 0 < x <= top, else the one-line error naming ``what`` and the bound."""
+    if not x > 0:
+        raise ScenarioError(f"must be a positive {what}, got {show(value)}")
+    if x > top:
+        raise ScenarioError(f"must be at most {top_text}, got {show(value)}")
+    return x
+
+
+def read_length(value: Any, text: bool = False) -> float:
+    """A route length in metres, positive and at most MAX_LENGTH_M."""
+    x = _length_m(_unit_text(value, "120 ft"))
+    if not x > 0:
+        raise ScenarioError(f"must be a positive length, got {show(value)}")
+    if x > MAX_LENGTH_M:
+        raise ScenarioError(f"must be at most {MAX_LENGTH_M / 1000:g} km (a low-voltage run "
+                            f"is far shorter: check the unit), got {show(value)}")
+    return x
+
+
+def _at_most(read: Reader, top: int, what: str) -> Reader:
+    """``read``, refusing values above ``top``."""
+    def reader(value: Any, text: bool = False) -> Any:
+        x = read(value, text)
+        if x is not None and x > top:
+            raise ScenarioError(f"must be at most {top} {what}, got {show(value)}")
+        return x
+    return reader
+
+
+read_sets = _at_most(read_count, MAX_SETS, "parallel sets")
+read_grouping = _at_most(auto(read_count), MAX_GROUPING, "conductors in one raceway")
+
+
+def read_voltage(value: Any, text: bool = False) -> float:
+    """A low voltage in volts."""
+    x = _quantity(_unit_text(value, "480 V"), "V")
+    if not x > 0:
+        raise ScenarioError(f"must be a positive voltage, got {show(value)}")
+    if x > MAX_VOLTAGE_V:
+        raise ScenarioError(f"sizer sizes low-voltage circuits, up to {MAX_VOLTAGE_V:g} V; "
+                            f"got {show(value)}")
+    return x
+
+
+def read_current(value: Any, text: bool = False) -> float:
+    """A positive current in amperes, at most MAX_CURRENT_A."""
+    x = _quantity(_unit_text(value, "20 A"), "A")
+    return _positive_at_most(x, value, "current", MAX_CURRENT_A, f"{MAX_CURRENT_A / 1e3:g} kA")
+
+
+def read_fault_current(value: Any, text: bool = False) -> float:
+    """An available fault current in amperes (10 A to 1 MA)."""
+    x = read_current(value, text)
+    if x < MIN_FAULT_A:
+        raise ScenarioError(f"must be at least {MIN_FAULT_A:g} A, got {show(value)}")
+    return x
+
+
+def read_time(value: Any, text: bool = False) -> float:
+    """A device clearing time in seconds, 1 ms to 5 s."""
+    low, high = CLEARING_TIME_S
+    x = _positive_at_most(_quantity(_unit_text(value, "0.1 s"), "s"), value, "time", high,
+                          f"{high:g} s (the range of the adiabatic withstand check)")
+    if x < low:
+        raise ScenarioError(f"must be between {low * 1e3:g} ms and {high:g} s (the range of "
+                            f"the adiabatic withstand check), got {show(value)}")
+    return x
+
+
+def _price_bound(x: float, value: Any) -> float:
+    if x > MAX_PRICE:
+        raise ScenarioError(f"must be at most {MAX_PRICE:g} (check the unit), got "
+                            f"{show(value)}")
+    return x  # zero is a valid price (free energy, no demand charge)
+
+
+def read_temperature(value: Any, text: bool = False) -> float:
+    """A conductor or terminal temperature rating in degC."""
+    x = _quantity(_unit_text(value, "90 degC"), "degC")
+    if not 0 < x <= 300:
+        raise ScenarioError(f"must be a temperature rating such as \"90 degC\", "
+                            f"got {show(value)}")
+    return x
+
+
+def read_ambient(value: Any, text: bool = False) -> float:
+    """An ambient temperature in degC, within what cable routes see."""
+    x = _quantity(_unit_text(value, "30 degC"), "degC")
+    lo, hi = AMBIENT_RANGE_C
+    if not lo <= x <= hi:
+        raise ScenarioError(f"must be a plausible ambient, {lo:g} degC to {hi:g} degC, "
+                            f"got {show(value)}")
+    return x
+
+
+def read_percent(value: Any, text: bool = False) -> float:
+    """A percentage, returned as a fraction ("2 %" -> 0.02)."""
+    return parse_percent(_unit_text(value, "2 %")) / 100.0
+
+
+def read_materials(value: Any, text: bool = False) -> tuple[str, ...]:
+    """A list of materials (or text such as "Cu, Al")."""
+    if isinstance(value, str):
+        parts: list[Any] = [p for p in re.split(r"[,;/\s]+", value.strip()) if p]
+    elif isinstance(value, list):
+        parts = value
+    else:
+        raise ScenarioError(f"must be a list such as [\"Cu\", \"Al\"], got {show(value)}")
+    materials = tuple(dict.fromkeys(parse_material(p) for p in parts))
+    if not materials:
+        raise ScenarioError("must name at least one material (\"Cu\", \"Al\")")
+    return materials
+
+
+def read_installation(value: Any, text: bool = False) -> str:
+    """An installation word the conductor catalogue knows."""
+    from sizer.catalogue import installation
+
+    word = read_text(value)
+    try:
+        installation(word)
+    except ScenarioError as exc:
+        raise ScenarioError(f"unknown installation {word!r}{suggest(word, INSTALLATION_WORDS)} "
+                            f"(use {', '.join(INSTALLATION_WORDS)})") from exc
+    return word
+
+
+def read_load(value: Any, text: bool = False) -> LoadSpec:
+    """A load in A, W/kW/hp or VA/kVA."""
+    raw = _unit_text(value, "12 kW")
+    try:
+        return _parse_load(raw)
+    except UnitError as exc:
+        if "not negative" in exc.message:
+            raise ScenarioError(f"must be a load of at least 0, got {raw!r}") from exc
+        raise
+
+
+def _power_of_kind(value: Any, kind: str, example: str, words: str) -> float:
+    """A positive power of one kind (``"apparent"`` VA or ``"real"`` W)."""
+    spec = _parse_load(_unit_text(value, example))
+    if spec.kind != kind or not spec.value > 0:
+        raise ScenarioError(f"must be a positive {words}, got {show(value)}")
+    return spec.value
+
+
+def read_rating_va(value: Any, text: bool = False) -> float:
+    """A transformer rating: apparent power in VA."""
+    return _power_of_kind(value, "apparent", "75 kVA", 'apparent power such as "75 kVA"')
+
+
+def read_pin(value: Any, text: bool = False) -> Any:
+    """A pinned conductor ``"[N x ]SIZE MATERIAL"``."""
+    return parse_conductor(_unit_text(value, "2x 500 kcmil Al"))
+
+
+def read_description(value: Any, text: bool = False) -> str:
+    """Free text, possibly empty."""
+    return "" if value == "" else read_text(value, text)
+
+
+def read_years(value: Any, text: bool = False) -> float:
+    """A duration in years."""
+    return _quantity(_unit_text(value, "25 year"), "year")
+
+
+def read_hours(value: Any, text: bool = False) -> float:
+    """Hours (of a year)."""
+    return _quantity(_unit_text(value, "8760 h"), "h")
+
+
+def read_emission(value: Any, text: bool = False) -> float:
+    """An emission factor in kg per kWh."""
+    return _quantity(_unit_text(value, "0.4 kg/kWh"), "kg/kWh")
+
+
+def read_percent_number(value: Any, text: bool = False) -> float:
+    """A percentage kept as its number ("4.5 %" -> 4.5)."""
+    return parse_percent(_unit_text(value, "4.5 %"))
+
+
+def read_motor_power(value: Any, text: bool = False) -> float:
+    """A motor rating: real power in W."""
+    return _power_of_kind(value, "real", "15 kW", 'real power such as "15 kW" or "20 hp"')
+
+
+def money_reader(currency: str, per: str, alt_per: str = "") -> Reader:
+    """A reader of a price in ``currency`` per ``per`` (or ``alt_per``), at most MAX_PRICE."""
+    def reader(value: Any, text: bool = False) -> float:
+        value = _unit_text(value, f"0.12 {currency}/{per}")
+        try:
+            x = parse_money(value, currency, per)
+        except UnitError:
+            if not alt_per:
+                raise
+            x = parse_money(value, currency, alt_per)
+        if per == "kg":   # a metal price: zero would make every conductor free of metal
+            return _positive_at_most(x, value, "price", MAX_PRICE,
+                                     f"{MAX_PRICE:g} (check the unit)")
+        return _price_bound(x, value)
+    return reader
