@@ -104,7 +104,7 @@ _F = Field
 FIELDS: tuple[Field, ...] = (
     # --- [project]
     _F("project", "title", "the project's name, shown on every report", r.read_text,
-       default_text="the file name"),
+       default_text="the file name", example='"North wing"'),
     _F("project", "rules", "rule profile: nec, cec or iec", r.read_text, required=True,
        bounds="nec | cec | iec", example='"nec"'),
     _F("project", "currency", "currency of every price (ISO code)", r.read_text,
