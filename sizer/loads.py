@@ -53,6 +53,7 @@ import numpy as np
 from sizer.errors import ScenarioError
 from sizer.model import Scenario, Segment
 from sizer.rules import RuleProfile
+from sizer.topology import Topology
 from sizer.validation import Bus, Report, is_line_to_neutral, node_bus, supply_bus
 
 SQRT3 = math.sqrt(3.0)
@@ -95,18 +96,18 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
     if n == 0:
         return ()
     file = scenario.file
-    parent = _parents(scenario)
+    topo = scenario_topology(scenario)
+    parent = topo.parent
 
     # Voltage levels: which 1-phase nodes are line to neutral.
     src = supply_bus(scenario.source.voltage_v, scenario.source.phases, scenario.source.id)
     buses: list[Bus] = []
     ln = np.zeros(n, dtype=bool)
-    depth = np.zeros(n, dtype=np.int64)
+    depth = topo.depth - 1
     for i, nd in enumerate(nodes):
         bus = src if parent[i] < 0 else buses[parent[i]]
         ln[i] = is_line_to_neutral(bus, nd.phases, nd.voltage_v)
         buses.append(node_bus(bus, nd.id, nd.phases, nd.voltage_v, nd.transformer))
-        depth[i] = 0 if parent[i] < 0 else depth[parent[i]] + 1
 
     volts = np.array([nd.voltage_v for nd in nodes])
     phases = np.array([nd.phases for nd in nodes], dtype=np.int64)
@@ -117,7 +118,7 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
     cf = np.where([nd.continuous for nd in nodes], float(profile.continuous_factor), 1.0)
     given = np.array([np.nan if nd.ocpd_a is None else nd.ocpd_a for nd in nodes])
     has_parent = parent >= 0
-    leaf = np.bincount(parent[has_parent], minlength=n) == 0
+    leaf = topo.is_leaf
     tx = np.array([nd.transformer is not None for nd in nodes])
     rating = np.array([nd.transformer.rating_va if nd.transformer else 0.0 for nd in nodes])
     r_pct = np.array([nd.transformer.r_pct if nd.transformer else 0.0 for nd in nodes])
@@ -240,8 +241,8 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
     )
 
 
-def _parents(scenario: Scenario) -> np.ndarray:
-    """Parent index of each node (-1 = the source); parents must come first."""
+def scenario_topology(scenario: Scenario) -> Topology:
+    """The tree of a scenario's nodes (-1 = the source); parents must come first."""
     index = scenario.index()
     out = np.empty(len(scenario.nodes), dtype=np.int64)
     for i, nd in enumerate(scenario.nodes):
@@ -250,4 +251,4 @@ def _parents(scenario: Scenario) -> np.ndarray:
             raise ScenarioError("the parent must be the source or a node listed before this "
                                 "one", file=scenario.file, node=nd.id, field="parent")
         out[i] = j
-    return out
+    return Topology(out)

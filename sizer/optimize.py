@@ -39,6 +39,7 @@ from sizer.model import (
 )
 from sizer.rules import load_profile
 from sizer.rules.profile import RuleProfile
+from sizer.topology import Topology
 
 _DEFAULT_PRICE_LISTS = {"awg": "demo-us.csv", "metric": "demo-metric.csv"}
 
@@ -63,8 +64,13 @@ class Prepared:
     table: CandidateTable
     local: LocalDiagnosis
     fixed_drop_pct: np.ndarray
-    parent: np.ndarray
+    topology: Topology
     leaf_limit_pct: np.ndarray
+
+    @property
+    def parent(self) -> np.ndarray:
+        """Parent segment of every segment (-1: fed from the source), parents first."""
+        return self.topology.parent
 
 
 def economic_params(scenario: Scenario) -> EconomicParams:
@@ -110,11 +116,10 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
     table, local = build_candidates(
         segments, profile, catalogue, price_list, econ.loss_pv_per_w, keep_pins=keep_pins
     )
-    parent = np.array([s.parent_index for s in segments], dtype=np.int64)
-    leaf = np.array([s.is_leaf for s in segments], dtype=bool)
-    limit = np.where(leaf, profile.drop_total_pct, np.inf)
+    topology = Topology(np.array([s.parent_index for s in segments], dtype=np.int64))
+    limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)
     return Prepared(scenario, profile, catalogue, price_list, econ, segments, table, local,
-                    transformer_drops_pct(segments), parent, limit)
+                    transformer_drops_pct(segments), topology, limit)
 
 
 def objective_costs(table: CandidateTable, objective: Objective,
@@ -295,7 +300,7 @@ def diagnose(prep: Prepared, limit_pct: np.ndarray | None = None) -> list[str]:
     np.minimum.at(best, t.segment, t.vd_pct)
     path = path_drops_pct(prep.parent, best, prep.fixed_drop_pct)
     for s in np.flatnonzero(path > limits + 1e-9).tolist():
-        chain = _path(prep, s)
+        chain = prep.topology.path(s)
         worst = max(chain, key=lambda k: best[k])
         seg = prep.segments[worst]
         names = " → ".join([prep.scenario.source.id] + [prep.segments[k].id for k in chain])
@@ -338,14 +343,6 @@ def _drop_fixes(seg: Segment, best_pct: float, target_pct: float) -> str:
                  f"(now {seg.length_m:.0f} m)")
     fixes.append("a higher circuit voltage")
     return ", or ".join(fixes)
-
-
-def _path(prep: Prepared, s: int) -> list[int]:
-    chain = []
-    while s >= 0:
-        chain.append(s)
-        s = int(prep.parent[s])
-    return chain[::-1]
 
 
 # --- checking a pinned design ---------------------------------------------------------
@@ -426,39 +423,37 @@ def motor_start_terms(prep: Prepared) -> tuple[np.ndarray, np.ndarray]:
     dips on its path; segments without a motor are unconstrained.
     """
     segs = prep.segments
-    n = len(segs)
-    start_va = np.zeros(n)
-    start_pf = np.ones(n)
-    budget = np.full(n, np.inf)
+    topo = prep.topology
+    own_start = np.full(len(segs), -np.inf)   # each motor's locked-rotor VA
+    own_pf = np.ones(len(segs))
     for i, seg in enumerate(segs):
         motor = seg.node.motor
-        if motor is None:
-            continue
-        running = abs(seg.own_load_va) or motor.power_w / seg.power_factor
-        s_start = motor.start_multiple * running
-        # A locked rotor is a constant impedance: with a linear estimate d (per unit) of
-        # the path's drop at the full starting demand, the dip is d/(1 + d), so a dip
-        # limit L allows d = L/(1 - L).
-        limit = prep.profile.motor_start_dip_pct / 100.0
-        budget[i] = 100.0 * limit / (1.0 - limit)
-        k = i
-        while k >= 0:  # charge the whole path with the largest start below each segment
-            if s_start > start_va[k]:
-                start_va[k] = s_start
-                start_pf[k] = motor.start_pf
-            k = int(prep.parent[k])
-    # Transformers on the path take their share of each motor's budget.
-    for i in np.flatnonzero(np.isfinite(budget)).tolist():
-        k = i
-        s_start = start_va[i]
-        cos = start_pf[i]
-        sin = math.sqrt(1 - cos * cos)
-        while k >= 0:
-            tx = segs[k].node.transformer
-            if tx is not None and k != i:
-                r_pct = tx.impedance_pct / math.hypot(1.0, tx.x_r)
-                budget[i] -= s_start / tx.rating_va * (r_pct * cos + r_pct * tx.x_r * sin)
-            k = int(prep.parent[k])
+        if motor is not None:
+            running = abs(seg.own_load_va) or motor.power_w / seg.power_factor
+            own_start[i] = motor.start_multiple * running
+            own_pf[i] = motor.start_pf
+    is_motor = np.isfinite(own_start)
+    # Every segment carries the largest start below it (itself included).
+    largest = topo.subtree_argmax(own_start)
+    start_va = np.where(largest >= 0, own_start[np.maximum(largest, 0)], 0.0)
+    start_pf = np.where(largest >= 0, own_pf[np.maximum(largest, 0)], 1.0)
+    # A locked rotor is a constant impedance: with a linear estimate d (per unit) of the
+    # path's drop at the full starting demand, the dip is d/(1 + d), so a dip limit L
+    # allows d = L/(1 - L).
+    limit = prep.profile.motor_start_dip_pct / 100.0
+    budget = np.where(is_motor, 100.0 * limit / (1.0 - limit), np.inf)
+    # Transformers above each motor take their share of its budget: the motor's start
+    # S·(R% cosφ + X% sinφ)/S_rated summed over them, as two path sums of R%/S and X%/S.
+    r_per_va = np.array([s.node.transformer.r_pct / s.node.transformer.rating_va
+                         if s.node.transformer else 0.0 for s in segs])
+    x_per_va = np.array([s.node.transformer.x_pct / s.node.transformer.rating_va
+                         if s.node.transformer else 0.0 for s in segs])
+    r_above = topo.path_sum(r_per_va) - r_per_va
+    x_above = topo.path_sum(x_per_va) - x_per_va
+    cos_m = own_pf
+    sin_m = np.sqrt(1 - cos_m * cos_m)
+    tx_share = np.where(is_motor, own_start, 0.0) * (r_above * cos_m + x_above * sin_m)
+    budget = np.where(is_motor, budget - tx_share, np.inf)
     t = prep.table
     s = t.segment
     cos = start_pf[s]

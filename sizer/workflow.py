@@ -18,6 +18,7 @@ from sizer.engines import solve
 from sizer.errors import InternalError
 from sizer.model import Design, DesignStatus, Scenario, Violation
 from sizer.optimize import Objective, Prepared, build_problem, check, optimise, prepare
+from sizer.topology import Topology
 from sizer.verify import Network, fault_currents_a, load_flow, motor_start_dip_pct
 
 Progress = Callable[[str], None]
@@ -135,11 +136,7 @@ def network_of(prep: Prepared, choice: np.ndarray) -> Network:
             secondary[i] = tx.secondary_v
     # Loads at the design basis: each scaled by the demand factors of the panels above it,
     # so the source carries the same diversified demand as the design currents assume.
-    diversity = np.ones(n)
-    for i in range(n):
-        p = int(prep.parent[i])
-        if p >= 0:
-            diversity[i] = diversity[p] * segs[p].node.demand_factor
+    diversity = prep.topology.above_product([s.node.demand_factor for s in segs])
     return Network(
         parent=prep.parent,
         z_ohm=t.r_ohm[choice] + 1j * t.x_ohm[choice],
@@ -355,14 +352,17 @@ def audit(prep: Prepared, design: Design, *, rel_tol: float = 1e-6) -> None:
     """Re-check a finished design from its own numbers, apart from the solver's rows.
 
     Each segment's drop is recomputed from its R, X, current and power factor; path drops
-    by walking parent names; totals by summing the segments; and the limits the design
-    claims to meet are checked again. Any disagreement is an error, not a warning: the
-    design must not be written.
+    by summing along the parent names in one pass; totals by summing the segments; and
+    the limits the design claims to meet are checked again. Any disagreement is an
+    error, not a warning: the design must not be written.
     """
     if not design.segments:
         return
-    by_id = {s.id: s for s in design.segments}
     problems: list[str] = []
+    # The tree as the design itself names it (parent ids), not the solver's arrays.
+    topo = Topology.from_ids([s.id for s in design.segments],
+                             [s.parent for s in design.segments], prep.scenario.source.id)
+    own_vd = []
     pf = {seg.id: seg.power_factor for seg in prep.segments}
     required = {seg.id: seg.required_ampacity_a for seg in prep.segments}
     fixed = {seg.id: float(prep.fixed_drop_pct[i]) for i, seg in enumerate(prep.segments)}
@@ -375,15 +375,7 @@ def audit(prep: Prepared, design: Design, *, rel_tol: float = 1e-6) -> None:
         vd = 100.0 * k * s.current_a * (s.r_ohm * cos + s.x_ohm * sin) / s.voltage_v
         if not math.isclose(vd, s.vd_pct, rel_tol=rel_tol, abs_tol=1e-9):
             problems.append(f"'{s.id}' drop {s.vd_pct:.6f} % but R, X and I give {vd:.6f} %")
-        path = vd + fixed[s.id]
-        parent = s.parent
-        while parent in by_id:
-            q = by_id[parent]
-            path += q.vd_pct + fixed[q.id]
-            parent = q.parent
-        if not math.isclose(path, s.path_vd_pct, rel_tol=rel_tol, abs_tol=1e-9):
-            problems.append(f"'{s.id}' path drop {s.path_vd_pct:.6f} % but the path sums to "
-                            f"{path:.6f} %")
+        own_vd.append(s.vd_pct + fixed[s.id])
         if s.ampacity_a < required[s.id] * (1 - rel_tol):
             problems.append(f"'{s.id}' ampacity {s.ampacity_a:.1f} A below {required[s.id]:.1f} A")
         own = p.drop_branch_pct if s.kind == "branch" else p.drop_feeder_pct
@@ -393,6 +385,11 @@ def audit(prep: Prepared, design: Design, *, rel_tol: float = 1e-6) -> None:
         if leaf[s.id] and not s.pinned and solved and (
                 s.path_vd_pct > p.drop_total_pct * (1 + rel_tol)):
             problems.append(f"'{s.id}' path drop {s.path_vd_pct:.3f} % over {p.drop_total_pct:g} %")
+    path = topo.path_sum(own_vd)
+    for s, summed_path in zip(design.segments, path.tolist(), strict=True):
+        if not math.isclose(summed_path, s.path_vd_pct, rel_tol=rel_tol, abs_tol=1e-9):
+            problems.append(f"'{s.id}' path drop {s.path_vd_pct:.6f} % but the path sums to "
+                            f"{summed_path:.6f} %")
     for name, total in (("capex", design.totals.capex), ("loss_pv", design.totals.loss_pv)):
         summed = math.fsum(getattr(s, name) for s in design.segments)
         if not math.isclose(summed, total, rel_tol=rel_tol, abs_tol=1e-6):

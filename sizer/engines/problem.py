@@ -19,6 +19,7 @@ from enum import StrEnum
 import numpy as np
 
 from sizer.errors import InternalError
+from sizer.topology import Topology
 
 __all__ = ["Problem", "Solution", "SolveStatus"]
 
@@ -71,11 +72,7 @@ def _as_int(name: str, value: object, size: int | None = None) -> np.ndarray:
 
 def path_totals(parent: np.ndarray, own: np.ndarray) -> np.ndarray:
     """Sum of ``own`` over the path source → s, for every segment (parents come first)."""
-    total = np.asarray(own, dtype=np.float64).tolist()
-    for s, p in enumerate(np.asarray(parent).tolist()):  # parents first: one pass suffices
-        if p >= 0:
-            total[s] += total[p]
-    return np.asarray(total)
+    return Topology(parent).path_sum(own)
 
 
 @dataclass(frozen=True, eq=False)  # arrays inside: compare by identity
