@@ -6,7 +6,9 @@ licensed professional before it is built.
 
 __version__ = "0.1.0"
 
+# The one statement of responsibility: every report, file, summary and help text shows it.
 CAUTION = (
-    "Design aid only: check every result against the local electrical code and have a "
-    "licensed professional review and sign the design."
+    "sizer is a design aid. Verify every result against the local electrical code and "
+    "with the authority having jurisdiction; a licensed professional is responsible for "
+    "the design and must review and sign it before anything is built."
 )

@@ -16,6 +16,7 @@ from sizer.errors import InternalError, ScenarioError, SizerError
 if TYPE_CHECKING:
     from sizer.model import Scenario
     from sizer.optimize import Prepared
+    from sizer.results import Results
 
 Command = Callable[[argparse.Namespace], int]
 
@@ -140,18 +141,19 @@ def _protect(args: argparse.Namespace, scenario: Scenario) -> list[Path]:
     return [Path(args.file), *(Path(p) for p in scenario.inputs)]
 
 
-def _write_design_files(args: argparse.Namespace, design, scenario, extra=None) -> None:
-    from sizer.report.export import atomic_write, design_document, json_text, schedule_csv
+def _write_design_files(args: argparse.Namespace, results: Results,
+                        extra: dict | None = None) -> None:
+    from sizer.report.export import atomic_write, json_text, schedule_csv
 
-    protect = _protect(args, scenario)
+    protect = _protect(args, results.prep.scenario)
     if getattr(args, "json", None):
-        atomic_write(args.json, json_text(design_document(design, extra)), protect=protect)
+        atomic_write(args.json, json_text(results.document(extra)), protect=protect)
     if getattr(args, "csv", None):
-        atomic_write(args.csv, schedule_csv(design), protect=protect)
+        atomic_write(args.csv, schedule_csv(results.design), protect=protect)
     if getattr(args, "xlsx", None):
         from sizer.report.export import write_xlsx
 
-        write_xlsx(args.xlsx, design, protect=protect)
+        write_xlsx(args.xlsx, results.design, protect=protect)
 
 
 def _prepare(args: argparse.Namespace, *, keep_pins: bool = False) -> Prepared:
@@ -166,39 +168,38 @@ def _prepare(args: argparse.Namespace, *, keep_pins: bool = False) -> Prepared:
 def _cmd_solve(args: argparse.Namespace) -> int:
     from sizer.optimize import Objective
     from sizer.report.terminal import summary
-    from sizer.workflow import solve_verified
+    from sizer.results import REPORT_FRONTIER_POINTS, solve_results
 
     _outputs(args)
     with _progress(args) as say:
         say("reading the scenario and building candidates")
         prep = _prepare(args)
         say(f"solving {len(prep.segments)} segments, {len(prep.table)} candidates")
-        design, ver = solve_verified(prep, Objective(args.objective), engine=args.engine,
-                                      solver=args.solver, time_limit_s=args.time_limit,
-                                      motor_start=args.motor_start)
+        results = solve_results(prep, Objective(args.objective), engine=args.engine,
+                                solver=args.solver, time_limit_s=args.time_limit,
+                                motor_start=args.motor_start, compare=bool(args.report),
+                                frontier_points=REPORT_FRONTIER_POINTS if args.report else 0,
+                                progress=say)
         say("writing files")
-        _write_design_files(args, design, prep.scenario)
-        if args.report and design.segments:
-            from sizer.report.html import write_report
-
-            write_report(args.report, prep, design, protect=_protect(args, prep.scenario),
-                         progress=say, verification=ver)
-    print(summary(design, prep.scenario.title))
-    return 0 if design.segments else 1
+        _write_design_files(args, results)
+        if args.report and results.design.segments:
+            results.report(args.report, protect=_protect(args, prep.scenario), progress=say)
+    print(summary(results.design, prep.scenario.title))
+    return 0 if results.design.segments else 1
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
     from sizer.model import DesignStatus
     from sizer.report.terminal import summary
-    from sizer.workflow import check_verified
+    from sizer.results import check_results
 
     _outputs(args)
     prep = _prepare(args, keep_pins=True)
-    design, _ = check_verified(prep, engine=args.engine, solver=args.solver,
-                               time_limit_s=args.time_limit)
-    _write_design_files(args, design, prep.scenario)
-    print(summary(design, prep.scenario.title))
-    return 0 if design.status is DesignStatus.COMPLIANT else 1
+    results = check_results(prep, engine=args.engine, solver=args.solver,
+                            time_limit_s=args.time_limit)
+    _write_design_files(args, results)
+    print(summary(results.design, prep.scenario.title))
+    return 0 if results.status is DesignStatus.COMPLIANT else 1
 
 
 def _cmd_frontier(args: argparse.Namespace) -> int:
@@ -246,16 +247,18 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
     if args.json:
         write_sweep_json(result, args.json, protect=protect)
     if args.report:
-        from sizer.optimize import prepare
-        from sizer.report.html import write_report
         from sizer.report.sweep_plots import sweep_section_html
-        from sizer.workflow import solve_verified
+        from sizer.results import REPORT_FRONTIER_POINTS, solve_results
 
-        prep = prepare(scenario)
-        design, ver = solve_verified(prep, Objective(args.objective), engine=args.engine,
-                                     solver=args.solver, time_limit_s=args.time_limit)
-        write_report(args.report, prep, design, protect=protect, verification=ver,
-                     extra_sections=[sweep_section_html(result)])
+        # The sweep's own baseline (the scenario's values) is the report's design.
+        base = result.baseline_results
+        assert base is not None   # a sweep without a baseline design raised already
+        results = solve_results(base.prep, Objective(args.objective), engine=args.engine,
+                                solver=args.solver, time_limit_s=args.time_limit,
+                                compare=True, frontier_points=REPORT_FRONTIER_POINTS,
+                                design=base.design, verification=base.verification)
+        results.report(args.report, protect=protect,
+                       extra_sections=[sweep_section_html(result)])
     print(sweep_summary_text(result))  # ends with the caution
     if result.interrupted:
         print("interrupted: the points finished so far are kept above", file=sys.stderr)

@@ -62,15 +62,13 @@ def run_demo(folder: Path = Path("sizer-demo"), *, force: bool = False,
     from sizer.optimize import Objective, prepare
     from sizer.report.export import (
         atomic_write,
-        design_document,
         json_text,
         schedule_csv,
         write_xlsx,
         xlsx_available,
     )
-    from sizer.report.html import write_report
+    from sizer.results import REPORT_FRONTIER_POINTS, solve_results
     from sizer.scenario import load_scenario
-    from sizer.workflow import solve_verified
 
     start = time.perf_counter()
     source = bundled_scenario()
@@ -92,19 +90,20 @@ def run_demo(folder: Path = Path("sizer-demo"), *, force: bool = False,
     progress("reading the scenario and building candidates")
     prep = prepare(load_scenario(scenario_path))
     progress(f"solving {len(prep.segments)} runs for the lifecycle optimum")
-    design, ver = solve_verified(prep, Objective.LIFECYCLE)
+    results = solve_results(prep, Objective.LIFECYCLE, compare=True,
+                            frontier_points=REPORT_FRONTIER_POINTS, progress=progress)
+    design = results.design
     if not design.segments:
         raise SizerError("the demo scenario has no design: " + "; ".join(design.diagnosis))
     protect = [scenario_path]
     progress("writing results.json and schedule.csv")
-    json_path = atomic_write(folder / JSON_NAME, json_text(design_document(design)),
+    json_path = atomic_write(folder / JSON_NAME, json_text(results.document()),
                              protect=protect)
     csv_path = atomic_write(folder / CSV_NAME, schedule_csv(design), protect=protect)
     xlsx_path = None
     if with_xlsx:
         xlsx_path = write_xlsx(folder / XLSX_NAME, design, protect=protect)
-    report = write_report(folder / REPORT_NAME, prep, design, protect=protect,
-                          progress=progress, verification=ver)
+    report = results.report(folder / REPORT_NAME, protect=protect, progress=progress)
     return DemoResult(folder=folder, scenario=scenario_path, report=report,
                       schedule_csv=csv_path, results_json=json_path, schedule_xlsx=xlsx_path,
                       design=design, title=prep.scenario.title,

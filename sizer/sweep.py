@@ -47,8 +47,9 @@ from sizer.candidates import MATERIALS, reprice
 from sizer.catalogue.prices import PriceList
 from sizer.errors import InfeasibleError, ScenarioError, SizerError, UnitError
 from sizer.fields import Field
-from sizer.model import Scenario
+from sizer.model import Design, DesignStatus, Scenario
 from sizer.optimize import Objective, Prepared, economic_params, optimise, path_drops_pct, prepare
+from sizer.results import Results
 from sizer.units import parse_money, parse_percent, parse_quantity, quantity
 from sizer.validation import suggest
 from sizer.workflow import solve_verified
@@ -370,18 +371,28 @@ class _Worker:
 
     def solve(self, values: Sequence[float], objective: str | None = None) -> Outcome:
         """A full solve at the field values (load-flow checked unless ``verify`` is off)."""
+        return self.solve_full(values, objective)[0]
+
+    def solve_full(self, values: Sequence[float], objective: str | None = None
+                   ) -> tuple[Outcome, Results | None]:
+        """The solve's outcome and, when it could be prepared, its full results."""
         p = self.payload
         try:
             prep = prepared_at(self.base, p.names, values)
         except ScenarioError as exc:
-            return Outcome("error", (), math.nan, math.nan, math.nan, math.nan, (), str(exc))
+            return Outcome(DesignStatus.NO_DESIGN, (), math.nan, math.nan, math.nan, math.nan,
+                           (), str(exc)), None
         obj = Objective(objective or p.objective)
+        ver = None
         if p.verify:
-            design, _ = solve_verified(prep, obj, engine=p.engine, solver=p.solver,
-                                       time_limit_s=p.time_limit_s)
+            design, ver = solve_verified(prep, obj, engine=p.engine, solver=p.solver,
+                                         time_limit_s=p.time_limit_s)
         else:
             design = optimise(prep, obj, engine=p.engine, solver=p.solver,
                               time_limit_s=p.time_limit_s)
+        return self._outcome(prep, design), Results(prep, design, ver)
+
+    def _outcome(self, prep: Prepared, design: Design) -> Outcome:
         if not design.segments:
             return Outcome(design.status, (), math.nan, math.nan, math.nan, math.nan, (),
                            "; ".join(design.diagnosis))
@@ -642,6 +653,8 @@ class SweepResult:
     # How it ran; not part of the JSON document (serial, pool and Dask give the same).
     runner: str = "serial"
     seconds: float = 0.0
+    # The full design at the scenario's own values, for a report (not in the document).
+    baseline_results: Results | None = field(default=None, repr=False, compare=False)
 
     @property
     def names(self) -> tuple[str, ...]:
@@ -818,7 +831,7 @@ def sweep(
                        engine, solver, time_limit_s, verify)
     main_worker = _Worker(payload, base)
     solve_started = time.perf_counter()
-    today = main_worker.solve(base_values)
+    today, baseline_results = main_worker.solve_full(base_values)
     point_seconds = time.perf_counter() - solve_started
     if not today.choice:
         raise InfeasibleError(f"{scenario.file or scenario.title}: no design at the scenario's "
@@ -878,6 +891,7 @@ def sweep(
         points=points, points_total=len(point_values), baseline=baseline,
         code_minimum=point(-1, base_values, code_min), ends=ends_done, changes=(),
         breakevens=(), tornado=(), interrupted=run.interrupted,
+        baseline_results=baseline_results,
     )
     for p in points:
         if p.ok and result.fixed_cost(p, "today") < result.optimum_cost(p) - 1e-6 * max(

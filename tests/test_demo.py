@@ -6,10 +6,10 @@ import json
 
 import pytest
 
+from sizer import CAUTION
 from sizer.demo import DEMO_SCENARIO, bundled_scenario, run_demo
 from sizer.errors import ScenarioError
 from sizer.report.export import xlsx_available
-from sizer.report.html import REPORT_CAUTION
 
 
 @pytest.fixture(scope="module")
@@ -42,7 +42,7 @@ def test_results_match_the_design(demo):
 
 def test_report_is_complete(demo):
     text = demo.report.read_text(encoding="utf-8")
-    assert REPORT_CAUTION in text
+    assert CAUTION in text
     assert "Ridgeback Tile Works" in text and "KILN-2" in text
     assert text.count("<img ") == 4
 

@@ -11,12 +11,13 @@ from pathlib import Path
 import pytest
 from builders import write_scenario
 
+from sizer import CAUTION
 from sizer.errors import ScenarioError
-from sizer.model import Design, Totals
+from sizer.model import Design, DesignStatus, Totals
 from sizer.optimize import Objective, prepare
-from sizer.report.html import REPORT_CAUTION, render_report, write_report
+from sizer.report.html import render_report, write_report
+from sizer.results import REPORT_FRONTIER_POINTS, Results, solve_results
 from sizer.scenario import load_scenario
-from sizer.workflow import solve_verified
 
 TITLE = "Tom & Jerry's <script>alert('title')</script> works"
 PANEL = "P&Q <b>"
@@ -99,10 +100,16 @@ def case(tmp_path_factory):
     path = write_scenario(folder, NODES, title=TITLE,
                           materials='["Cu", "Al"]', energy_price="0.15 USD/kWh")
     prep = prepare(load_scenario(path))
-    design, _ = solve_verified(prep, Objective.LIFECYCLE)
-    assert design.segments
-    out = write_report(folder / "report.html", prep, design, protect=[path])
-    return prep, design, path, out, out.read_text(encoding="utf-8")
+    results = solve_results(prep, Objective.LIFECYCLE, compare=True,
+                            frontier_points=REPORT_FRONTIER_POINTS)
+    assert results.design.segments
+    out = write_report(folder / "report.html", results, protect=[path])
+    return results, results.design, path, out, out.read_text(encoding="utf-8")
+
+
+def _bare(results: Results, design: Design) -> Results:
+    """The same run with another design and no options or frontier."""
+    return replace(results, design=design, options=(), frontier_points=())
 
 
 def test_self_contained(case):
@@ -119,11 +126,11 @@ def test_self_contained(case):
 
 def test_caution_at_the_top_and_the_foot(case):
     *_, text = case
-    assert text.count(REPORT_CAUTION) == 2
-    assert "authority having jurisdiction" in REPORT_CAUTION
-    assert "licensed professional" in REPORT_CAUTION
+    assert text.count(CAUTION) == 2
+    assert "authority having jurisdiction" in CAUTION
+    assert "licensed professional" in CAUTION
     # Prominent: before the first section.
-    assert text.index(REPORT_CAUTION) < text.index('id="scenario"')
+    assert text.index(CAUTION) < text.index('id="scenario"')
 
 
 def test_scenario_names_render_as_text(case):
@@ -155,34 +162,33 @@ def test_sections_and_tables(case):
 
 
 def test_date_only_in_the_footer(case):
-    prep, design, *_ = case
-    text = render_report(prep, design, options=[], frontier_points=[],
-                         today=dt.date(2031, 2, 3))
+    results, design, *_ = case
+    text = render_report(_bare(results, design), today=dt.date(2031, 2, 3))
     assert text.count("2031-02-03") == 1
     assert "Generated 2031-02-03" in text
 
 
 def test_refuses_to_overwrite_the_scenario(case):
-    prep, design, path, *_ = case
+    results, design, path, *_ = case
     before = path.read_bytes()
     with pytest.raises(ScenarioError, match="refusing to overwrite"):
-        write_report(path, prep, design, options=[], frontier_points=[], protect=[path])
+        write_report(path, _bare(results, design), protect=[path])
     assert path.read_bytes() == before
 
 
 def test_a_design_without_segments_shows_its_diagnosis(case):
-    prep, *_ = case
-    empty = Design("infeasible", "lifecycle", "nec", "USD", Totals(0, 0, 0), (),
+    results, *_ = case
+    empty = Design(DesignStatus.INFEASIBLE, "lifecycle", "nec", "USD", Totals(0, 0, 0), (),
                    diagnosis=("path SRC → <X>: best reachable drop 6 % & more",))
-    text = render_report(prep, empty, options=[], frontier_points=[])
+    text = render_report(replace(_bare(results, empty), verification=None))
     assert "path SRC → &lt;X&gt;: best reachable drop 6 % &amp; more" in text
-    assert REPORT_CAUTION in text
+    assert CAUTION in text
 
 
 def test_notes_and_findings_are_escaped(case):
-    prep, design, *_ = case
+    results, design, *_ = case
     noisy = replace(design, notes=("<img src=http://example.invalid/x>",))
-    text = render_report(prep, noisy, options=[], frontier_points=[])
+    text = render_report(_bare(results, noisy))
     assert "&lt;img src=http://example.invalid/x&gt;" in text
     assert Page(text).tags.count("img") == 2  # only our own figures (no frontier, no options)
 
@@ -190,3 +196,20 @@ def test_notes_and_findings_are_escaped(case):
 def test_report_path_is_written(case):
     *_, out, _text = case
     assert Path(out).is_file()
+
+
+def test_rendering_reads_the_results_and_solves_nothing(case, monkeypatch):
+    import sizer.engines as engines
+    import sizer.optimize as optimize
+    import sizer.workflow as workflow
+
+    def forbidden(*_a, **_k):
+        raise AssertionError("the report must not solve or verify")
+
+    for module, name in ((engines, "solve"), (optimize, "solve"), (workflow, "solve"),
+                         (workflow, "verify_design"), (workflow, "solve_verified"),
+                         (workflow, "compare_options"), (workflow, "frontier")):
+        monkeypatch.setattr(module, name, forbidden)
+    results, *_ = case
+    text = render_report(results)
+    assert "Options side by side" in text and "Why upsize" in text

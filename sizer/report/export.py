@@ -18,10 +18,13 @@ import zipfile
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import asdict, fields, is_dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from sizer.errors import ScenarioError
 from sizer.model import Design, SegmentResult
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 DECIMALS = 6
 # A leading character a spreadsheet would read as a formula.
@@ -139,9 +142,19 @@ SCHEDULE_COLUMNS = (
 )
 
 
+def schedule_frame(design: Design) -> pd.DataFrame:
+    """The per-segment schedule as a DataFrame: one row per run, units in column names."""
+    import pandas as pd
+
+    return pd.DataFrame([[getattr(s, c) for c in SCHEDULE_COLUMNS] for s in design.segments],
+                        columns=list(SCHEDULE_COLUMNS))
+
+
 def schedule_csv(design: Design) -> str:
-    """The per-segment schedule as CSV text."""
-    rows = ([getattr(s, c) for c in SCHEDULE_COLUMNS] for s in design.segments)
+    """The per-segment schedule as CSV text, written from :func:`schedule_frame`."""
+    frame = schedule_frame(design)
+    # Back to Python values, so every cell is formatted as csv_text formats it.
+    rows = (list(row) for row in frame.astype(object).itertuples(index=False, name=None))
     return csv_text(SCHEDULE_COLUMNS, rows)
 
 

@@ -19,8 +19,6 @@ from importlib import resources
 from pathlib import Path
 from string import Template
 
-import numpy as np
-
 from sizer import CAUTION, __version__
 from sizer.catalogue.prices import resolve_price_list
 from sizer.model import Design, DesignStatus, Scenario
@@ -28,30 +26,8 @@ from sizer.optimize import Prepared
 from sizer.report import plots
 from sizer.report import tables as tb
 from sizer.report.export import atomic_write
-from sizer.workflow import (
-    FrontierPoint,
-    Option,
-    Progress,
-    Verification,
-    compare_options,
-    frontier,
-    quiet,
-)
-from sizer.workflow import verify_design as _verify_design
-
-# The report's own statement of responsibility, shown at the top and the foot of the page.
-REPORT_CAUTION = (
-    "sizer is a design aid. Verify every result against the local electrical code and "
-    "with the authority having jurisdiction; a licensed professional is responsible for "
-    "the design and must review and sign it before anything is built."
-)
-# Frontier points computed for the report when none are given: enough for the curve's
-# shape, few enough to keep the report quick.
-REPORT_FRONTIER_POINTS = 10
-REPORT_FRONTIER_TIME_LIMIT_S = 20.0
-
-
-
+from sizer.results import Results
+from sizer.workflow import FrontierPoint, Option, Progress, Verification, quiet
 
 # --- small HTML helpers ------------------------------------------------------------------
 
@@ -133,43 +109,26 @@ def pct(value: float | None, digits: int = 2) -> str:
 # --- the report ----------------------------------------------------------------------------
 
 
-def write_report(path: str | Path, prep: Prepared, design: Design, *,
-                 options: Sequence[Option] | None = None,
-                 frontier_points: Sequence[FrontierPoint] | None = None,
-                 protect: Sequence[Path] = (), progress: Progress = quiet,
-                 extra_sections: Sequence[str] = (),
-                 verification: Verification | None = None) -> Path:
-    """Compute what is missing (options, frontier), render the report and write it atomically.
+def write_report(path: str | Path, results: Results, *, protect: Sequence[Path] = (),
+                 progress: Progress = quiet, extra_sections: Sequence[str] = ()) -> Path:
+    """Render the report of finished results and write it atomically.
 
     ``extra_sections`` are finished, escaped HTML sections (e.g. the sweep's) placed
     before the footer.
     """
-    text = render_report(prep, design, options=options, frontier_points=frontier_points,
-                         verification=verification, progress=progress,
-                         extra_sections=extra_sections)
+    text = render_report(results, progress=progress, extra_sections=extra_sections)
     progress("report: writing the file")
     return atomic_write(path, text, protect=protect)
 
 
-def render_report(prep: Prepared, design: Design, *,
-                  options: Sequence[Option] | None = None,
-                  frontier_points: Sequence[FrontierPoint] | None = None,
-                  verification: Verification | None = None,
-                  progress: Progress = quiet,
+def render_report(results: Results, *, progress: Progress = quiet,
                   today: _dt.date | None = None,
                   extra_sections: Sequence[str] = ()) -> str:
-    """The whole report as HTML text."""
-    if options is None:
-        options = compare_options(prep, progress=progress, solved=[design])
-    if frontier_points is None and design.segments:
-        progress("report: frontier of upfront cost against losses")
-        frontier_points = frontier(prep, REPORT_FRONTIER_POINTS,
-                                   time_limit_s=REPORT_FRONTIER_TIME_LIMIT_S,
-                                   progress=progress)
-    if verification is None and len(design.choice) == len(prep.segments) and design.segments:
-        verification = _verify_design(prep, np.asarray(design.choice, dtype=np.int64))
+    """The whole report as HTML text; it reads the results and computes nothing new."""
+    prep = results.prep
     progress("report: tables and figures")
-    page = _Page(prep, design, list(options), list(frontier_points or ()), verification)
+    page = _Page(prep, results.design, list(results.options), list(results.frontier_points),
+                 results.verification)
     body = page.body(today or _dt.date.today(), extra_sections)
     template = Template(resources.files("sizer.report").joinpath("template.html")
                         .read_text(encoding="utf-8"))
@@ -215,7 +174,7 @@ class _Page:
             f"<p>{esc(self.prep.profile.title)} · {esc(_objective_words(self.design))} · "
             f"{len(self.prep.segments)} runs · prices in {esc(self.cur)}</p>",
             "</div></header><main>",
-            f'<div class="caution" role="note"><strong>Caution</strong>{esc(REPORT_CAUTION)}'
+            f'<div class="caution" role="note"><strong>Caution</strong>{esc(CAUTION)}'
             "</div>",
             self.first_screen(),
             '<nav class="toc">Contents: <a href="#scenario">Scenario</a>'
@@ -231,7 +190,7 @@ class _Page:
             self.verification_section(),
             *extra_sections,
             f'<footer><div class="caution" role="note"><strong>Caution</strong>'
-            f"{esc(REPORT_CAUTION)}</div><p>{esc(CAUTION)}</p>"
+            f"{esc(CAUTION)}</div>"
             f"<p>Generated {esc(today.isoformat())} by sizer {esc(__version__)} from "
             f"{esc(Path(s.file).name if s.file else 'an unnamed scenario')}. "
             "This page is self-contained: it loads nothing from the network.</p></footer>",

@@ -17,11 +17,10 @@ from pathlib import Path
 import numpy as np
 from matplotlib.figure import Figure
 
+from sizer import CAUTION
 from sizer.report.export import atomic_write, json_text
 from sizer.sweep import Breakeven, SweepPoint, SweepResult, nearest
 
-CAUTION = ("A design aid: check every result against the local electrical code; a licensed "
-           "professional must review the design.")
 # Tables in the HTML stop here; the JSON file has every row.
 MAX_ROWS = 60
 _COLOURS = {"optimum": "#1b6ca8", "today": "#d1495b", "code_minimum": "#6c757d",
