@@ -29,8 +29,7 @@ from sizer.rules.protection import (
     small_conductor_ok,
     terminal_temperature_c,
 )
-
-MATERIALS = ("Cu", "Al")
+from sizer.units import MATERIALS
 
 
 @dataclass(frozen=True)

@@ -111,8 +111,9 @@ def _cmd_reach(args: argparse.Namespace) -> int:
     print(f"  ampacity     {result.ampacity_a:.0f} A ({args.rules})")
     print(f"  running at   {result.conductor_temperature_c:.1f} degC "
           f"({result.conductor_temperature_c * 9 / 5 + 32:.0f} degF)")
-    print(f"  R {result.r_ohm_per_km:.4f} ohm/km ({result.r_ohm_per_km * 0.3048:.4f} ohm/kft), "
-          f"X {result.x_ohm_per_km:.4f} ohm/km ({result.x_ohm_per_km * 0.3048:.4f} ohm/kft)")
+    print(f"  R {result.r_ohm_per_km:.4f} ohm/km ({result.r_ohm_per_km * M_PER_FT:.4f} "
+          f"ohm/kft), X {result.x_ohm_per_km:.4f} ohm/km "
+          f"({result.x_ohm_per_km * M_PER_FT:.4f} ohm/kft)")
     print(CAUTION)
     return 0
 

@@ -12,9 +12,9 @@ from numpy.typing import ArrayLike
 
 from sizer import catalogue as cat
 from sizer.errors import ScenarioError
+from sizer.units import MM2_PER_CMIL
 
 # 1 circular mil = area of a circle 0.001 in across, in mm2 (exact).
-MM2_PER_CMIL = np.pi / 4 * 0.0254**2
 
 # GMR term K of the inductance 0.2 ln(2s/d) + K mH/km by number of wires in a concentric
 # stranded conductor: K = 0.2 ln(r / GMR); solid 0.05 = 0.2 x 1/4. Values of the common

@@ -40,6 +40,7 @@ from sizer.model import (
 from sizer.rules import load_profile
 from sizer.rules.profile import RuleProfile
 from sizer.topology import Topology
+from sizer.units import conductor_label
 
 _DEFAULT_PRICE_LISTS = {"awg": "demo-us.csv", "metric": "demo-metric.csv"}
 
@@ -286,8 +287,7 @@ def diagnose(prep: Prepared, limit_pct: np.ndarray | None = None) -> list[str]:
                 f"{local.best_ampacity_a[s]:.0f} A with up to {cable.max_sets} sets); fix: allow "
                 f"more parallel sets (max_sets), another material, or a larger catalogue size")
         else:
-            own = (prep.profile.drop_branch_pct if seg.kind == "branch"
-                   else prep.profile.drop_feeder_pct)
+            own = prep.profile.drop_limit_pct(seg.kind)
             best = local.best_drop_pct[s]
             lines.append(
                 f"segment '{seg.id}': its own drop is at best {best:.2f} % with "
@@ -383,14 +383,14 @@ def violations(prep: Prepared, choice: np.ndarray, design: Design) -> list[Viola
         if t.ampacity_a[r] + 1e-9 < seg.required_ampacity_a:
             out.append(Violation(seg.id, "ampacity", float(t.ampacity_a[r]),
                                  seg.required_ampacity_a,
-                                 f"{res.sets}x {res.size} {res.material} carries "
+                                 f"{conductor_label(res.sets, res.size, res.material)} carries "
                                  f"{t.ampacity_a[r]:.0f} A, needs {seg.required_ampacity_a:.0f} A"))
         if prep.local.pinned_fails[s] and "protection" in prep.local.pinned_fails[s] and not (
                 t.ampacity_a[r] + 1e-9 < seg.required_ampacity_a):
             out.append(Violation(seg.id, "protection", float(t.ampacity_a[r]), seg.ocpd_a,
                                  f"a {seg.ocpd_a:.0f} A device does not protect "
-                                 f"{res.sets}x {res.size} {res.material}"))
-        own = p.drop_branch_pct if seg.kind == "branch" else p.drop_feeder_pct
+                                 f"{conductor_label(res.sets, res.size, res.material)}"))
+        own = p.drop_limit_pct(seg.kind)
         if res.vd_pct > own + 1e-9:
             out.append(Violation(seg.id, f"{seg.kind} drop", res.vd_pct, own,
                                  f"own drop {res.vd_pct:.2f} % over {own:g} %"))

@@ -203,8 +203,12 @@ class ConductorSpec:
     material: Material
 
     def __str__(self) -> str:
-        lead = f"{self.sets}x " if self.sets > 1 else ""
-        return f"{lead}{self.size} {self.material}"
+        return conductor_label(self.sets, self.size, self.material)
+
+
+def conductor_label(sets: int, size: str, material: str) -> str:
+    """A conductor as the trade writes it: ``"2x 500 kcmil Al"``, ``"10 AWG Cu"``."""
+    return f"{sets}x {size} {material}" if sets > 1 else f"{size} {material}"
 
 
 _PIN = re.compile(r"^\s*(?:(?P<sets>\d+)\s*[x×]\s*)?(?P<size>.+?)\s+(?P<mat>[A-Za-z]+)\s*$")
@@ -223,6 +227,8 @@ def parse_conductor(text: object) -> ConductorSpec:
 # --- printing --------------------------------------------------------------------------
 
 M_PER_FT = 0.3048
+# Area of a circle one mil (0.0254 mm) across, in mm²: the circular mil.
+MM2_PER_CMIL = math.pi / 4 * 0.0254**2
 
 
 def format_length(length_m: float) -> str:

@@ -130,9 +130,8 @@ def network_of(prep: Prepared, choice: np.ndarray) -> Network:
     for i, seg in enumerate(segs):
         tx = seg.node.transformer
         if tx is not None:
-            r_pct = tx.impedance_pct / math.hypot(1.0, tx.x_r)
             rating[i] = tx.rating_va
-            z_pct[i] = complex(r_pct, r_pct * tx.x_r)
+            z_pct[i] = complex(tx.r_pct, tx.x_pct)
             secondary[i] = tx.secondary_v
     # Loads at the design basis: each scaled by the demand factors of the panels above it,
     # so the source carries the same diversified demand as the design currents assume.
@@ -378,7 +377,7 @@ def audit(prep: Prepared, design: Design, *, rel_tol: float = 1e-6) -> None:
         own_vd.append(s.vd_pct + fixed[s.id])
         if s.ampacity_a < required[s.id] * (1 - rel_tol):
             problems.append(f"'{s.id}' ampacity {s.ampacity_a:.1f} A below {required[s.id]:.1f} A")
-        own = p.drop_branch_pct if s.kind == "branch" else p.drop_feeder_pct
+        own = p.drop_limit_pct(s.kind)
         if not s.pinned and s.vd_pct > own * (1 + rel_tol):
             problems.append(f"'{s.id}' own drop {s.vd_pct:.3f} % over {own:g} %")
         solved = design.status in (DesignStatus.OPTIMAL, DesignStatus.TIME_LIMIT)

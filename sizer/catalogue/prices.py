@@ -14,7 +14,7 @@ import csv
 import math
 import re
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from types import MappingProxyType
 from typing import Protocol
@@ -77,6 +77,42 @@ class PriceList:
     def metal_kg(self, material: str) -> FloatArray:
         """Metal mass of one conductor per metre (kg/m) over the catalogue's sizes."""
         return self.metal_kg_per_m[_material(material)]
+
+    def reindexed(self, metal_per_kg: Mapping[str, float]) -> PriceList:
+        """The list with each conductor's metal part moved to new metal prices (per kg).
+
+        price' = price + (new − now) × metal mass per metre, for each material given;
+        labour and the other material stay. Raises ScenarioError (field ``copper`` or
+        ``aluminium``, or the basis key the list lacks) for an impossible price.
+        """
+        conductor = dict(self.conductor_per_m)
+        now = dict(self.metal_per_kg)
+        for mat, new in metal_per_kg.items():
+            field = REINDEX_FIELDS[mat]
+            if isinstance(new, bool) or not (isinstance(new, int | float)
+                                             and math.isfinite(new) and new > 0):
+                raise ScenarioError(f"the metal price must be a positive number per kg, got "
+                                    f"{new!r}", field=field)
+            listed = ~np.isnan(self.conductor_per_m[mat])
+            if not listed.any() or new == now[mat]:
+                continue
+            if not math.isfinite(now[mat]):
+                raise ScenarioError(
+                    f"cannot re-index {mat} to {new:g} {self.currency}/kg: the price list does "
+                    f"not say the price it was priced at ('# {BASIS_KEYS[mat]}: ...')",
+                    field=BASIS_KEYS[mat])
+            arr = self.conductor_per_m[mat] + (new - now[mat]) * self.metal_kg_per_m[mat]
+            low = listed & ~(arr > 0)
+            if low.any():
+                size = self.sizes[int(np.flatnonzero(low)[0])]
+                raise ScenarioError(
+                    f"{mat} at {new:g} {self.currency}/kg makes the {size} price not positive "
+                    f"(the list was priced at {now[mat]:g} {self.currency}/kg)", field=field)
+            arr.setflags(write=False)
+            conductor[mat] = arr
+            now[mat] = float(new)
+        return replace(self, conductor_per_m=MappingProxyType(conductor),
+                       metal_per_kg=MappingProxyType(now))
 
     def sold(self, material: str) -> npt.NDArray[np.bool_]:
         """True where the list prices that size in that material."""
@@ -164,27 +200,6 @@ def load_price_list(
     _check_complete(rows, catalogue, file)
 
     metal_per_kg: dict[str, float] = {mat: basis.get(mat, math.nan) for mat in MATERIALS}
-    for mat, new in (("Cu", copper_per_kg), ("Al", aluminium_per_kg)):
-        listed = ~np.isnan(conductor[mat])
-        if new is None or not listed.any():
-            continue
-        field = REINDEX_FIELDS[mat]
-        if isinstance(new, bool) or not (isinstance(new, int | float) and math.isfinite(new)
-                                         and new > 0):
-            raise ScenarioError(f"the metal price must be a positive number per kg, got {new!r}",
-                                field=field)
-        if mat not in basis:
-            raise fail(f"cannot re-index {mat} to {new:g} {currency}/kg: the file does not say "
-                       f"the price it was priced at ('# {BASIS_KEYS[mat]}: ...')",
-                       BASIS_KEYS[mat])
-        conductor[mat] = conductor[mat] + (new - basis[mat]) * metal_kg[mat]
-        low = listed & ~(conductor[mat] > 0)
-        if low.any():
-            size = catalogue.sizes[int(np.flatnonzero(low)[0])]
-            raise ScenarioError(
-                f"{mat} at {new:g} {currency}/kg makes the {size} price not positive "
-                f"(the list was priced at {basis[mat]:g} {currency}/kg)", file=file, field=field)
-        metal_per_kg[mat] = float(new)
 
     def per_m(arrays: dict[str, FloatArray]) -> Mapping[str, FloatArray]:
         out: dict[str, FloatArray] = {}
@@ -195,7 +210,7 @@ def load_price_list(
         return MappingProxyType(out)
 
     described = header.get("source", "")
-    return PriceList(
+    as_listed = PriceList(
         currency=currency,
         source=f"{Path(path).name}: {described}" if described else Path(path).name,
         catalogue=catalogue.name,
@@ -205,6 +220,12 @@ def load_price_list(
         metal_kg_per_m=per_m(metal_kg),
         metal_per_kg=MappingProxyType(metal_per_kg),
     )
+    new = {mat: value for mat, value in (("Cu", copper_per_kg), ("Al", aluminium_per_kg))
+           if value is not None}
+    try:
+        return as_listed.reindexed(new)
+    except ScenarioError as exc:
+        raise exc.located(file=file) from None
 
 
 def _split(text: str) -> tuple[dict[str, str], list[tuple[int, str]]]:

@@ -27,6 +27,7 @@ from sizer.report import plots
 from sizer.report import tables as tb
 from sizer.report.export import atomic_write
 from sizer.results import Results
+from sizer.units import M_PER_FT
 from sizer.workflow import FrontierPoint, Option, Progress, Verification, quiet
 
 # --- small HTML helpers ------------------------------------------------------------------
@@ -422,13 +423,13 @@ class _Page:
                     "Fault kA", f"Upfront {cur}", "Loss kW", f"Loss PV {cur}"]
         rows = []
         for r, seg in zip(rows_data, self.prep.segments, strict=False):
-            own_limit = p.drop_branch_pct if r.kind == "branch" else p.drop_feeder_pct
+            own_limit = p.drop_limit_pct(r.kind)
             total_limit = p.drop_total_pct if seg.is_leaf else math.inf
             row: list[object] = [r.from_id, r.to_id, Cell(r.description, "desc"), r.kind,
                                  num(r.voltage_v),
                                  str(r.phases), num(r.length_m, 1)]
             if self.imperial:
-                row.append(num(r.length_m / 0.3048, 0))
+                row.append(num(r.length_m / M_PER_FT, 0))
             row += [num(r.current_a, 1), num(r.ocpd_a), str(r.sets),
                     r.size + (" (pinned)" if r.pinned else ""), r.material, r.egc,
                     num(r.ampacity_a), num(r.utilisation_pct, 0),

@@ -20,6 +20,7 @@ from matplotlib.figure import Figure
 from sizer import CAUTION
 from sizer.report.export import atomic_write, json_text
 from sizer.sweep import Breakeven, SweepPoint, SweepResult, nearest
+from sizer.units import conductor_label
 
 # Tables in the HTML stop here; the JSON file has every row.
 MAX_ROWS = 60
@@ -210,7 +211,7 @@ def _img(fig: Figure | None, alt: str, caption: str) -> str:
 
 def _conductor(c: tuple[str, str, int]) -> str:
     material, size, sets = c
-    return f"{sets}x {size} {material}" if sets > 1 else f"{size} {material}"
+    return conductor_label(sets, size, material)
 
 
 def _table(head: Sequence[str], rows: Sequence[Sequence[tuple[str, bool]]]) -> str:

@@ -17,6 +17,7 @@ from dataclasses import dataclass
 
 from sizer.economics import EconomicParams, npv, q_factor, simple_payback_years
 from sizer.model import Design, SegmentResult
+from sizer.units import conductor_label
 from sizer.workflow import FrontierPoint, Option
 
 # --- labels ---------------------------------------------------------------------------
@@ -24,7 +25,7 @@ from sizer.workflow import FrontierPoint, Option
 
 def conductor_text(sets: int, size: str, material: str) -> str:
     """A conductor as the trade writes it: "350 kcmil Al", "2x 500 kcmil Cu"."""
-    return f"{sets}x {size} {material}" if sets > 1 else f"{size} {material}"
+    return conductor_label(sets, size, material)
 
 
 def segment_conductor(s: SegmentResult) -> str:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from sizer import CAUTION
 from sizer.model import Design, DesignStatus
+from sizer.units import conductor_label
 
 
 def summary(design: Design, title: str, *, max_rows: int = 40, max_findings: int = 8) -> str:
@@ -20,7 +21,7 @@ def summary(design: Design, title: str, *, max_rows: int = 40, max_findings: int
             f"{'conductor':<22} {'EGC':<10} {'Iz A':>6} {'vd %':>5} {'path %':>6} "
             f"{'capex':>10}")
         for s in design.segments[:max_rows]:
-            cond = f"{s.sets}x {s.size} {s.material}" if s.sets > 1 else f"{s.size} {s.material}"
+            cond = conductor_label(s.sets, s.size, s.material)
             pin = "*" if s.pinned else ""
             path = (f"{s.loadflow_drop_pct:6.2f}" if s.loadflow_drop_pct is not None
                     else f"{s.path_vd_pct:6.2f}")

@@ -21,7 +21,7 @@ from typing import Any
 import numpy as np
 
 from sizer.errors import ScenarioError, UnitError
-from sizer.units import MATERIALS, parse_size
+from sizer.units import MATERIALS, MM2_PER_CMIL, parse_size
 
 PROFILES: tuple[str, ...] = ("nec", "cec", "iec")
 INSTALLATIONS: tuple[str, ...] = ("conduit", "steel_conduit", "tray", "buried", "free_air")
@@ -29,7 +29,6 @@ CATALOGUES: tuple[str, ...] = ("awg", "metric")
 EGC_RULES: tuple[str, ...] = ("device_rating", "phase_area")
 DROP_KINDS: tuple[str, ...] = ("branch", "feeder", "total")
 
-MM2_PER_CMIL = math.pi / 4 * 0.0254**2  # area of a circle one mil (0.0254 mm) across
 _HERE = Path(__file__).parent
 
 
