@@ -66,13 +66,6 @@ _CURRENT, _REAL, _APPARENT = 1, 2, 3
 _KIND_CODE = {"current": _CURRENT, "real": _REAL, "apparent": _APPARENT}
 
 
-def line_current_a(apparent_va: np.ndarray | float, voltage_v: np.ndarray | float,
-                   phases: np.ndarray | int) -> np.ndarray:
-    """Line current in A of an apparent power: S/V (1-phase) or S/(√3·V_LL) (3-phase)."""
-    k = np.where(np.asarray(phases) == 3, SQRT3, 1.0)
-    return np.asarray(apparent_va, dtype=float) / (k * np.asarray(voltage_v, dtype=float))
-
-
 def next_rating_a(ratings_a: np.ndarray, current_a: np.ndarray) -> np.ndarray:
     """Smallest rating ≥ each current (NaN where none is large enough)."""
     ratings = np.asarray(ratings_a, dtype=float)

@@ -224,13 +224,8 @@ def parse_conductor(text: object) -> ConductorSpec:
     return ConductorSpec(sets, parse_size(m["size"]), parse_material(m["mat"]))
 
 
-# --- printing --------------------------------------------------------------------------
+# --- conversion factors ---------------------------------------------------------------
 
 M_PER_FT = 0.3048
 # Area of a circle one mil (0.0254 mm) across, in mm²: the circular mil.
 MM2_PER_CMIL = math.pi / 4 * 0.0254**2
-
-
-def format_length(length_m: float) -> str:
-    """Both systems, e.g. ``"94.5 m (310 ft)"``."""
-    return f"{length_m:.1f} m ({length_m / M_PER_FT:.0f} ft)"

@@ -169,19 +169,6 @@ def figure_heatmap(result: SweepResult) -> Figure | None:
     return fig
 
 
-def sweep_figures(result: SweepResult) -> dict[str, Figure]:
-    """Every figure of the sweep by key: ``line:<field>``, ``tornado``, ``heatmap``."""
-    out: dict[str, Figure] = {}
-    for name in result.names:
-        fig = figure_line(result, name)
-        if fig is not None:
-            out[f"line:{name}"] = fig
-    for key, fig in (("tornado", figure_tornado(result)), ("heatmap", figure_heatmap(result))):
-        if fig is not None:
-            out[key] = fig
-    return out
-
-
 def png_base64(fig: Figure) -> str:
     """The figure as base64 PNG text (no timestamp in the file)."""
     buf = io.BytesIO()
