@@ -436,3 +436,13 @@ def test_terminal_summary_names_the_break_evens(tree):
     assert "aluminium" in text and "break-evens" in text and "licensed professional" in text
     first = unique_breakevens(result)[0][0]
     assert first.segment in text
+
+
+def test_points_are_a_dataframe_for_scripts(tmp_path: Path) -> None:
+    # People who script their studies get the points as a pandas DataFrame.
+    site = write_scenario(tmp_path, ONE_RUN)
+    result = sweep(site, ["energy_price=0.06:0.30:3"], jobs=1)
+    frame = result.points_frame
+    assert list(frame.columns[:2]) == ["energy_price [USD/kWh]", "status"]
+    assert len(frame) == 3 and (frame["regret"] >= -1e-9).all()
+    assert frame["lifecycle"].tolist() == [p.lifecycle for p in result.points]

@@ -5,11 +5,14 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from sizer.optimize import Objective
 from sizer.results import Results
 from sizer.sweep.vary import FIELDS, VaryRange, nearest
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 # --- results -------------------------------------------------------------------------------
 
@@ -172,6 +175,26 @@ class SweepResult:
 
     def _on_line(self, p: SweepPoint, k: int, fixed: Mapping[str, float]) -> bool:
         return all(p.values[j] == fixed[n] for j, n in enumerate(self.names) if j != k)
+
+    @property
+    def points_frame(self) -> pd.DataFrame:
+        """One row per solved point: varied values, status, totals and today's cost.
+
+        Varied values are in their units (named in the column); ``today_cost`` is what
+        the design at the scenario's own values would cost at that point.
+        """
+        import pandas as pd
+
+        rows = []
+        for p in self.points:
+            row: dict[str, Any] = {f"{n} [{self.unit(n)}]" if self.unit(n) else n: v
+                                   for n, v in zip(self.names, p.values, strict=True)}
+            row |= {"status": p.status, "capex": p.capex, "loss_pv": p.loss_pv,
+                    "lifecycle": p.lifecycle, "loss_kwh_per_year": p.loss_kwh_per_year,
+                    "today_cost": self.fixed_cost(p, "today") if p.ok else math.nan,
+                    "regret": self.regret(p) if p.ok else math.nan}
+            rows.append(row)
+        return pd.DataFrame(rows)
 
     def document(self) -> dict[str, Any]:
         """The JSON document (plain data; floats rounded when written with json_text)."""
