@@ -78,9 +78,55 @@ class Report:
 
 def suggest(word: str, known: Iterable[str]) -> str:
     """`` (did you mean 'x'?)`` for the closest known word, or an empty string."""
-    by_lower = {k.lower(): k for k in known}
-    close = difflib.get_close_matches(word.lower(), list(by_lower), n=1, cutoff=0.6)
-    return f" (did you mean '{by_lower[close[0]]}'?)" if close else ""
+    return Suggester(known).hint(word)
+
+
+class Suggester:
+    """Finds the closest known word to a misspelt one, from an index built once.
+
+    Small vocabularies are compared whole (difflib). Large ones (thousands of node ids)
+    keep a trigram index: a query's rarest trigrams pick at most ``MAX_VISITED`` index
+    entries, and only the ``MAX_COMPARED`` known words sharing the most of them are
+    compared, so each miss costs a few hundred comparisons however many ids the tree has.
+    """
+
+    SMALL = 200          # words compared whole
+    MAX_COMPARED = 25    # words compared after the index's pick
+    MAX_VISITED = 4000
+
+    def __init__(self, known: Iterable[str]) -> None:
+        self.by_lower = {k.lower(): k for k in known}
+        self.words = list(self.by_lower)
+        self.index: dict[str, list[int]] | None = None
+        if len(self.words) > self.SMALL:
+            self.index = {}
+            for i, w in enumerate(self.words):
+                for g in _trigrams(w):
+                    self.index.setdefault(g, []).append(i)
+
+    def hint(self, word: str) -> str:
+        """`` (did you mean 'x'?)`` or an empty string."""
+        query = word.lower()
+        pool = self.words
+        if self.index is not None:
+            shared: dict[int, int] = {}
+            postings = sorted((self.index.get(g, []) for g in _trigrams(query)), key=len)
+            visited = 0
+            for posting in postings:   # rarest first: they tell the words apart
+                if visited and visited + len(posting) > self.MAX_VISITED:
+                    break
+                visited += len(posting)
+                for i in posting:
+                    shared[i] = shared.get(i, 0) + 1
+            best = sorted(shared, key=lambda i: (-shared[i], i))[: self.MAX_COMPARED]
+            pool = [self.words[i] for i in sorted(best)]
+        close = difflib.get_close_matches(query, pool, n=1, cutoff=0.6)
+        return f" (did you mean '{self.by_lower[close[0]]}'?)" if close else ""
+
+
+def _trigrams(word: str) -> set[str]:
+    padded = f"  {word} "
+    return {padded[i:i + 3] for i in range(len(padded) - 2)}
 
 
 # --- a node as read, before the tree is known --------------------------------------------
@@ -153,7 +199,7 @@ def check_unique_ids(drafts: Sequence[NodeDraft], source_id: str | None,
 def check_parents_exist(drafts: Sequence[NodeDraft], by_id: Mapping[str, NodeDraft],
                         source_id: str | None, report: Report) -> None:
     """Every parent is the source or another node; self-parents are named as such."""
-    known = [*by_id, *([source_id] if source_id else [])]
+    known = Suggester([*by_id, *([source_id] if source_id else [])])
     for d in drafts:
         if d.id is None or "parent" in d.bad:
             continue
@@ -165,7 +211,7 @@ def check_parents_exist(drafts: Sequence[NodeDraft], by_id: Mapping[str, NodeDra
             report.add("the node is its own parent (a loop)", node=d.id, field="parent",
                        file=d.file)
         elif d.parent != source_id and d.parent not in by_id:
-            report.add(f"unknown parent '{d.parent}'{suggest(d.parent, known)}",
+            report.add(f"unknown parent '{d.parent}'{known.hint(d.parent)}",
                        node=d.id, field="parent", file=d.file)
 
 
