@@ -23,6 +23,7 @@ from sizer.workflow import (
     check_verified,
     compare_options,
     frontier,
+    frontier_designs,
     quiet,
     solve_verified,
 )
@@ -41,7 +42,8 @@ class Results:
     """A design, its verification, the options side by side, the frontier, and notes.
 
     ``options`` and ``frontier_points`` are empty unless the run asked for them (a
-    report does); ``verification`` is None when there is no design.
+    report does); ``verification`` is None when there is no design. ``frontier_designs``
+    are the frontier points as verified designs (same order), for the report's explorer.
     """
 
     prep: Prepared
@@ -50,6 +52,7 @@ class Results:
     options: tuple[Option, ...] = ()
     frontier_points: tuple[FrontierPoint, ...] = ()
     notes: tuple[str, ...] = field(default=())
+    frontier_designs: tuple[Design, ...] = ()
 
     @property
     def title(self) -> str:
@@ -128,7 +131,9 @@ def solve_results(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
                                 if time_limit_s is None
                                 else min(time_limit_s, REPORT_FRONTIER_TIME_LIMIT_S),
                                 progress=progress))
-    return Results(prep, design, verification, options, points)
+    progress("verifying the frontier's designs")
+    designs = tuple(frontier_designs(prep, points))
+    return Results(prep, design, verification, options, points, frontier_designs=designs)
 
 
 def check_results(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",

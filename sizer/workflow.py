@@ -17,7 +17,15 @@ from sizer.conductors import adiabatic_withstand_a
 from sizer.engines import solve
 from sizer.errors import InternalError
 from sizer.model import Design, DesignStatus, Scenario, Violation
-from sizer.optimize import Objective, Prepared, build_problem, check, optimise, prepare
+from sizer.optimize import (
+    Objective,
+    Prepared,
+    build_problem,
+    check,
+    design_from_choice,
+    optimise,
+    prepare,
+)
 from sizer.topology import Topology
 from sizer.verify import Network, fault_currents_a, load_flow, motor_start_dip_pct
 
@@ -88,6 +96,20 @@ def frontier(prep: Prepared, points: int = 12, *, engine: str = "auto", solver: 
                                        "epsilon constraint", cap, sol.proven_optimal, key)
         pts = sorted(found.values(), key=lambda p: (p.capex, p.loss_pv))
     return _non_dominated(pts)
+
+
+def frontier_designs(prep: Prepared, points: Sequence[FrontierPoint]) -> list[Design]:
+    """Each frontier point as a design, checked by the same load flow as the optimum."""
+    out = []
+    for p in points:
+        choice = np.asarray(p.choice, dtype=np.int64)
+        if len(choice) != len(prep.segments):
+            continue
+        d = design_from_choice(prep, choice, objective="frontier",
+                               status=DesignStatus.OPTIMAL if p.proven_optimal
+                               else DesignStatus.TIME_LIMIT)
+        out.append(with_verification(prep, d, choice, verify_design(prep, choice)))
+    return out
 
 
 def _non_dominated(points: list[FrontierPoint]) -> list[FrontierPoint]:

@@ -6,6 +6,7 @@ import datetime as dt
 import re
 from dataclasses import replace
 from html.parser import HTMLParser
+from importlib import resources
 from pathlib import Path
 
 import pytest
@@ -56,7 +57,11 @@ SECTIONS = ("scenario", "assumptions", "options", "justification", "schedule", "
 ALLOWED_TAGS = {"html", "head", "meta", "title", "style", "body", "header", "div", "h1", "h2",
                 "h3", "p", "strong", "main", "nav", "a", "section", "table", "caption",
                 "thead", "tbody", "tr", "th", "td", "ul", "li", "figure", "img", "figcaption",
-                "footer"}
+                "footer",
+                # the tree picture and the frontier chart (inline SVG), the controls and
+                # the page's own script and data
+                "svg", "g", "path", "rect", "circle", "line", "text", "span", "details",
+                "summary", "label", "select", "option", "input", "button", "script"}
 
 
 class Page(HTMLParser):
@@ -120,8 +125,16 @@ def test_self_contained(case):
             assert value.startswith(("data:image/png;base64,", "#")), (tag, attr, value[:40])
     assert not re.search(r"(?i)(src|href)\s*=\s*[\"']?\s*(https?:)?//", text)
     assert not re.search(r"(?i)url\(|@import", text)  # the style sheet loads nothing either
-    assert "link" not in page.tags and "script" not in page.tags and "iframe" not in page.tags
-    assert page.tags.count("img") == 4  # frontier, voltage profile, cost, cash flow
+    assert "link" not in page.tags and "iframe" not in page.tags
+    # Two scripts, both inline: the data (JSON, inert) and our own plain script.
+    assert page.tags.count("script") == 2
+    scripts = [(t, k, v) for t, k, v in page.attrs if t == "script"]
+    assert scripts == [("script", "type", "application/json"), ("script", "id", "sizer-data")]
+    own = resources.files("sizer.report").joinpath("report.js").read_text(encoding="utf-8")
+    assert f"<script>\n{own}</script>" in text
+    assert not re.search(r"fetch\(|XMLHttpRequest|WebSocket|import\(|https?:", own)
+    # voltage profile, cost, cash flow (the frontier is the inline SVG chart)
+    assert page.tags.count("img") == 3
 
 
 def test_caution_at_the_top_and_the_foot(case):
@@ -141,8 +154,14 @@ def test_scenario_names_render_as_text(case):
     for name in (PANEL, BRANCH, BRANCH_TEXT, "PUMP & FAN", "panel & <i>stuff</i>"):
         assert name in words, name
     assert TITLE in page.title
-    assert "<script" not in text.lower()
+    assert text.lower().count("<script") == 2  # the page's own data and script only
+    assert "<script>alert" not in text and "</script>x" not in text
     assert "&lt;script&gt;alert(1)&lt;/script&gt;" in text
+    # In the embedded data every "<" is escaped, so no name can close the data element.
+    data = text[text.index('id="sizer-data">'):]
+    data = data[:data.index("</script>")]
+    assert "<" not in data.removeprefix('id="sizer-data">')
+    assert "\\u003cscript\\u003ealert(1)" in data
     assert "P&amp;Q &lt;b&gt;" in text
 
 

@@ -117,11 +117,13 @@ def test_cash_flow_series_and_crossing():
     fig = plots.cash_flow_figure(cash_flow(750.0, 500.0), "USD", 0.05)
     ax = axes_of(fig)
     lines = ax.get_lines()
-    # undiscounted, discounted, zero line, two break-even markers
-    assert len(lines) == 5
-    simple = next(li for li in lines if li.get_label().startswith("simple break-even"))
+    # undiscounted, discounted, zero line, and the one payback figure the page uses: simple
+    assert len(lines) == 4
+    simple = next(li for li in lines if li.get_label().startswith("simple payback"))
     assert simple.get_xdata()[0] == pytest.approx(1.5)  # 750 / 500
-    assert "year 1.5" in simple.get_label()
+    assert "1.5 years" in simple.get_label()
+    assert not any("discounted" in li.get_label() and "payback" in li.get_label()
+                   for li in lines)
     assert_labelled(ax)
     assert_renders(fig)
 

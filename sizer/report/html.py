@@ -23,9 +23,11 @@ from sizer import CAUTION, __version__
 from sizer.catalogue.prices import resolve_price_list
 from sizer.model import Design, DesignStatus, Scenario
 from sizer.optimize import Prepared
+from sizer.report import explore as ex
 from sizer.report import plots
 from sizer.report import tables as tb
 from sizer.report.export import atomic_write
+from sizer.report.tree import node_kind, tree_html
 from sizer.results import Results
 from sizer.units import M_PER_FT
 from sizer.workflow import FrontierPoint, Option, Progress, Verification, quiet
@@ -96,10 +98,11 @@ def figure(png: bytes, alt: str, caption: str) -> str:
             f"<figcaption>{esc(caption)}</figcaption></figure>")
 
 
-def card(label: str, value: str, sub: str = "", warn: bool = False) -> str:
-    """A key figure of the first screen."""
-    return (f'<div class="card{" warn" if warn else ""}"><div class="label">{esc(label)}</div>'
-            f'<div class="value">{esc(value)}</div><div class="sub">{esc(sub)}</div></div>')
+def card(label: str, value: str, sub: str = "", warn: bool = False, key: str = "") -> str:
+    """A key figure of the first screen; ``key`` names it for the page's script."""
+    k = f' data-card="{esc(key)}"' if key else ""
+    return (f'<div class="card{" warn" if warn else ""}"{k}><div class="label">{esc(label)}'
+            f'</div><div class="value">{esc(value)}</div><div class="sub">{esc(sub)}</div></div>')
 
 
 def pct(value: float | None, digits: int = 2) -> str:
@@ -129,22 +132,25 @@ def render_report(results: Results, *, progress: Progress = quiet,
     prep = results.prep
     progress("report: tables and figures")
     page = _Page(prep, results.design, list(results.options), list(results.frontier_points),
-                 results.verification)
+                 results.verification, results.frontier_designs)
     body = page.body(today or _dt.date.today(), extra_sections)
     template = Template(resources.files("sizer.report").joinpath("template.html")
                         .read_text(encoding="utf-8"))
     style = resources.files("sizer.report").joinpath("report.css").read_text(encoding="utf-8")
+    script = resources.files("sizer.report").joinpath("report.js").read_text(encoding="utf-8")
     return template.substitute(
         version=esc(__version__),
         title=esc(f"Conductor sizing report — {prep.scenario.title}"),
-        style=style, body=body)
+        style=style, body=body,
+        script=f"<script>\n{script}</script>" if page.explorer else "")
 
 
 class _Page:
     """Builds the sections of one report from the finished designs."""
 
     def __init__(self, prep: Prepared, design: Design, options: list[Option],
-                 points: list[FrontierPoint], ver: Verification | None) -> None:
+                 points: list[FrontierPoint], ver: Verification | None,
+                 point_designs: Sequence[Design] = ()) -> None:
         self.prep = prep
         self.design = design
         self.options = options
@@ -163,6 +169,76 @@ class _Page:
                                                self.cur)
                         if self.code_min and self.lifecycle else ())
         self.imperial = prep.catalogue.name == "awg"
+        self.limits = self._limits()
+        self.parent = [int(g.parent_index) for g in prep.segments]
+        self.kinds = self._kinds()
+        self.descriptions = [g.node.description for g in prep.segments]
+        self._explorer_points(list(point_designs), points)
+
+    def _limits(self) -> list[ex.RunLimits]:
+        p = self.prep.profile
+        return [ex.RunLimits(p.drop_limit_pct(g.kind),
+                             float(self.prep.leaf_limit_pct[i]) if g.is_leaf else math.inf)
+                for i, g in enumerate(self.prep.segments)]
+
+    def _kinds(self) -> list[str]:
+        segs = self.prep.segments
+        has_children = {int(g.parent_index) for g in segs}
+        return [node_kind(i in has_children, g.parent_index < 0, g.node.transformer is not None)
+                for i, g in enumerate(segs)]
+
+    def _explorer_points(self, designs: list[Design], points: list[FrontierPoint]) -> None:
+        """The designs the page can switch between: shown first, then by upfront cost."""
+        d = self.design
+        self.explorer: dict | None = None
+        self.xpoints: list[ex.DesignPoint] = []
+        self.shown = self.reference = 0
+        self.code_min_index: int | None = None
+        if not d.segments or len(d.segments) != len(self.prep.segments):
+            return
+        seen: dict[tuple, int] = {}
+        candidates: list[ex.DesignPoint] = [ex.DesignPoint(_objective_words(d), d)]
+        if self.lifecycle is not None and self.lifecycle is not d:
+            candidates.append(ex.DesignPoint("lifecycle optimum", self.lifecycle))
+        if self.code_min is not None and self.code_min is not d:
+            candidates.append(ex.DesignPoint("code minimum", self.code_min))
+        methods = {p.choice: p.method for p in points}
+        for k, pd in enumerate(sorted(designs, key=lambda x: (x.totals.capex,
+                                                               x.totals.loss_pv))):
+            candidates.append(ex.DesignPoint(f"frontier point {k + 1}", pd,
+                                             methods.get(pd.choice, "weighted sum")))
+        for c in candidates:
+            key = tuple((s.material, s.size, s.sets) for s in c.design.segments)
+            if len(c.design.segments) != len(d.segments):
+                continue
+            if key in seen:
+                j = seen[key]
+                if c.method and not self.xpoints[j].method:   # an option on the frontier
+                    self.xpoints[j] = ex.DesignPoint(self.xpoints[j].label,
+                                                     self.xpoints[j].design, c.method)
+                continue
+            seen[key] = len(self.xpoints)
+            self.xpoints.append(c)
+        order = sorted(range(len(self.xpoints)),
+                       key=lambda i: (self.xpoints[i].design.totals.capex,
+                                      self.xpoints[i].design.totals.loss_pv))
+        self.xpoints = [self.xpoints[i] for i in order]
+        self.shown = order.index(0)
+        ids = {id(p.design): i for i, p in enumerate(self.xpoints)}
+        self.reference = ids.get(id(self.lifecycle), self.shown) if self.lifecycle else self.shown
+        self.code_min_index = ids.get(id(self.code_min)) if self.code_min else None
+        if self.code_min is d:
+            self.code_min_index = self.shown
+        if self.lifecycle is d:
+            self.reference = self.shown
+        if len(self.xpoints) < 2:
+            return
+        e = self.econ
+        self.explorer = ex.explorer_data(
+            self.xpoints, self.shown, self.reference, self.code_min_index, self.limits,
+            currency=self.cur, cost_per_w_year=float(e.annual_cost_per_w),
+            kwh_per_w_year=float(e.annual_loss_kwh(1.0)), years=float(e.years),
+            drop_limit_pct=float(self.prep.profile.drop_total_pct))
 
     # -- page -------------------------------------------------------------------------------
 
@@ -178,10 +254,13 @@ class _Page:
             f'<div class="caution" role="note"><strong>Caution</strong>{esc(CAUTION)}'
             "</div>",
             self.first_screen(),
-            '<nav class="toc">Contents: <a href="#scenario">Scenario</a>'
+            '<nav class="toc">Contents: <a href="#explore">Trade-off</a><a href="#tree">Tree</a>'
+            '<a href="#scenario">Scenario</a>'
             '<a href="#assumptions">Assumptions</a><a href="#options">Options</a>'
             '<a href="#justification">Why upsize</a><a href="#schedule">Schedule</a>'
             '<a href="#figures">Figures</a><a href="#verification">Verification</a></nav>',
+            self.explore_section(),
+            self.tree_section(),
             self.scenario_section(),
             self.assumptions_section(),
             self.options_section(),
@@ -196,6 +275,7 @@ class _Page:
             f"{esc(Path(s.file).name if s.file else 'an unnamed scenario')}. "
             "This page is self-contained: it loads nothing from the network.</p></footer>",
             "</main>",
+            ex.data_script(self.explorer) if self.explorer else "",
         ]
         return "\n".join(parts)
 
@@ -214,21 +294,24 @@ class _Page:
         findings = len(d.violations)
         cards = [
             card("Upfront cost", f"{tb.money(t.capex)} {self.cur}",
-                 "conductors and installation"),
+                 "conductors and installation", key="capex"),
             card("Lifetime total", f"{tb.money(t.lifecycle)} {self.cur}",
-                 f"upfront + losses over {self.econ.years:g} years, today's money"),
+                 f"upfront + losses over {self.econ.years:g} years, today's money",
+                 key="lifecycle"),
             card("Losses", f"{tb.money(t.loss_kwh_per_year)} kWh/yr",
                  f"{tb.money(tb.peak_loss_w(d) * self.econ.annual_cost_per_w)} {self.cur} "
-                 "in the first year"),
+                 "in the first year", key="losses"),
             card("Worst voltage drop", pct(worst),
-                 f"{'load flow' if worst_lf is not None else 'estimate'}, limit {limit:g} %",
-                 warn=worst > limit + 1e-9),
+                 f"{'AC load flow' if worst_lf is not None else 'linear estimate'}, "
+                 f"limit {limit:g} %", warn=worst > limit + 1e-9, key="drop"),
             card("Findings", str(findings),
                  "see Verification" if findings else "none from the checks run",
-                 warn=findings > 0),
+                 warn=findings > 0, key="findings"),
         ]
-        return (f'<p class="headline">{esc(self.headline())}</p>'
-                f'<div class="cards">{"".join(cards)}</div>'
+        showing = (f'<div class="showing" id="showing" hidden>Showing: <strong>'
+                   f"{esc(_objective_words(d))}</strong></div>" if self.explorer else "")
+        return (f'<p class="headline">{esc(self.headline())}</p>{showing}'
+                f'<div class="cards" id="cards">{"".join(cards)}</div>'
                 f'<p class="muted">Design: {esc(_objective_words(d))}, status '
                 f"{esc(DesignStatus(d.status).words)}"
                 f"{', engine ' + esc(d.engine) if d.engine else ''}.</p>")
@@ -242,7 +325,8 @@ class _Page:
         if c.added_cost <= 0.5:
             return ("The least-cost design that meets the code is also the best over the "
                     f"installation's {years}-year life: no upsizing pays.")
-        pays = (f"pays back in {c.payback_years:.1f} years"
+        pays = (f"pays back in {c.payback_years:.1f} years (simple payback: added cost over "
+                "the first year's saving)"
                 if math.isfinite(c.payback_years) else "never pays back")
         return (f"Sizing for the whole life instead of the code minimum costs "
                 f"{tb.money(c.added_cost)} {self.cur} more now, saves "
@@ -250,6 +334,51 @@ class _Page:
                 f"over {years} years it is worth {tb.money(c.npv)} {self.cur} today.")
 
     # -- sections --------------------------------------------------------------------------
+
+    def explore_section(self) -> str:
+        """The frontier chart: every design on it can be shown (with the script)."""
+        if not self.xpoints or len(self.xpoints) < 2:
+            return ""
+        pts = self.xpoints
+        chart = ex.frontier_svg(pts, self.shown, self.reference, self.code_min_index,
+                                self.cur, self.econ.years)
+        n = len(pts)
+        controls = (f'<div class="controls" id="explore-controls" hidden>'
+                    f'<label for="frontier-slider">Design along the frontier, least upfront '
+                    f'cost first: </label><input type="range" id="frontier-slider" min="0" '
+                    f'max="{n - 1}" step="1" value="{self.shown}">'
+                    f'<button type="button" id="show-optimum">Show the lifecycle optimum'
+                    f"</button></div>")
+        rows = []
+        for i, p in enumerate(pts):
+            t = p.design.totals
+            rows.append([Cell(p.label, "chosen" if i == self.shown else ""), num(t.capex),
+                         num(t.loss_pv), num(t.lifecycle), str(p.findings)])
+        listing = table(["Design", f"Upfront {self.cur}", f"Loss PV {self.cur}",
+                         f"Lifetime total {self.cur}", "Findings"], rows,
+                        numeric=[False, True, True, True, True], css="points")
+        return ('<section id="explore"><h2>The trade-off: upfront cost against losses</h2>'
+                f'<div class="explore"><figure class="chart-box">{chart}<figcaption>'
+                f"{esc(ex.chart_key())}. Each mark is a compliant design that no other beats "
+                "on both upfront cost and losses.</figcaption></figure>"
+                f'<div class="explore-side">{controls}'
+                '<p id="explore-diff" class="diff">This page shows '
+                f"{esc(pts[self.shown].label)}. Click a point on the chart or move the "
+                "slider to show another design in the key figures, the tree and the "
+                "schedule (needs JavaScript).</p>"
+                f"<details><summary>The {n} designs</summary>{listing}</details>"
+                "</div></div></section>")
+
+    def tree_section(self) -> str:
+        """The distribution tree as a picture of the design shown."""
+        d = self.design
+        if not d.segments or len(d.segments) != len(self.prep.segments):
+            return ""
+        views = ex.run_views(d, self.code_min, self.parent, self.kinds, self.limits,
+                             self.descriptions)
+        return ('<section id="tree"><h2>The distribution tree</h2>'
+                + tree_html(self.scenario.source.id, views, drop_basis=ex.drop_basis(d))
+                + "</section>")
 
     def scenario_section(self) -> str:
         """Site, rules, source and the size of the tree."""
@@ -405,7 +534,11 @@ class _Page:
         return "".join(out)
 
     def schedule_section(self) -> str:
-        """The cable schedule of the design."""
+        """The cable schedule of the design: one row per run, narrow enough for a page.
+
+        Cells that change with the design shown carry ``data-k`` so the page's script can
+        rewrite them; every row carries ``data-i`` (the run's index) and its panel.
+        """
         d = self.design
         out = ['<section id="schedule"><h2>Cable schedule</h2>']
         if not d.segments:
@@ -415,41 +548,71 @@ class _Page:
         descriptions = {n.id: n.description for n in self.scenario.nodes}
         rows_data = tb.schedule_table(d, descriptions)
         cur = self.cur
-        headers = ["From", "To", "Description", "Kind", "V", "Ph", "Length m"]
-        if self.imperial:
-            headers.append("Length ft")
-        headers += ["Current A", "Device A", "Sets", "Size", "Material", "EGC", "Ampacity A",
-                    "Use %", "Own drop %", "Path drop % (est.)", "Path drop % (load flow)",
-                    "Fault kA", f"Upfront {cur}", "Loss kW", f"Loss PV {cur}"]
-        rows = []
-        for r, seg in zip(rows_data, self.prep.segments, strict=False):
+        length = "Length m / ft" if self.imperial else "Length m"
+        # (header, key for the script or "", numeric)
+        cols = [("From", "", False), ("Run (to)", "", False), ("Kind", "", False),
+                ("Circuit", "", False), (length, "", True), ("Current A", "", True),
+                ("Device A", "", True), ("Conductor", "c", False), ("EGC", "e", False),
+                ("Ampacity A", "a", True), ("Use %", "u", True), ("Own drop %", "v", True),
+                ("Path drop % linear estimate", "p", True),
+                ("Path drop % load flow", "l", True), ("Fault kA", "f", True),
+                (f"Upfront {cur}", "x", True), ("Loss kW", "w", True),
+                (f"Loss PV {cur}", "q", True)]
+        head = "".join(
+            f'<th{" class=num" if n else ""} data-col="{j}" scope="col">{esc(h)}</th>'
+            for j, (h, _k, n) in enumerate(cols))
+        body = []
+        for i, (r, seg) in enumerate(zip(rows_data, self.prep.segments, strict=False)):
             own_limit = p.drop_limit_pct(r.kind)
             total_limit = p.drop_total_pct if seg.is_leaf else math.inf
-            row: list[object] = [r.from_id, r.to_id, Cell(r.description, "desc"), r.kind,
-                                 num(r.voltage_v),
-                                 str(r.phases), num(r.length_m, 1)]
-            if self.imperial:
-                row.append(num(r.length_m / M_PER_FT, 0))
-            row += [num(r.current_a, 1), num(r.ocpd_a), str(r.sets),
-                    r.size + (" (pinned)" if r.pinned else ""), r.material, r.egc,
-                    num(r.ampacity_a), num(r.utilisation_pct, 0),
-                    _flag(r.vd_pct, own_limit), _flag(r.path_vd_pct, total_limit),
-                    _flag(r.loadflow_drop_pct, total_limit), num(r.fault_ka, 1),
-                    num(r.capex), num(r.loss_kw, 2), num(r.loss_pv)]
-            rows.append(row)
-        numeric = [False, False, False, False, True, True, True] + ([True] if self.imperial
-                                                                    else [])
-        numeric += [True, True, True, False, False, False, True, True, True, True, True, True,
-                    True, True, True]
+            run = f"{esc(r.to_id)}"
+            if r.description:
+                run += f'<span class="desc">{esc(r.description)}</span>'
+            span = (f"{num(r.length_m, 1)}<span class=sub>{num(r.length_m / M_PER_FT, 0)} ft"
+                    "</span>" if self.imperial else num(r.length_m, 1))
+            cond = r.conductor + (" (pinned)" if r.pinned else "")
+            cells = [
+                ("", esc(r.from_id), False), ("", run, False), ("", esc(r.kind), False),
+                ("", f'<span class="nw">{num(r.voltage_v)} V {r.phases}-ph</span>', False),
+                ("", span, True),
+                ("", num(r.current_a, 1), True), ("", num(r.ocpd_a), True),
+                ("c", esc(cond), False), ("e", esc(r.egc).replace(" ", "\u00a0"), False),
+                ("a", num(r.ampacity_a), True), ("u", num(r.utilisation_pct, 0), True),
+                ("v", _flag_html(r.vd_pct, own_limit), True),
+                ("p", _flag_html(r.path_vd_pct, total_limit), True),
+                ("l", _flag_html(r.loadflow_drop_pct, total_limit), True),
+                ("f", num(r.fault_ka, 1), True), ("x", num(r.capex), True),
+                ("w", num(r.loss_kw, 2), True), ("q", num(r.loss_pv), True)]
+            tds = "".join(
+                f'<td{_cls(k, n)}{f" data-k={k}" if k else ""}>{v}</td>' for k, v, n in cells)
+            body.append(f'<tr data-i="{i}" data-panel="{esc(r.from_id)}">{tds}</tr>')
+        panels = sorted({r.from_id for r in rows_data})
+        options = "".join(f'<option value="{esc(x)}">{esc(x)}</option>' for x in panels)
+        controls = ('<div class="controls" id="schedule-controls" hidden>'
+                    '<label>Panel <select id="f-panel"><option value="">all</option>'
+                    f"{options}</select></label>"
+                    '<label>Run or description <input type="search" id="f-text" size="14">'
+                    "</label>"
+                    '<label>Path drop at least <input type="number" id="f-drop" min="0" '
+                    'step="0.1" size="4"> %</label>'
+                    '<label><input type="checkbox" id="f-changed"> only runs that differ '
+                    "from the lifecycle optimum</label>"
+                    '<span id="f-count" class="muted"></span>'
+                    '<span class="muted">Click a column heading to sort.</span></div>')
         t = d.totals
-        out.append(table(headers, rows, numeric=numeric, css="schedule"))
-        out.append(f'<p class="note">Totals: upfront {tb.money(t.capex)} {cur}, loss PV '
-                   f"{tb.money(t.loss_pv)} {cur}, {tb.money(t.loss_kwh_per_year)} kWh lost in "
-                   "the first year. Use % is the design current over the ampacity (the "
+        out.append(controls)
+        out.append(f'<table class="schedule" id="schedule-table"><thead><tr>{head}</tr></thead>'
+                   f'<tbody>{"".join(body)}</tbody></table>')
+        out.append(f'<p class="note" id="schedule-totals">Totals: upfront {tb.money(t.capex)} '
+                   f"{cur}, loss PV {tb.money(t.loss_pv)} {cur}, "
+                   f"{tb.money(t.loss_kwh_per_year)} kWh lost in the first year.</p>")
+        out.append('<p class="note">Use % is the design current over the ampacity (the '
                    "continuous-load factor is applied to the requirement, not shown here). "
                    "Drops are in % of each circuit's nominal voltage; path drops run from the "
-                   "source to the run's far end, transformers included. Marked cells exceed "
-                   "their limit.</p></section>")
+                   "source to the run's far end, transformers included: the linear estimate "
+                   "is what the optimiser holds to the limits, the AC load flow checks it. "
+                   "Marked cells exceed their limit. EGC: equipment grounding conductor; "
+                   "Device: the overcurrent device rating.</p></section>")
         return "".join(out)
 
     def figures_section(self) -> str:
@@ -461,7 +624,7 @@ class _Page:
             return "".join(out)
         p = self.prep.profile
         years = self.econ.years
-        if self.points:
+        if self.points and not self.explorer:
             fig = plots.frontier_figure(tb.frontier_table(self.points), self.option_rows,
                                         self.cur, years)
             out.append(figure(plots.png_bytes(fig), "Frontier of upfront cost against losses",
@@ -566,6 +729,18 @@ def _flag(value: float | None, limit: float) -> object:
     if value is not None and math.isfinite(value) and value > limit + 1e-9:
         return Cell(text, "over")
     return text
+
+
+def _flag_html(value: float | None, limit: float) -> str:
+    """A drop cell's text, marked (bold, "over" class) when it exceeds its limit."""
+    text = num(value, 2)
+    if value is not None and math.isfinite(value) and value > limit + 1e-9:
+        return f'<strong class="over">{text}</strong>'
+    return text
+
+
+def _cls(key: str, numeric: bool) -> str:
+    return ' class="num"' if numeric else ""
 
 
 def _count(n: int, word: str) -> str:

@@ -160,8 +160,8 @@ def voltage_profile_figure(profile: VoltageProfile, run_limit_pct: float,
 def cash_flow_figure(cash: CashFlow, currency: str, discount: float) -> Figure:
     """Cumulative cash flow of the upsizing, undiscounted and discounted; break-even marked.
 
-    Series (lines): the two cumulative curves, the zero line, and a marker at each
-    break-even crossing that happens within the lifetime.
+    Series (lines): the two cumulative curves, the zero line, and a dotted vertical line
+    at the simple payback (the same figure as the headline and the run table).
     """
     fig = _figure()
     ax = fig.add_subplot()
@@ -173,14 +173,11 @@ def cash_flow_figure(cash: CashFlow, currency: str, discount: float) -> Figure:
             linestyle=(0, (5, 2)), linewidth=2.0,
             label=f"cumulative, discounted at {100 * discount:g} % a year")
     ax.axhline(0.0, color=INK, linewidth=0.9, label="break-even")
-    for discounted, colour, marker in ((False, TEAL, "o"), (True, BRICK, "s")):
-        year = cash.crossing_year(discounted)
-        if year is None or cash.added_cost <= 0:
-            continue
-        ax.plot([year], [0.0], linestyle="none", marker=marker, markersize=8, color=colour,
-                markeredgecolor=INK,
-                label=(f"{'discounted' if discounted else 'simple'} break-even, "
-                       f"year {year:.1f}"))
+    # One payback figure on the whole page: the simple one (added cost / first-year saving).
+    if cash.added_cost > 0 and cash.payback_years <= max(years, default=0):
+        ax.axvline(cash.payback_years, color=INK, linestyle=(0, (1, 2)), linewidth=1.4,
+                   label=f"simple payback (added cost / first-year saving), "
+                         f"{cash.payback_years:.1f} years")
     ax.set_xlabel("Years after construction (year)")
     ax.set_ylabel(f"Cumulative money, savings less added cost ({currency})")
     ax.yaxis.set_major_formatter(_thousands())
