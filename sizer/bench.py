@@ -19,6 +19,8 @@ import platform
 import random
 import resource
 import statistics
+import subprocess
+import sys
 import tempfile
 import time
 from collections.abc import Callable, Sequence
@@ -29,6 +31,13 @@ from typing import TypeVar
 T = TypeVar("T")
 
 STAGES = ("read", "currents", "candidates", "engine", "verify", "report")
+# Start-up: a fresh interpreter running a command that needs no optimiser, plotting or
+# load flow (issue 17): what a user waits for before sizer starts its work.
+STARTUP_COMMANDS: dict[str, tuple[str, ...]] = {
+    "help": ("--help",),
+    "reach": ("reach", "--conductor", "4 AWG Cu", "--insulation", "90 degC", "--current",
+              "50 A", "--voltage", "240 V", "--phases", "1", "--limit", "3 %"),
+}
 
 _HEAD = """\
 # synthetic benchmark tree ({n} segments, seed {seed}); invented data
@@ -227,10 +236,25 @@ def _child(n: int, repeats: int, milp_limit_s: float, run_milp: bool, queue) -> 
         queue.put(("error", f"{type(exc).__name__}: {exc}"))
 
 
+def startup_s(repeats: int = 3) -> dict[str, float]:
+    """Median wall time of each start-up command in a fresh interpreter (s)."""
+    out = {}
+    for name, argv in STARTUP_COMMANDS.items():
+        cmd = [sys.executable, "-m", "sizer.cli", *argv]
+        out[name], _ = _time(lambda cmd=cmd: subprocess.run(  # type: ignore[misc]
+            cmd, capture_output=True, check=True, timeout=120), max(repeats, 1))
+    return out
+
+
 def run_bench(sizes: Sequence[int] = (100, 1000, 5000, 20000), repeats: int = 3,
               milp_limit_s: float = 60.0, progress: Callable[[str], None] = lambda s: None,
               ) -> dict[str, object]:
-    """Measure every size in its own process; the MILP stops being tried once it times out."""
+    """Measure every size in its own process; the MILP stops being tried once it times out.
+
+    Start-up (``sizer --help``, ``sizer reach``) is timed first, each in a fresh process.
+    """
+    progress("bench: start-up")
+    startup = startup_s(repeats)
     ctx = multiprocessing.get_context("spawn")
     results = []
     milp_ok = True
@@ -250,6 +274,7 @@ def run_bench(sizes: Sequence[int] = (100, 1000, 5000, 20000), repeats: int = 3,
         "machine": {"cores": os.cpu_count(), "python": platform.python_version(),
                     "platform": platform.platform()},
         "repeats": repeats,
+        "startup_s": startup,
         "milp_time_limit_s": milp_limit_s,
         "sizes": results,
     }
@@ -272,6 +297,10 @@ def table_text(doc: dict[str, object]) -> str:
             + f" {r['total_s']:>8.2f} {r['candidate_rows_per_s']:>10.3g} "
             f"{r['peak_memory_mb']:>6.0f} {milp:>8} {speed:>9}")
     cores = doc["machine"]["cores"]  # type: ignore[index]
+    startup = doc.get("startup_s")
+    if isinstance(startup, dict) and startup:
+        lines.append("start-up, fresh process, wall: " + ", ".join(
+            f"sizer {name} {seconds:.2f} s" for name, seconds in startup.items()))
     for r in doc["sizes"]:  # type: ignore[attr-defined]
         if r["milp_excess_pct"] is not None:
             lines.append(f"{r['segments']:>9}: MILP {r['milp_status']}, its best design "

@@ -10,7 +10,7 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from sizer import CAUTION
+from sizer import CAUTION, __version__
 from sizer.errors import InternalError, ScenarioError, SizerError
 
 if TYPE_CHECKING:
@@ -157,6 +157,26 @@ def _write_design_files(args: argparse.Namespace, results: Results,
         write_xlsx(args.xlsx, results.design, protect=protect)
 
 
+def _written(args: argparse.Namespace) -> list[str]:
+    """The data files this run wrote that hold the whole schedule (for the summary)."""
+    return [p for p in (getattr(args, "csv", None), getattr(args, "xlsx", None),
+                        getattr(args, "json", None)) if isinstance(p, str)]
+
+
+def _rows(text: str) -> int | None:
+    """``--rows``: a count of schedule rows to print, or "all"."""
+    if text.strip().lower() == "all":
+        return None
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"expected a whole number or 'all', got {text!r}") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"must be 0 or more, got {value}")
+    return value
+
+
 def _prepare(args: argparse.Namespace, *, keep_pins: bool = False) -> Prepared:
     from sizer.optimize import prepare
     from sizer.scenario import load_scenario
@@ -185,7 +205,8 @@ def _cmd_solve(args: argparse.Namespace) -> int:
         _write_design_files(args, results)
         if args.report and results.design.segments:
             results.report(args.report, protect=_protect(args, prep.scenario), progress=say)
-    print(summary(results.design, prep.scenario.title))
+    print(summary(results.design, prep.scenario.title, max_rows=args.rows,
+                  written=_written(args)))
     return 0 if results.design.segments else 1
 
 
@@ -199,7 +220,8 @@ def _cmd_check(args: argparse.Namespace) -> int:
     results = check_results(prep, engine=args.engine, solver=args.solver,
                             time_limit_s=args.time_limit)
     _write_design_files(args, results)
-    print(summary(results.design, prep.scenario.title))
+    print(summary(results.design, prep.scenario.title, max_rows=args.rows,
+                  written=_written(args)))
     return 0 if results.status is DesignStatus.COMPLIANT else 1
 
 
@@ -290,7 +312,8 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 
     with _progress(args) as say:
         result = run_demo(Path(args.folder), force=args.force, progress=say)
-    print(summary(result.design, result.title, max_rows=12))
+    print(summary(result.design, result.title, max_rows=args.rows,
+                  written=[result.schedule_csv, result.results_json]))
     print(f"\nwrote in {result.seconds:.1f} s:")
     for path in result.files:
         print(f"  {path}")
@@ -339,6 +362,7 @@ def build_parser() -> argparse.ArgumentParser:
         description="Least-cost conductor sizing for low-voltage distribution trees.",
         epilog=CAUTION,
     )
+    parser.add_argument("--version", action="version", version=f"sizer {__version__}")
     sub = parser.add_subparsers(dest="command", required=True)
 
     p = sub.add_parser("loads", help="read a scenario and print every segment's design current")
@@ -361,6 +385,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--csv", help="write the schedule as CSV here")
     p.add_argument("--xlsx", help="write the schedule as XLSX here (needs sizer[xlsx])")
     p.add_argument("--report", help="write the HTML report here")
+    p.add_argument("--rows", type=_rows, default=40, metavar="N|all",
+                   help="schedule rows to print (default 40; all: every run)")
     p.add_argument("--motor-start", action="store_true",
                    help="size so that every motor's starting dip meets the profile's limit")
     solver_options(p)
@@ -370,6 +396,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("file", help="scenario file")
     p.add_argument("--json", help="write the results document here")
     p.add_argument("--csv", help="write the schedule as CSV here")
+    p.add_argument("--rows", type=_rows, default=40, metavar="N|all",
+                   help="schedule rows to print (default 40; all: every run)")
     solver_options(p)
     p.set_defaults(run=_cmd_check)
 
@@ -403,6 +431,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("folder", nargs="?", default="sizer-demo",
                    help="where to put the scenario and the outputs (default ./sizer-demo)")
     p.add_argument("--force", action="store_true", help="overwrite files from an earlier demo")
+    p.add_argument("--rows", type=_rows, default=12, metavar="N|all",
+                   help="schedule rows to print (default 12; all: every run)")
     p.add_argument("--quiet", action="store_true", help="no progress display")
     p.set_defaults(run=_cmd_demo)
 
@@ -450,7 +480,15 @@ def main(argv: Sequence[str] | None = None) -> int:
     except SystemExit as exc:  # argparse already printed its one-line usage error
         return int(exc.code or 0)
     try:
-        return int(args.run(args))
+        code = int(args.run(args))
+        sys.stdout.flush()  # inside the try: a closed pipe shows here, not at exit
+        return code
+    except BrokenPipeError:
+        # The reader went away (`sizer solve x | head`): stop quietly. Point stdout at
+        # the null device so the interpreter's final flush does not complain either.
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 141  # 128 + SIGPIPE, as the shell reports a writer the pipe closed on
     except SizerError as exc:
         # A located error already starts with its file; others say who is speaking.
         located = isinstance(exc, ScenarioError) and exc.file

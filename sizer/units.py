@@ -6,25 +6,71 @@ caller names (SI unless stated), so the hot code never sees pint.
 
 from __future__ import annotations
 
+import functools
 import math
 import re
+import sys
 from dataclasses import dataclass
-from typing import Literal
-
-import pint
+from typing import TYPE_CHECKING, Any, Literal
 
 from sizer.errors import UnitError
 
-ureg: pint.UnitRegistry = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
-Q_ = ureg.Quantity
+if TYPE_CHECKING:
+    import pint
 
-# Conductor areas: 1 kcmil = 1000 circular mils (pint already knows circular_mil).
-ureg.define("kcmil = 1000 * circular_mil = MCM")
 # Each currency is its own dimension, so a price in EUR never silently meets USD.
 CURRENCIES = ("USD", "EUR", "CAD", "GBP", "AUD", "NZD", "CHF", "SEK", "NOK", "DKK", "JPY",
               "CNY", "INR", "ZAR", "BRL", "MXN", "PLN", "CZK")
-for _code in CURRENCIES:
-    ureg.define(f"{_code} = [currency_{_code}]")
+
+# pint looks for these at import to support their arrays; sizer never gives it one, and
+# importing them costs more than pint itself (dask alone ~0.1 s here). Hidden while pint
+# loads, they are importable as usual afterwards.
+_NOT_FOR_PINT = ("dask", "scipy")
+
+
+def _import_pint() -> Any:
+    hidden = [name for name in _NOT_FOR_PINT if name not in sys.modules]
+    for name in hidden:
+        sys.modules[name] = None  # type: ignore[assignment]  # import and find_spec: absent
+    try:
+        import pint
+    finally:
+        for name in hidden:
+            if sys.modules.get(name, 0) is None:
+                del sys.modules[name]
+    return pint
+
+
+def _pint() -> Any:
+    return sys.modules.get("pint") or _import_pint()
+
+
+@functools.cache
+def registry() -> pint.UnitRegistry:
+    """The one pint registry, built on first use (commands that parse no unit skip it).
+
+    pint keeps its parsed definitions in the user's cache folder (``cache_folder=":auto:"``),
+    so later runs skip parsing its definitions file.
+    """
+    pint = _import_pint()
+    try:
+        ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True, cache_folder=":auto:")
+    except OSError:  # no writable cache folder: parse the definitions every time
+        ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+    # Conductor areas: 1 kcmil = 1000 circular mils (pint already knows circular_mil).
+    ureg.define("kcmil = 1000 * circular_mil = MCM")
+    for code in CURRENCIES:
+        ureg.define(f"{code} = [currency_{code}]")
+    return ureg
+
+
+def __getattr__(name: str) -> Any:
+    """``ureg`` and ``Q_`` as module attributes, built on first use."""
+    if name == "ureg":
+        return registry()
+    if name == "Q_":
+        return registry().Quantity
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 Material = Literal["Cu", "Al"]
 MATERIALS: tuple[Material, ...] = ("Cu", "Al")
@@ -66,7 +112,8 @@ def quantity(text: object) -> pint.Quantity:
     if not unit:
         raise UnitError(f"needs a unit, got {text!r}")
     try:
-        return Q_(number, ureg.parse_units(unit))
+        ureg = registry()
+        return ureg.Quantity(number, ureg.parse_units(unit))
     except Exception as exc:  # pint's parser raises many kinds (TokenError, ZeroDivision...)
         raise UnitError(f"unknown unit {match['unit']!r} in {text!r}") from exc
 
@@ -76,7 +123,7 @@ def parse_quantity(text: object, unit: str) -> float:
     q = quantity(text)
     try:
         return float(q.to(unit).magnitude)
-    except pint.errors.DimensionalityError as exc:
+    except _pint().errors.DimensionalityError as exc:
         raise UnitError(f"{text!r} is not {_describe(unit)}") from exc
 
 
@@ -115,7 +162,7 @@ def parse_money(text: object, currency: str, per: str | None = None) -> float:
     q = quantity(text)
     try:
         return float(q.to(unit).magnitude)
-    except pint.errors.DimensionalityError as exc:
+    except _pint().errors.DimensionalityError as exc:
         raise UnitError(f"{text!r} is not a price in {unit}") from exc
 
 

@@ -28,4 +28,7 @@ def test_bench_command_writes_every_stage(tmp_path, capsys):
     assert set(size["stages_s"]) == set(STAGES)
     assert size["candidates"] > 0 and size["milp_status"] in ("optimal", "time_limit")
     assert doc["machine"]["cores"] >= 1
-    assert "segments" in capsys.readouterr().out
+    assert set(doc["startup_s"]) == {"help", "reach"}  # beside the stages (issue 17)
+    assert all(t > 0 for t in doc["startup_s"].values())
+    out = capsys.readouterr().out
+    assert "segments" in out and "start-up, fresh process, wall: sizer help" in out
