@@ -94,7 +94,8 @@ def test_justification_arithmetic_of_the_upsized_run():
     assert a.npv == pytest.approx(2882.12, abs=0.01)
     assert a.sentence == (
         "Upsizing A from 4/0 AWG Al to 350 kcmil Al costs 500 USD more now, saves 4,380 kWh "
-        "(438 USD) a year and pays back in 1.1 years; over 10 years it is worth 2,882 USD "
+        "(438 USD) a year and pays back in 1.1 years (simple payback); over 10 years it is "
+        "worth 2,882 USD "
         "today.")
 
 

@@ -8,6 +8,7 @@ Debian's chromium and chromium-driver with the selenium package; selenium is poi
 from __future__ import annotations
 
 import base64
+import io
 import json
 import re
 import shutil
@@ -21,6 +22,7 @@ from sizer.scenario import load_scenario
 from sizer.workflow import frontier, frontier_designs
 
 webdriver = pytest.importorskip("selenium.webdriver")
+pypdf = pytest.importorskip("pypdf")
 from selenium.webdriver.chrome.service import Service  # noqa: E402
 from selenium.webdriver.common.by import By  # noqa: E402
 from selenium.webdriver.common.print_page_options import PrintOptions  # noqa: E402
@@ -170,7 +172,10 @@ def test_schedule_fits_a_1280_pixel_window(browser):
 
 @pytest.mark.parametrize(("paper", "width_cm", "height_cm"),
                          [("A4", 29.7, 21.0), ("Letter", 27.94, 21.59)])
-def test_prints_on_landscape_pages_without_cut_columns(browser, paper, width_cm, height_cm):
+def test_prints_on_landscape_pages_without_cut_columns(browser, demo, paper, width_cm,
+                                                       height_cm):
+    result, _ = demo
+    browser.get(result.report.resolve().as_uri())  # fresh: unsorted, unfiltered
     options = PrintOptions()
     options.orientation = "landscape"
     # WebDriver takes the sheet as it lies in portrait; landscape turns it.
@@ -179,8 +184,31 @@ def test_prints_on_landscape_pages_without_cut_columns(browser, paper, width_cm,
     options.background = True
     pdf = base64.b64decode(browser.print_page(options))
     assert pdf.startswith(b"%PDF")
-    pages = len(re.findall(rb"/Type\s*/Page(?!s)", pdf))
-    assert 3 <= pages <= 40, pages
+    reader = pypdf.PdfReader(io.BytesIO(pdf))
+    pages = reader.pages
+    assert 3 <= len(pages) <= 40, len(pages)
+    for page in pages:  # landscape: wider than tall
+        assert float(page.mediabox.width) > float(page.mediabox.height)
+    text = ["".join(p.extract_text().split()) for p in pages]  # whitespace dropped
+    first = next(i for i, t in enumerate(text) if t.startswith("Cableschedule"))
+    last = next(i for i, t in enumerate(text) if i > first and t.startswith("Figures"))
+    schedule = text[first:last]
+    assert schedule
+    # Every schedule page repeats the header row, first column to last.
+    for t in schedule:
+        assert "FromRun(to)Kind" in t
+        assert "LossPVUSD" in t
+    # No cut column: every run's last cell (loss PV) and first (its feeder) are printed,
+    # in run order.
+    doc = json.loads(result.results_json.read_text(encoding="utf-8"))
+    joined = "".join(schedule)
+    at = 0
+    for seg in doc["segments"]:
+        cell = f"{seg['parent']}{seg['id']}"
+        found = joined.find(cell, at)
+        assert found >= 0, cell
+        at = found
+        assert f"{seg['loss_pv']:,.0f}" in joined
     # Lay the page out for print at the sheet's printable width (10 mm margins) and check
     # every schedule column ends inside it.
     css_px = (width_cm - 2.0) / 2.54 * 96

@@ -509,7 +509,7 @@ class _Page:
             out.append(f'<p class="note">{len(self.justify) - len(top)} more runs in the table '
                        "below.</p>")
         headers = ["Run", "Code minimum", "Lifecycle", f"Added {cur}", "kWh saved/yr",
-                   f"{cur} saved/yr", "Payback years", f"NPV {cur}"]
+                   f"{cur} saved/yr", "Simple payback years", f"NPV {cur}"]
         rows: list[list[object]] = [[r.segment, r.code_minimum, r.lifecycle, num(r.added_cost),
                  num(r.kwh_saved_per_year), num(r.money_saved_per_year),
                  num(r.payback_years, 1) if math.isfinite(r.payback_years) else "never",

@@ -147,7 +147,8 @@ def justification_sentence(segment: str, before: str, after: str, added_cost: fl
     if money_per_year > 0:
         saving = (f", saves {money(kwh_per_year)} kWh ({money(money_per_year)} {currency}) "
                   f"a year")
-        pays = (f" and pays back in {payback_years:.1f} years" if math.isfinite(payback_years)
+        pays = (f" and pays back in {payback_years:.1f} years (simple payback)"
+                if math.isfinite(payback_years)
                 else "")
     else:
         saving, pays = ", saves no energy", " and never pays back"
