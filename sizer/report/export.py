@@ -256,16 +256,20 @@ def xlsx_bytes(design: Design) -> bytes:
     wb.properties.created = wb.properties.modified = datetime.datetime(*_ZIP_EPOCH)
     ws = wb.active
     ws.title = "Schedule"
-    for col, name in enumerate(SCHEDULE_COLUMNS, start=1):
+    # Written from the same DataFrame as the CSV (and as ``Results.schedule``).
+    frame = schedule_frame(design)
+    rows = [list(r) for r in frame.astype(object).itertuples(index=False, name=None)]
+    columns = [str(c) for c in frame.columns]
+    for col, name in enumerate(columns, start=1):
         put(ws, 1, col, name).font = Font(bold=True)
-    for row, seg in enumerate(design.segments, start=2):
-        for col, name in enumerate(SCHEDULE_COLUMNS, start=1):
-            cell = put(ws, row, col, getattr(seg, name))
+    for row, values in enumerate(rows, start=2):
+        for col, (name, value) in enumerate(zip(columns, values, strict=True), start=1):
+            cell = put(ws, row, col, value)
             if name in _XLSX_NUMBER_FORMATS:
                 cell.number_format = _XLSX_NUMBER_FORMATS[name]
     ws.freeze_panes = "C2"
-    for col, name in enumerate(SCHEDULE_COLUMNS, start=1):
-        width = max([len(name)] + [len(str(getattr(s, name))) for s in design.segments])
+    for col, name in enumerate(columns, start=1):
+        width = max([len(name)] + [len(str(r[col - 1])) for r in rows])
         ws.column_dimensions[ws.cell(row=1, column=col).column_letter].width = min(width + 2, 40)
 
     totals = wb.create_sheet("Totals")

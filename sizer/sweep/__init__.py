@@ -28,12 +28,14 @@ from __future__ import annotations
 import itertools
 import math
 import os
+import sys
+import types
 import uuid
 from collections.abc import Sequence
 from dataclasses import replace
 from pathlib import Path
 from types import MappingProxyType
-from typing import Literal
+from typing import Any, Literal
 
 import numpy as np
 
@@ -282,3 +284,21 @@ def _neighbours(fields: Sequence[VaryRange], mode: str, n_points: int
             pairs.extend((k, start + j, start + j + 1) for j in range(len(f.values) - 1))
             start += len(f.values)
     return sorted(pairs, key=lambda p: (p[0], p[1]))
+
+
+class _CallablePackage(types.ModuleType):
+    """``sizer.sweep(...)``: the package itself runs a sweep and returns a DataFrame.
+
+    The package and the library function share the name ``sizer.sweep``; Python sets
+    the package as that attribute once it is imported, so the package is made callable
+    instead of being shadowed by (or shadowing) a function.
+    """
+
+    def __call__(self, scenario: Scenario | str | Path, vary: Sequence[str | VaryRange],
+                 **options: Any) -> Any:
+        from sizer.api import sweep as sweep_frame
+
+        return sweep_frame(scenario, vary, **options)
+
+
+sys.modules[__name__].__class__ = _CallablePackage
