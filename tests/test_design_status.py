@@ -104,7 +104,8 @@ def test_cli_big_tree_short_time_limit_is_honest(tmp_path: Path, capsys) -> None
     doc = json.loads(out.read_text())
     if code == 0:
         assert doc["status"] in ("optimal", "time_limit")
-        assert len(doc["segments"]) == 400
+        # synthetic_scenario(400) gives 400 runs "give or take a panel": count the nodes
+        assert len(doc["segments"]) == site.read_text(encoding="utf-8").count("[[node]]")
         assert all(s["size"] for s in doc["segments"])
     else:
         assert code == 1
