@@ -46,6 +46,7 @@ def make_driver(tmp_path, *, javascript: bool = True, width: int = 1280):
         options.add_experimental_option(
             "prefs", {"profile.managed_default_content_settings.javascript": 2})
     options.binary_location = BROWSER
+    options.set_capability("goog:loggingPrefs", {"browser": "ALL"})
     return webdriver.Chrome(service=Service(DRIVER), options=options)
 
 
@@ -131,6 +132,8 @@ def test_clicking_a_frontier_point_shows_its_design(browser, demo):
         "const s = document.getElementById('frontier-slider'); s.value = arguments[0];"
         "s.dispatchEvent(new Event('input'));", data["reference"])
     assert schedule_conductors(browser) == before
+    errors = [e for e in browser.get_log("browser") if e["level"] == "SEVERE"]
+    assert errors == []  # the page's script ran without an error
 
 
 def test_sort_and_filter_the_schedule(browser):

@@ -37,7 +37,8 @@
     card("losses", money(p.kwh) + " kWh/yr", money(p.lossw * data.costPerW) + " " + cur + " in the first year");
     var d = card("drop", fixed(p.worst, 2) + " %", (p.basis === "AC load flow" ? "AC load flow" : "linear estimate") + ", limit " + data.dropLimit + " %");
     if (d) { d.classList.toggle("warn", p.worst > data.dropLimit + 1e-9); }
-    var f = card("findings", String(p.findings), p.findings ? "see the schedule's marked cells" : "none from the checks run");
+    var f = card("findings", String(p.findings), !p.findings ? "none from the checks run" :
+      (current === data.shown ? "see Verification" : "from this design's load flow and fault check"));
     if (f) { f.classList.toggle("warn", p.findings > 0); }
   }
 
@@ -153,7 +154,10 @@
       var s = document.createElement("strong");
       s.textContent = p.label;
       showing.appendChild(s);
-      if (index !== data.reference) { showing.appendChild(document.createTextNode(" (not the lifecycle optimum: the tables below the schedule describe the optimum)")); }
+      if (index !== data.shown) {
+        showing.appendChild(document.createTextNode(" (the sections after the schedule describe " +
+          data.points[data.shown].label + ")"));
+      }
     }
   }
 
@@ -161,7 +165,7 @@
     index = Math.max(0, Math.min(data.points.length - 1, index));
     var p = data.points[index];
     current = index;
-    cards(p);
+    cards(p);  // reads current
     schedule(p);
     tree(p);
     difference(p, index);
