@@ -84,5 +84,9 @@ def test_binding_is_within_the_tolerance_of_a_limit(page, own, path, limits, exp
     results, _, _ = page
     from dataclasses import replace
 
-    s = replace(results.design.segments[0], vd_pct=own, path_vd_pct=path)
+    s = replace(results.design.segments[0], vd_pct=own, path_vd_pct=path,
+                loadflow_drop_pct=None)
     assert ex.binds(s, limits) is expected
+    # the load flow's drop counts too: it is what the closed loop holds to the limit
+    flow = replace(s, loadflow_drop_pct=limits.path_pct - 0.01)
+    assert ex.binds(flow, limits) is (True if math.isfinite(limits.path_pct) else expected)

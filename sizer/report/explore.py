@@ -56,10 +56,17 @@ def upsized(s: SegmentResult, base: SegmentResult | None) -> bool:
 
 
 def binds(s: SegmentResult, limits: RunLimits) -> bool:
-    """A drop limit binds: the run's own drop or its path drop (estimate) is at its limit."""
+    """A drop limit binds: the run's own drop or its path drop is at its limit.
+
+    The path drop is the larger of the linear estimate and the load flow: the closed
+    loop tightens the estimate's budget by the load flow's excess, so for a load the
+    optimiser held back it is the load flow that sits at the limit.
+    """
     tol = BINDING_TOLERANCE_PCT
+    path = max(s.path_vd_pct, s.loadflow_drop_pct if s.loadflow_drop_pct is not None
+               else -math.inf)
     return (s.vd_pct >= limits.own_pct - tol) or (
-        math.isfinite(limits.path_pct) and s.path_vd_pct >= limits.path_pct - tol)
+        math.isfinite(limits.path_pct) and path >= limits.path_pct - tol)
 
 
 def shown_drop(s: SegmentResult) -> float:
