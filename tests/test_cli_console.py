@@ -122,3 +122,12 @@ def test_dask_and_scipy_still_import_after_the_registry():
     done = subprocess.run([sys.executable, "-W", "error", "-c", code], capture_output=True,
                           text=True, timeout=120, check=True)
     assert float(done.stdout) == pytest.approx(30.48)  # 1 ft = 0.3048 m exactly (definition)
+
+
+def test_reach_works_without_a_writable_cache_folder(tmp_path):
+    # pint's definitions cache is a speed-up only: no cache folder, same answer
+    env = {"PATH": "/usr/bin:/bin", "HOME": str(tmp_path), "XDG_CACHE_HOME": "/proc/no-cache"}
+    done = subprocess.run([sys.executable, "-W", "error", "-m", "sizer.cli", *REACH],
+                          capture_output=True, text=True, timeout=120, env=env, check=False)
+    assert done.returncode == 0, done.stderr
+    assert "reach" in done.stdout and done.stderr == ""
