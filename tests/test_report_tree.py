@@ -117,5 +117,17 @@ def test_every_run_is_drawn_in_some_picture(seeds):
     page = tr.tree_html("SRC", runs_of(parents), drop_basis="AC load flow")
     assert set(drawn_runs(page)) == set(range(len(parents)))
     overview = pictures(page)[0]
+    # the first level stays open: only runs that feed others (and one group) add rows
+    feeders = {p for p in parents if p >= 0}
+    first_level = sum(1 for i, p in enumerate(parents) if p == -1 and i in feeders) + 1
     assert float(overview.attrib["height"]) <= 2 * tr.MARGIN + max(
-        tr.MAX_ROWS, sum(1 for p in parents if p == -1)) * tr.ROW
+        tr.MAX_ROWS, first_level) * tr.ROW
+
+
+def test_loads_fed_straight_from_the_source_group_too():
+    parents = [-1] * 30
+    page = tr.tree_html("SRC", runs_of(parents), drop_basis="AC load flow")
+    overview, _detail = pictures(page)
+    assert float(overview.attrib["height"]) == 2 * tr.MARGIN + tr.ROW  # one group row
+    assert "the source: 30 circuits" in page
+    assert sorted(drawn_runs(page)) == list(range(30))

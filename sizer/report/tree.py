@@ -323,8 +323,7 @@ def tree_html(source_id: str, runs: Sequence[RunView], *, drop_basis: str,
               max_rows: int = MAX_ROWS) -> str:
     """The overview picture, its key and the detail pictures of groups and closed panels."""
     b = _Builder(runs)
-    root = _Item("node", run=-1)
-    root.children = [b.item(k) for k in b.kids[-1]]
+    root = b.item(-1)   # the source: loads fed straight from it group like a panel's
     b.close_largest(root, max_rows)
     draw = Drawing(runs, source_id)
     n_loads = sum(1 for r in runs if r.node_kind == "load")
