@@ -5,7 +5,8 @@ from __future__ import annotations
 import argparse
 import os
 import sys
-from collections.abc import Callable, Iterator, Sequence
+import typing
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -16,6 +17,7 @@ from sizer.errors import InternalError, ScenarioError, SizerError
 if TYPE_CHECKING:
     from sizer.model import Scenario
     from sizer.optimize import Prepared
+    from sizer.outputs import Protected
     from sizer.results import Results
 
 Command = Callable[[argparse.Namespace], int]
@@ -26,16 +28,15 @@ def _cmd_loads(args: argparse.Namespace) -> int:
     from sizer.rules import load_profile
     from sizer.scenario import load_scenario
 
-    if args.csv:
-        _outputs(args)
+    _outputs(args)
     scenario = load_scenario(args.file)
-    _outputs(args, scenario.inputs)
+    _outputs(args, scenario)
     profile = load_profile(scenario.rules)
     segments = design_segments(scenario, profile)
     if args.csv:
-        from sizer.scenario import write_schedule_csv
+        from sizer.scenario import schedule_csv_text
 
-        write_schedule_csv(scenario, args.csv)
+        _write_outputs(args, scenario, {"csv": lambda: schedule_csv_text(scenario)})
     print(f"{scenario.title} — design currents ({profile.name})")
     print(f"{'segment':<16} {'from':<16} {'kind':<7} {'V':>6} {'ph':>2} {'I A':>9} "
           f"{'need A':>9} {'device A':>9}")
@@ -51,48 +52,21 @@ def _cmd_loads(args: argparse.Namespace) -> int:
 
 def _cmd_reach(args: argparse.Namespace) -> int:
     from sizer.reach import conductor_reach
-    from sizer.units import (
-        M_PER_FT,
-        parse_conductor,
-        parse_percent,
-        parse_quantity,
-        parse_temperature_c,
-    )
-
-    def located(field: str, parse: Callable[[str], float], text: str | None) -> float | None:
-        if text is None:
-            return None
-        try:
-            return parse(text)
-        except ScenarioError as exc:
-            raise exc.located(field=field) from None
-
-    def required(field: str, parse: Callable[[str], float], text: str) -> float:
-        value = located(field, parse, text)
-        assert value is not None  # argparse makes these flags required
-        return value
-
-    try:
-        conductor = parse_conductor(args.conductor)
-    except ScenarioError as exc:
-        raise exc.located(field="--conductor") from None
+    from sizer.units import M_PER_FT
 
     result = conductor_reach(
-        conductor,
-        voltage_v=required("--voltage", lambda t: parse_quantity(t, "V"), args.voltage),
-        phases=args.phases,
-        limit_pct=required("--limit", parse_percent, args.limit),
-        insulation_c=required("--insulation", parse_temperature_c, args.insulation),
-        current_a=located("--current", lambda t: parse_quantity(t, "A"), args.current),
-        ocpd_a=located("--ocpd", lambda t: parse_quantity(t, "A"), args.ocpd),
-        power_factor=_power_factor(args.power_factor),
-        ambient_c=required("--ambient", parse_temperature_c, args.ambient),
-        rules=args.rules,
-        installation=args.installation,
-        terminal_c=located("--terminals", parse_temperature_c, args.terminals),
-        conductor_temperature_c=located("--conductor-temperature", parse_temperature_c,
-                                        args.conductor_temperature),
+        args.conductor, voltage_v=args.voltage, phases=args.phases, limit_pct=args.limit,
+        insulation_c=args.insulation, current_a=args.current, ocpd_a=args.ocpd,
+        power_factor=args.power_factor, ambient_c=args.ambient, rules=args.rules,
+        installation=args.installation, terminal_c=args.terminals,
+        conductor_temperature_c=args.conductor_temperature,
     )
+    if result.design_current_a > result.ampacity_a:
+        # A run that cannot carry its current has no reach (NEC 310.14, IEC 60364-5-52).
+        raise ScenarioError(
+            f"{result.design_current_a:.4g} A is more than this conductor carries "
+            f"({result.ampacity_a:.4g} A under {args.rules}): choose a larger conductor",
+            field="--current" if args.current is not None else "--ocpd")
     if args.json:
         from sizer.report.export import json_text
 
@@ -105,8 +79,8 @@ def _cmd_reach(args: argparse.Namespace) -> int:
             "x_ohm_per_km": result.x_ohm_per_km,
         }), end="")
         return 0
-    print(f"{args.conductor} at {result.design_current_a:.1f} A, {args.voltage} "
-          f"{args.phases}-phase, drop limit {args.limit}:")
+    print(f"{args.conductor} at {result.design_current_a:.1f} A, {args.voltage:g} V "
+          f"{args.phases}-phase, drop limit {args.limit:g} %:")
     print(f"  reach        {result.reach_m:.1f} m ({result.reach_m / M_PER_FT:.0f} ft)")
     print(f"  ampacity     {result.ampacity_a:.0f} A ({args.rules})")
     print(f"  running at   {result.conductor_temperature_c:.1f} degC "
@@ -118,43 +92,53 @@ def _cmd_reach(args: argparse.Namespace) -> int:
     return 0
 
 
-def _outputs(args: argparse.Namespace, inputs: Sequence[str] = ()) -> list[Path]:
-    """Output paths named on the command line, checked before anything is written.
+_OUTPUT_OPTIONS = ("json", "csv", "xlsx", "report")
 
-    Called once before any work (against the named file) and again with every file the
-    scenario read (its head and CSV schedule), so an input is never overwritten and no
-    output is written when another would be refused.
+
+def _named_outputs(args: argparse.Namespace) -> list[tuple[str, str]]:
+    """(option, path) of every output named on the command line."""
+    return [(f"--{name}", value) for name in _OUTPUT_OPTIONS
+            if isinstance(value := getattr(args, name, None), str)]
+
+
+def _inputs(args: argparse.Namespace, scenario: Scenario | None = None) -> Protected:
+    """Every file this run reads: never an output."""
+    from sizer.outputs import run_inputs
+
+    return run_inputs(getattr(args, "file", None), scenario)
+
+
+def _outputs(args: argparse.Namespace, scenario: Scenario | None = None) -> list[Path]:
+    """Output paths named on the command line, checked before any work.
+
+    Called once before anything is read (against the named file) and again with every
+    file the scenario read (head, CSV schedule, price list), so an input is never
+    overwritten and no output is written when another would be refused.
     """
-    outs = [Path(p) for p in (getattr(args, "json", None), getattr(args, "csv", None),
-                              getattr(args, "report", None), getattr(args, "xlsx", None))
-            if isinstance(p, str)]
-    protected = {Path(p).resolve() for p in (args.file, *inputs)}
-    for out in outs:
-        if out.resolve() in protected:
-            raise ScenarioError("refusing to overwrite the input scenario", file=str(out))
-        if not out.resolve().parent.is_dir():
-            raise ScenarioError("its folder does not exist", file=str(out))
-    return outs
+    from sizer.outputs import check_outputs
+
+    return check_outputs(_named_outputs(args), _inputs(args, scenario))
 
 
-def _protect(args: argparse.Namespace, scenario: Scenario) -> list[Path]:
-    """Every input file of this run, for the writers to refuse."""
-    return [Path(args.file), *(Path(p) for p in scenario.inputs)]
+def _write_outputs(args: argparse.Namespace, scenario: Scenario,
+                   makers: Mapping[str, Callable[[], str | bytes]]) -> None:
+    """Make every named output and write them together: all appear, or none changes."""
+    from sizer.outputs import Staged
+
+    with Staged(_inputs(args, scenario)) as stage:
+        for name, make in makers.items():
+            path = getattr(args, name, None)
+            if isinstance(path, str):
+                stage.add(path, make())
 
 
-def _write_design_files(args: argparse.Namespace, results: Results,
-                        extra: dict | None = None) -> None:
-    from sizer.report.export import atomic_write, json_text, schedule_csv
+def _design_makers(args: argparse.Namespace, results: Results,
+                   extra: dict | None = None) -> dict[str, Callable[[], str | bytes]]:
+    from sizer.report.export import json_text, schedule_csv, xlsx_bytes
 
-    protect = _protect(args, results.prep.scenario)
-    if getattr(args, "json", None):
-        atomic_write(args.json, json_text(results.document(extra)), protect=protect)
-    if getattr(args, "csv", None):
-        atomic_write(args.csv, schedule_csv(results.design), protect=protect)
-    if getattr(args, "xlsx", None):
-        from sizer.report.export import write_xlsx
-
-        write_xlsx(args.xlsx, results.design, protect=protect)
+    return {"json": lambda: json_text(results.document(extra)),
+            "csv": lambda: schedule_csv(results.design),
+            "xlsx": lambda: xlsx_bytes(results.design)}
 
 
 def _written(args: argparse.Namespace) -> list[str]:
@@ -182,7 +166,7 @@ def _prepare(args: argparse.Namespace, *, keep_pins: bool = False) -> Prepared:
     from sizer.scenario import load_scenario
 
     scenario = load_scenario(args.file)
-    _outputs(args, scenario.inputs)
+    _outputs(args, scenario)
     return prepare(scenario, keep_pins=keep_pins)
 
 
@@ -202,9 +186,12 @@ def _cmd_solve(args: argparse.Namespace) -> int:
                                 frontier_points=REPORT_FRONTIER_POINTS if args.report else 0,
                                 progress=say)
         say("writing files")
-        _write_design_files(args, results)
-        if args.report and results.design.segments:
-            results.report(args.report, protect=_protect(args, prep.scenario), progress=say)
+        makers = _design_makers(args, results)
+        if args.report:   # an infeasible design's report carries its diagnosis
+            from sizer.report.html import render_report
+
+            makers["report"] = lambda: render_report(results, progress=say)
+        _write_outputs(args, prep.scenario, makers)
     print(summary(results.design, prep.scenario.title, max_rows=args.rows,
                   written=_written(args)))
     return 0 if results.design.segments else 1
@@ -219,14 +206,14 @@ def _cmd_check(args: argparse.Namespace) -> int:
     prep = _prepare(args, keep_pins=True)
     results = check_results(prep, engine=args.engine, solver=args.solver,
                             time_limit_s=args.time_limit)
-    _write_design_files(args, results)
+    _write_outputs(args, prep.scenario, _design_makers(args, results))
     print(summary(results.design, prep.scenario.title, max_rows=args.rows,
                   written=_written(args)))
     return 0 if results.status is DesignStatus.COMPLIANT else 1
 
 
 def _cmd_frontier(args: argparse.Namespace) -> int:
-    from sizer.report.export import atomic_write, json_text
+    from sizer.report.export import json_text
     from sizer.workflow import frontier
 
     _outputs(args)
@@ -249,26 +236,24 @@ def _cmd_frontier(args: argparse.Namespace) -> int:
             {"capex": p.capex, "loss_pv": p.loss_pv, "lifecycle": p.lifecycle,
              "method": p.method, "parameter": p.parameter,
              "proven_optimal": p.proven_optimal} for p in points]}
-        atomic_write(args.json, json_text(doc), protect=_protect(args, prep.scenario))
+        _write_outputs(args, prep.scenario, {"json": lambda: json_text(doc)})
     return 0
 
 
 def _cmd_sweep(args: argparse.Namespace) -> int:
     from sizer.optimize import Objective
-    from sizer.report.sweep_plots import sweep_summary_text, write_sweep_json
+    from sizer.report.sweep_plots import sweep_json_text, sweep_summary_text
     from sizer.scenario import load_scenario
     from sizer.sweep import sweep
 
     _outputs(args)
     scenario = load_scenario(args.file)
-    _outputs(args, scenario.inputs)
+    _outputs(args, scenario)
     with _progress_bar(args) as bar:
         result = sweep(scenario, args.vary, mode=args.mode, objective=Objective(args.objective),
                        jobs=args.jobs, scheduler=args.scheduler, progress=bar,
                        engine=args.engine, solver=args.solver, time_limit_s=args.time_limit)
-    protect = _protect(args, scenario)
-    if args.json:
-        write_sweep_json(result, args.json, protect=protect)
+    makers: dict[str, Callable[[], str | bytes]] = {"json": lambda: sweep_json_text(result)}
     if args.report:
         from sizer.report.sweep_plots import sweep_section_html
         from sizer.results import REPORT_FRONTIER_POINTS, solve_results
@@ -280,8 +265,11 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
                                 solver=args.solver, time_limit_s=args.time_limit,
                                 compare=True, frontier_points=REPORT_FRONTIER_POINTS,
                                 design=base.design, verification=base.verification)
-        results.report(args.report, protect=protect,
-                       extra_sections=[sweep_section_html(result)])
+        from sizer.report.html import render_report
+
+        makers["report"] = lambda: render_report(
+            results, extra_sections=[sweep_section_html(result)])
+    _write_outputs(args, scenario, makers)
     print(sweep_summary_text(result))  # ends with the caution
     if result.interrupted:
         print("interrupted: the points finished so far are kept above", file=sys.stderr)
@@ -324,9 +312,8 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 def _cmd_bench(args: argparse.Namespace) -> int:
     from sizer.bench import run_bench, table_text, write_json
 
-    sizes = [int(x) for x in args.sizes.split(",")] if args.sizes else [100, 1000, 5000, 20000]
-    if any(n < 10 for n in sizes):
-        raise ScenarioError("sizes must be at least 10 segments", field="--sizes")
+    sizes = list(args.sizes) if args.sizes else [100, 1000, 5000, 20000]
+    _outputs(args)
     with _progress(args) as say:
         doc = run_bench(sizes, repeats=args.repeats, milp_limit_s=args.milp_time_limit,
                         progress=say)
@@ -349,15 +336,107 @@ def _progress(args: argparse.Namespace) -> Iterator[Callable[[str], None]]:
         yield lambda msg: status.update(msg)
 
 
-def _power_factor(value: float) -> float:
-    if not 0 < value <= 1:
-        raise ScenarioError(f"must be in (0, 1], got {value}", field="--power-factor")
-    return value
+# --- command-line values: read by the scenario's bounded readers ----------------------------
+
+MAX_SECONDS = 7 * 86400.0     # a week: beyond it a time limit is a typo
+MAX_POINTS = 500              # frontier points
+MAX_JOBS = 1024               # worker processes
+MAX_REPEATS = 100             # benchmark runs per stage
+
+
+def _option(read: Callable[[str], object]) -> Callable[[str], object]:
+    """An argparse type from a bounded reader: its ScenarioError becomes argparse's one line."""
+    def parse(text: str) -> object:
+        try:
+            return read(text)
+        except ScenarioError as exc:
+            raise argparse.ArgumentTypeError(exc.message) from None
+    parse.__name__ = getattr(read, "__name__", "value")
+    return parse
+
+
+def _scenario_reader(name: str) -> Callable[[str], object]:
+    """The scenario's reader ``name`` applied to command-line text."""
+    def read(text: str) -> object:
+        from sizer import readers
+
+        return getattr(readers, name)(text, True)
+    read.__name__ = name
+    return read
+
+
+def _bounded_count(low: int, high: int, what: str) -> Callable[[str], int]:
+    def read(text: str) -> int:
+        from sizer.readers import read_number
+
+        x = read_number(text, True)
+        if not (x.is_integer() and low <= x <= high):
+            raise ScenarioError(f"must be a whole number of {what} from {low:,} to {high:,}, "
+                                f"got {text!r}")
+        return int(x)
+    return read
+
+
+def _seconds(text: str) -> float:
+    from sizer.readers import read_number
+
+    x = read_number(text, True)
+    if not 0 < x <= MAX_SECONDS:
+        raise ScenarioError(f"must be a positive number of seconds up to {MAX_SECONDS:g} "
+                            f"(a week), got {text!r}")
+    return x
+
+
+def _sizes(text: str) -> list[int]:
+    from sizer.validation import MAX_NODES
+
+    read = _bounded_count(10, MAX_NODES, "segments")
+    parts = text.split(",")
+    if not all(p.strip() for p in parts):
+        raise ScenarioError(f"write segment counts separated by commas, e.g. 100,1000; "
+                            f"got {text!r}")
+    return [read(p.strip()) for p in parts]
+
+
+def _drop_limit(text: str) -> float:
+    from sizer.readers import read_percent
+
+    x = read_percent(text, True) * 100.0
+    if not 0 < x < 100:
+        raise ScenarioError(f"must be a percentage above 0 % and below 100 %, got {text!r}")
+    return x
+
+
+def _conductor_temperature(text: str) -> float:
+    from sizer.model import AMBIENT_RANGE_C
+    from sizer.readers import _quantity, _unit_text
+
+    x = _quantity(_unit_text(text, "75 degC"), "degC")
+    if not AMBIENT_RANGE_C[0] <= x <= 300:
+        raise ScenarioError(f"must be a conductor temperature from {AMBIENT_RANGE_C[0]:g} degC "
+                            f"to 300 degC, got {text!r}")
+    return x
+
+
+def _conductor(text: str) -> object:
+    from sizer.units import parse_conductor
+
+    return parse_conductor(text)
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse with a one-line error: bad input is one line and exit code 2."""
+
+    def error(self, message: str) -> typing.NoReturn:
+        head, sep, rest = message.partition(": ")
+        if head.startswith("argument ") and sep:   # "argument --points: ..." names the option
+            message = f"option '{head.removeprefix('argument ')}': {rest}"
+        self.exit(2, f"{self.prog}: {message} (see {self.prog} --help)\n")
 
 
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser for every subcommand."""
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="sizer",
         description="Least-cost conductor sizing for low-voltage distribution trees.",
         epilog=CAUTION,
@@ -373,7 +452,7 @@ def build_parser() -> argparse.ArgumentParser:
     def solver_options(p: argparse.ArgumentParser) -> None:
         p.add_argument("--engine", default="auto", choices=("auto", "tree", "milp"))
         p.add_argument("--solver", default="cbc", choices=("cbc", "highs"))
-        p.add_argument("--time-limit", type=float, default=300.0,
+        p.add_argument("--time-limit", type=_option(_seconds), default=300.0,
                        help="seconds for the MILP (default 300); past it the best design "
                             "found is returned with status time_limit and its gap")
         p.add_argument("--quiet", action="store_true", help="no progress display")
@@ -403,7 +482,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("frontier", help="upfront cost against the present value of losses")
     p.add_argument("file", help="scenario file")
-    p.add_argument("--points", type=int, default=12)
+    p.add_argument("--points", type=_option(_bounded_count(2, MAX_POINTS, "points")),
+                   default=12, help=f"designs on the frontier, 2 to {MAX_POINTS} (default 12)")
     p.add_argument("--json", help="write the frontier here")
     solver_options(p)
     p.set_defaults(run=_cmd_frontier)
@@ -418,7 +498,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--mode", choices=("grid", "oat"), default="grid",
                    help="every combination, or one field at a time around the scenario's values")
     p.add_argument("--objective", default="lifecycle", choices=("capex", "lifecycle"))
-    p.add_argument("--jobs", type=int, default=None,
+    p.add_argument("--jobs", type=_option(_bounded_count(1, MAX_JOBS, "processes")),
+                   default=None,
                    help="worker processes (default: the core count; small sweeps run here)")
     p.add_argument("--scheduler", metavar="ADDRESS",
                    help="run the points on a Dask cluster, e.g. tcp://host:8786 (sizer[dask])")
@@ -437,29 +518,39 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(run=_cmd_demo)
 
     p = sub.add_parser("bench", help="time every stage on synthetic trees of growing size")
-    p.add_argument("--sizes", help="comma-separated segment counts (default 100,1000,5000,20000)")
-    p.add_argument("--repeats", type=int, default=3, help="runs per stage; the median is kept")
-    p.add_argument("--milp-time-limit", type=float, default=60.0,
+    p.add_argument("--sizes", type=_option(_sizes),
+                   help="comma-separated segment counts (default 100,1000,5000,20000)")
+    p.add_argument("--repeats", type=_option(_bounded_count(1, MAX_REPEATS, "runs")), default=3,
+                   help="runs per stage; the median is kept")
+    p.add_argument("--milp-time-limit", type=_option(_seconds), default=60.0,
                    help="seconds the straightforward MILP may take per size")
     p.add_argument("--json", help="write the measurements here")
     p.add_argument("--quiet", action="store_true", help="no progress display")
     p.set_defaults(run=_cmd_bench)
 
     p = sub.add_parser("reach", help="how far one conductor can run within a drop limit")
-    p.add_argument("--conductor", required=True, help='e.g. "4 AWG Cu" or "2x 500 kcmil Al"')
-    p.add_argument("--insulation", required=True, help='insulation rating, e.g. "90 degC"')
+    p.add_argument("--conductor", required=True, type=_option(_conductor),
+                   help='e.g. "4 AWG Cu" or "2x 500 kcmil Al"')
+    p.add_argument("--insulation", required=True, type=_option(_scenario_reader(
+        "read_temperature")), help='insulation rating, e.g. "90 degC"')
     load = p.add_mutually_exclusive_group(required=True)
-    load.add_argument("--current", help='design current, e.g. "50 A"')
-    load.add_argument("--ocpd", help="device rating; the profile's unknown-load rule applies")
-    p.add_argument("--voltage", required=True, help='circuit voltage, e.g. "240 V"')
+    load.add_argument("--current", type=_option(_scenario_reader("read_current")),
+                      help='design current, e.g. "50 A"')
+    load.add_argument("--ocpd", type=_option(_scenario_reader("read_current")),
+                      help="device rating; the profile's unknown-load rule applies")
+    p.add_argument("--voltage", required=True, type=_option(_scenario_reader("read_voltage")),
+                   help='circuit voltage, e.g. "240 V"')
     p.add_argument("--phases", type=int, choices=(1, 3), required=True)
-    p.add_argument("--limit", required=True, help='drop limit, e.g. "3 %%"')
-    p.add_argument("--power-factor", type=float, default=0.9)
-    p.add_argument("--ambient", default="30 degC")
+    p.add_argument("--limit", required=True, type=_option(_drop_limit),
+                   help='drop limit, e.g. "3 %%"')
+    p.add_argument("--power-factor", type=_option(_scenario_reader("read_fraction")),
+                   default=0.9)
+    p.add_argument("--ambient", type=_option(_scenario_reader("read_ambient")), default=30.0)
     p.add_argument("--rules", default="nec", choices=("nec", "cec", "iec"))
     p.add_argument("--installation", default="conduit")
-    p.add_argument("--terminals", help="terminal rating; default: the profile's terminal rule")
-    p.add_argument("--conductor-temperature",
+    p.add_argument("--terminals", type=_option(_scenario_reader("read_temperature")),
+                   help="terminal rating; default: the profile's terminal rule")
+    p.add_argument("--conductor-temperature", type=_option(_conductor_temperature),
                    help="fix the conductor temperature instead of deriving it from the load")
     p.add_argument("--json", action="store_true", help="print the answer as JSON")
     p.set_defaults(run=_cmd_reach)
@@ -468,47 +559,97 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 
+class _Terminated(BaseException):
+    """SIGTERM, raised where the process is.
+
+    So every ``finally`` and context manager runs: temporary files and staged outputs
+    are removed.
+    """
+
+
+def _raise_terminated(_signum: int, _frame: object) -> None:
+    raise _Terminated
+
+
+@contextmanager
+def _sigterm_as_exception() -> Iterator[None]:
+    """Turn SIGTERM into ``_Terminated`` while a command runs (main thread only)."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = signal.signal(signal.SIGTERM, _raise_terminated)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; return the exit code.
 
     0 done; 1 no design (infeasible, or none found in time) or rule violations; 2 bad
-    input; 3 an internal error of sizer's own; 130 interrupted.
+    input; 3 an internal error of sizer's own; 130 interrupted; 141 the output pipe was
+    closed; 143 terminated (SIGTERM).
     """
     parser = build_parser()
     try:
         args = parser.parse_args(argv)
     except SystemExit as exc:  # argparse already printed its one-line usage error
         return int(exc.code or 0)
+    from sizer.report.terminal import TerminalStream, for_terminal
+
+    stdout = sys.stdout
     try:
-        code = int(args.run(args))
+        # Names from the scenario are data: nothing in them may steer the terminal.
+        sys.stdout = TerminalStream(stdout)
+        with _sigterm_as_exception():
+            code = int(args.run(args))
         sys.stdout.flush()  # inside the try: a closed pipe shows here, not at exit
         return code
     except BrokenPipeError:
         # The reader went away (`sizer solve x | head`): stop quietly. Point stdout at
         # the null device so the interpreter's final flush does not complain either.
-        devnull = os.open(os.devnull, os.O_WRONLY)
-        os.dup2(devnull, sys.stdout.fileno())
+        _silence_stdout(stdout)
         return 141  # 128 + SIGPIPE, as the shell reports a writer the pipe closed on
+    except _Terminated:
+        print("sizer: terminated", file=sys.stderr)
+        return 143  # 128 + SIGTERM, the shell's convention
     except SizerError as exc:
         # A located error already starts with its file; others say who is speaking.
         located = isinstance(exc, ScenarioError) and exc.file
-        print(str(exc) if located else f"sizer: {exc}", file=sys.stderr)
+        print(for_terminal(str(exc) if located else f"sizer: {exc}"), file=sys.stderr)
         return exc.exit_code
     except (RecursionError, MemoryError, ArithmeticError, LookupError, TypeError,
             AttributeError, AssertionError) as exc:  # our bug, not the user's input
         if os.environ.get("SIZER_TRACEBACK"):
             raise
-        print(f"sizer: internal error: {type(exc).__name__}: {exc} (please report this; "
-              f"SIZER_TRACEBACK=1 shows where)", file=sys.stderr)
+        print(for_terminal(f"sizer: internal error: {type(exc).__name__}: {exc} (please "
+                           f"report this; SIZER_TRACEBACK=1 shows where)"), file=sys.stderr)
         return InternalError.exit_code
     except OSError as exc:  # disk full, permission denied, read-only folder, ...
         where = f"{exc.filename}: " if exc.filename else ""
-        print(f"sizer: {where}cannot read or write: {exc.strerror or exc}", file=sys.stderr)
+        print(for_terminal(f"sizer: {where}cannot read or write: {exc.strerror or exc}"),
+              file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("sizer: interrupted", file=sys.stderr)
         return 130
+    finally:
+        sys.stdout = stdout
 
+
+def _silence_stdout(stdout: typing.TextIO) -> None:
+    """Point the process's stdout at /dev/null so the exit flush cannot fail again."""
+    try:
+        fd = stdout.fileno()
+    except (OSError, ValueError, AttributeError):  # not a real file (a test's StringIO)
+        return
+    null = os.open(os.devnull, os.O_WRONLY)
+    os.dup2(null, fd)
+    os.close(null)
 
 if __name__ == "__main__":
     sys.exit(main())

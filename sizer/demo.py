@@ -64,8 +64,8 @@ def run_demo(folder: Path = Path("sizer-demo"), *, force: bool = False,
         atomic_write,
         json_text,
         schedule_csv,
-        write_xlsx,
         xlsx_available,
+        xlsx_bytes,
     )
     from sizer.results import REPORT_FRONTIER_POINTS, solve_results
     from sizer.scenario import load_scenario
@@ -95,15 +95,15 @@ def run_demo(folder: Path = Path("sizer-demo"), *, force: bool = False,
     design = results.design
     if not design.segments:
         raise SizerError("the demo scenario has no design: " + "; ".join(design.diagnosis))
-    protect = [scenario_path]
-    progress("writing results.json and schedule.csv")
-    json_path = atomic_write(folder / JSON_NAME, json_text(results.document()),
-                             protect=protect)
-    csv_path = atomic_write(folder / CSV_NAME, schedule_csv(design), protect=protect)
-    xlsx_path = None
-    if with_xlsx:
-        xlsx_path = write_xlsx(folder / XLSX_NAME, design, protect=protect)
-    report = results.report(folder / REPORT_NAME, protect=protect, progress=progress)
+    from sizer.outputs import Staged
+    from sizer.report.html import render_report
+
+    progress("writing the results, the schedule and the report")
+    with Staged([scenario_path]) as stage:   # all appear together, or none
+        json_path = stage.add(folder / JSON_NAME, json_text(results.document()))
+        csv_path = stage.add(folder / CSV_NAME, schedule_csv(design))
+        xlsx_path = stage.add(folder / XLSX_NAME, xlsx_bytes(design)) if with_xlsx else None
+        report = stage.add(folder / REPORT_NAME, render_report(results, progress=progress))
     return DemoResult(folder=folder, scenario=scenario_path, report=report,
                       schedule_csv=csv_path, results_json=json_path, schedule_xlsx=xlsx_path,
                       design=design, title=prep.scenario.title,

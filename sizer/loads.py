@@ -204,7 +204,9 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
     report.raise_if_any()
     largest = max(profile.standard_ratings_a)
     for k in np.flatnonzero(np.isnan(ocpd)):
-        report.add(f"needs {need[k]:.0f} A, above the largest standard device rating "
+        # A huge load (a typo'd motor rating) is shown short, not as a 300-digit number.
+        shown = f"{need[k]:.0f}" if need[k] < 1e7 else f"{need[k]:.3g}"
+        report.add(f"needs {shown} A, above the largest standard device rating "
                    f"({largest:g} A) of the {profile.name} profile: give the device rating "
                    "or split the load over parallel feeders", node=nodes[k].id, field="ocpd")
     for k in np.flatnonzero(given < current * (1 - _REL)):

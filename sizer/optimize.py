@@ -337,8 +337,13 @@ def _drop_fixes(seg: Segment, best_pct: float, target_pct: float) -> str:
     if target_pct <= 0:
         return "shorten the upstream runs or raise the supply voltage"
     ratio = best_pct / target_pct
-    fixes.append(f"more parallel sets (max_sets {cable.max_sets} → "
-                 f"{math.ceil(cable.max_sets * ratio)})")
+    # Never suggest more sets than the scenario reader allows (MAX_SETS).
+    from sizer.readers import MAX_SETS
+
+    sets = math.ceil(cable.max_sets * ratio)
+    if cable.max_sets < MAX_SETS:
+        fixes.append(f"more parallel sets (max_sets {cable.max_sets} → {min(sets, MAX_SETS)}"
+                     + (", the most allowed; not enough alone)" if sets > MAX_SETS else ")"))
     fixes.append(f"a run of at most {seg.length_m / ratio:.0f} m "
                  f"(now {seg.length_m:.0f} m)")
     fixes.append("a higher circuit voltage")

@@ -35,6 +35,9 @@ def show(value: Any) -> str:
     """A raw value as a message quotes it (TOML booleans in lower case)."""
     if isinstance(value, bool):
         return "true" if value else "false"
+    if isinstance(value, int) and abs(value) >= 10**15:   # shown short, not in 300 digits
+        digits = int(math.log10(abs(value))) + 1
+        return f"{'-' if value < 0 else ''}a {digits}-digit number"
     return repr(value)
 
 
@@ -83,7 +86,7 @@ def read_number(value: Any, text: bool = False) -> float:
         try:
             x = float(value)
         except OverflowError as exc:
-            raise ScenarioError(f"is too large, got {value}") from exc
+            raise ScenarioError(f"is too large, got {show(value)}") from exc
     elif isinstance(value, str) and text:
         try:
             x = float(value.strip())

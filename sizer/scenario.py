@@ -228,6 +228,13 @@ def _read_toml(path: Path, shown: str) -> dict[str, Any]:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ScenarioError(f"is not valid TOML: {exc}", file=shown) from exc
+    except ValueError as exc:  # e.g. an integer past Python's 4300-digit conversion limit
+        raise ScenarioError(f"has a value that cannot be read: {str(exc).split(';')[0]}",
+                            file=shown) from None
+    except RecursionError:  # tomllib recurses once per level of nested arrays or tables
+        raise ScenarioError("is nested too deeply to read (arrays or tables inside one "
+                            "another hundreds of levels deep); a scenario needs a few",
+                            file=shown) from None
     if not data:
         raise ScenarioError("has no scenario in it: a scenario needs [project], "
                             "[economics], [source] and [[node]] tables", file=shown)
@@ -244,8 +251,8 @@ def _find_head(csv_path: Path) -> Path:
     for candidate in sorted(csv_path.parent.glob("*.toml")):
         try:
             data = tomllib.loads(candidate.read_text(encoding="utf-8-sig"))
-        except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError):
-            continue
+        except (OSError, ValueError, RecursionError):   # TOMLDecodeError, UnicodeDecodeError
+            continue  # not a head of this schedule
         project = data.get("project")
         schedule = project.get("schedule") if isinstance(project, dict) else None
         if isinstance(schedule, str) and (candidate.parent / schedule).resolve() == target:
@@ -294,12 +301,15 @@ def _load_file(path: Path, file: str, shown: str) -> Scenario:
     source, source_id = _source(top, report, file)
 
     raw_nodes = _raw_nodes(top, report, file)
+    schedule_failed = False
     if schedule is not None:
+        found = len(report.errors)
         raw_nodes += _read_schedule(path.parent / schedule, schedule, report)
+        schedule_failed = len(report.errors) > found
     check_node_count(len(raw_nodes), report)
     # No nodes at all, or an empty list (node = [], a schedule with a header only) that
-    # no other error explains.
-    if not raw_nodes and ("node" not in data or not report.errors):
+    # no other error explains (an unreadable schedule is its own error).
+    if not raw_nodes and not schedule_failed and ("node" not in data or not report.errors):
         report.add("has no nodes: add [[node]] tables (or a schedule under [project])",
                    field="node")
     drafts = [_read_node(raw, i, nfile, where, text, report)
@@ -529,9 +539,9 @@ def _read_schedule(path: Path, written: str, report: Report) -> list[RawNode]:
                 continue
             if "." in col:
                 table, key = col.split(".", 1)
-                row.setdefault(table, {})[key] = cell.strip()
+                row.setdefault(table, {})[key] = _unneutral(cell.strip())
             else:
-                row[col] = cell.strip()
+                row[col] = _unneutral(cell.strip())
         out.append((row, file, where, True))
     return out
 
@@ -745,22 +755,41 @@ def _schedule_row(n: Node) -> dict[str, str]:
     return row
 
 
-def write_schedule_csv(scenario: Scenario, path: str | os.PathLike[str]) -> None:
-    """Write the scenario's nodes as a CSV schedule (every field spelled out, SI units).
+# A leading character a spreadsheet would read as a formula (OWASP CSV injection advice,
+# common practice): such a cell is written with one more leading apostrophe, and a cell
+# of a schedule read with one apostrophe before such a character loses it, so any text
+# survives the round trip.
+_FORMULA_CELL = re.compile(r"'*[=+\-@\t\r]")
+
+
+def _neutral(cell: str) -> str:
+    return "'" + cell if _FORMULA_CELL.match(cell) else cell
+
+
+def _unneutral(cell: str) -> str:
+    return cell[1:] if cell.startswith("'") and _FORMULA_CELL.match(cell, 1) else cell
+
+
+def schedule_csv_text(scenario: Scenario) -> str:
+    """The scenario's nodes as CSV schedule text (every field spelled out, SI units).
 
     Read back through a head .toml naming it, it gives nodes equal to ``scenario.nodes``.
-    The file appears whole or not at all (written beside, then renamed).
     """
-    target = Path(path)
-    tmp = target.with_name(f".{target.name}.tmp")
-    try:
-        with tmp.open("w", newline="", encoding="utf-8") as fh:
-            # Every cell quoted: an id starting with "#" must not read back as a comment.
-            writer = csv.DictWriter(fh, fieldnames=SCHEDULE_COLUMNS, restval="",
-                                    quoting=csv.QUOTE_ALL)
-            writer.writeheader()
-            for node in scenario.nodes:
-                writer.writerow(_schedule_row(node))
-        os.replace(tmp, target)
-    finally:
-        tmp.unlink(missing_ok=True)
+    buf = io.StringIO()
+    # Every cell quoted: an id starting with "#" must not read back as a comment.
+    writer = csv.DictWriter(buf, fieldnames=SCHEDULE_COLUMNS, restval="",
+                            quoting=csv.QUOTE_ALL, lineterminator="\r\n")
+    writer.writeheader()
+    for node in scenario.nodes:
+        writer.writerow({k: _neutral(v) for k, v in _schedule_row(node).items()})
+    return buf.getvalue()
+
+
+def write_schedule_csv(scenario: Scenario, path: str | os.PathLike[str]) -> None:
+    """Write the scenario's nodes as a CSV schedule.
+
+    Whole or not at all, and never over one of the files the scenario was read from.
+    """
+    from sizer.outputs import run_inputs, write_file
+
+    write_file(path, schedule_csv_text(scenario), protect=run_inputs(None, scenario))

@@ -346,3 +346,39 @@ def test_nothing_written_on_bad_input(tmp_path):
     before = sorted(p.name for p in Path(tmp_path).iterdir())
     assert main(["loads", str(path)]) == 2
     assert sorted(p.name for p in Path(tmp_path).iterdir()) == before
+
+
+# --- issue 19: deeply nested TOML, a latin-1 schedule -----------------------------------------
+
+DEEP = "deep = " + "[" * 500 + "]" * 500 + "\n"
+
+
+def test_deeply_nested_toml_is_one_line(tmp_path, capsys):
+    path = tmp_path / "deep.toml"
+    path.write_text(DEEP + BASE, encoding="utf-8")
+    assert main(["loads", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "Traceback" not in err and str(path) in err
+    assert "nested" in err
+
+
+def test_a_deeply_nested_file_beside_a_schedule_is_ignored(tmp_path, capsys):
+    head = BASE.split("[[node]]")[0].replace('currency = "USD"\n',
+                                            'currency = "USD"\nschedule = "circuits.csv"\n')
+    (tmp_path / "head.toml").write_text(head, encoding="utf-8")
+    (tmp_path / "other.toml").write_text(DEEP, encoding="utf-8")
+    csv = tmp_path / "circuits.csv"
+    csv.write_text("id,parent,length,ocpd\nA,SERVICE,10 m,20 A\n", encoding="utf-8")
+    assert main(["loads", str(csv)]) == 0, capsys.readouterr().err
+
+
+def test_a_latin1_schedule_is_one_line(tmp_path, capsys):
+    head = BASE.split("[[node]]")[0].replace('currency = "USD"\n',
+                                            'currency = "USD"\nschedule = "circuits.csv"\n')
+    path = tmp_path / "head.toml"
+    path.write_text(head, encoding="utf-8")
+    csv = tmp_path / "circuits.csv"
+    csv.write_bytes("id,parent,length,description\nA,SERVICE,10 m,caf\xe9\n".encode("latin-1"))
+    assert main(["loads", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "UTF-8" in err and "no nodes" not in err

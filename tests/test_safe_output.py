@@ -21,9 +21,9 @@ from pathlib import Path
 import pytest
 from builders import write_scenario
 
+from sizer import outputs
 from sizer.cli import main
 from sizer.errors import SizerError
-from sizer.report import export
 from sizer.report.export import atomic_write
 
 FORMULA_IDS = ("=cmd|' /C calc'!A0", "+SUM(A1)", "-2+3", "@SUM(1)")
@@ -74,22 +74,22 @@ def test_a_failed_write_keeps_the_previous_file(tmp_path, site, monkeypatch, fai
     target = tmp_path / "design.json"
     target.write_text("previous\n", encoding="utf-8")
     before = files(tmp_path)
-    monkeypatch.setattr(export.os, fail_at, no_space)
+    monkeypatch.setattr(outputs.os, fail_at, no_space)
     with pytest.raises((OSError, SizerError), match="No space"):
         atomic_write(target, "new\n", protect=[site])
     assert files(tmp_path) == before          # previous intact, no temporary file left
 
 
 def test_an_interrupted_solve_keeps_the_previous_outputs(tmp_path, site, monkeypatch):
-    outputs = {"design.json": "old json\n", "schedule.csv": "old csv\n"}
-    for name, text in outputs.items():
+    previous = {"design.json": "old json\n", "schedule.csv": "old csv\n"}
+    for name, text in previous.items():
         (tmp_path / name).write_text(text, encoding="utf-8")
     before = files(tmp_path)
 
     def interrupt(*_args: object) -> None:
         raise KeyboardInterrupt
 
-    monkeypatch.setattr(export.os, "replace", interrupt)
+    monkeypatch.setattr(outputs.os, "replace", interrupt)
     code, _, err = run("solve", str(site), "--json", str(tmp_path / "design.json"),
                        "--csv", str(tmp_path / "schedule.csv"), "--quiet")
     assert code == 130 and err == "sizer: interrupted\n"
@@ -109,7 +109,7 @@ def test_a_write_error_is_one_line_and_exit_2(tmp_path, site, monkeypatch):
     target = tmp_path / "design.json"
     target.write_text("previous\n", encoding="utf-8")
     before = files(tmp_path)
-    monkeypatch.setattr(export.os, "replace", no_space)
+    monkeypatch.setattr(outputs.os, "replace", no_space)
     code, _, err = run("solve", str(site), "--json", str(target), "--quiet")
     assert code == 2
     assert len(err.splitlines()) == 1 and "Traceback" not in err and str(target) in err

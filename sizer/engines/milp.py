@@ -258,6 +258,17 @@ _CBC_BOUND = re.compile(r"^Lower bound:" + _CBC_NUMBER, re.MULTILINE)
 _CBC_GAP = re.compile(r"^Gap:" + _CBC_NUMBER, re.MULTILINE)
 
 
+def _in_folder(solver: pulp.LpSolver, folder: str) -> pulp.LpSolver:
+    """The solver, writing its temporary files into ``folder``.
+
+    PuLP's command-line solvers name their files in ``tmpDir`` (the system temporary
+    folder by default) and remove them only when the solve returns normally.
+    """
+    if hasattr(solver, "tmpDir"):
+        solver.tmpDir = folder
+    return solver
+
+
 def _run(prob: pulp.LpProblem, solver: pulp.LpSolver) -> tuple[int, int]:
     """Solve, returning PuLP's (status, sol_status)."""
     prob.solve(solver)
@@ -301,23 +312,27 @@ def solve_milp(problem: Problem, solver: str = "cbc",
     if time_limit_s is not None and not time_limit_s > 0:
         raise ScenarioError("the time limit must be a positive number of seconds",
                             field="time_limit_s")
+    # Every file of the solve (CBC's model, solution and log) lives in this private folder,
+    # removed on every way out: a normal end, an error, Ctrl-C, and SIGTERM (which the
+    # command line turns into an exception). HiGHS runs in process, without files.
     with tempfile.TemporaryDirectory(prefix="sizer-milp-") as tmp:
         log_path = os.path.join(tmp, "cbc.log") if solver == "cbc" else None
-        lp_solver = _make_solver(solver, time_limit_s, log_path)
+        lp_solver = _in_folder(_make_solver(solver, time_limit_s, log_path), tmp)
         prob, x = build_model(problem)
         try:
             status, sol_status = _run(prob, lp_solver)
-        except pulp.PulpSolverError as exc:
+        except (pulp.PulpSolverError, OSError) as exc:
             raise SolverError(f"the {solver} solver failed: {exc}") from exc
         ours, proven, has = map_status(status, sol_status, time_limit_s is not None)
         if ours is SolveStatus.INFEASIBLE and _log_says(log_path, "Pre-processing says"):
             # CBC 2.10.3's pre-processing can wrongly call a feasible model infeasible on
             # large instances ("Cut generators found to be infeasible"): ask again
             # without it before believing it.
-            retry = _make_solver(solver, time_limit_s, log_path, preprocess=False)
+            retry = _in_folder(_make_solver(solver, time_limit_s, log_path, preprocess=False),
+                               tmp)
             try:
                 status, sol_status = _run(prob, retry)
-            except pulp.PulpSolverError as exc:
+            except (pulp.PulpSolverError, OSError) as exc:
                 raise SolverError(f"the {solver} solver failed: {exc}") from exc
             ours, proven, has = map_status(status, sol_status, time_limit_s is not None)
         if ours is SolveStatus.INFEASIBLE and _log_says(log_path, "Stopped on time"):

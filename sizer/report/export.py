@@ -1,7 +1,8 @@
 """Files written from a finished design: JSON results and CSV/XLSX schedules.
 
-Every file is written to a temporary file beside its target and renamed into place, so
-an interrupted run never leaves a half-written output. Data files carry no timestamps
+Every file goes through the one writer, ``sizer.outputs``: written to a unique temporary
+file beside its target and renamed into place, so an interrupted run never leaves a
+half-written output. Data files carry no timestamps
 and their floats are rounded, so the same input gives byte-identical files.
 """
 
@@ -12,16 +13,14 @@ import datetime
 import io
 import json
 import math
-import os
-import tempfile
 import zipfile
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import asdict, fields, is_dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from sizer.errors import ScenarioError
 from sizer.model import Design, SegmentResult
+from sizer.outputs import Protected, write_file
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -158,52 +157,14 @@ def schedule_csv(design: Design) -> str:
     return csv_text(SCHEDULE_COLUMNS, rows)
 
 
-def _umask() -> int:
-    mask = os.umask(0)
-    os.umask(mask)
-    return mask
+def atomic_write(path: str | Path, data: str | bytes, *,
+                 protect: Protected | Sequence[Path] = ()) -> Path:
+    """Write ``data`` to ``path`` whole or not at all, never over a file in ``protect``.
 
-
-def atomic_write(path: str | Path, data: str | bytes, *, protect: Sequence[Path] = ()) -> Path:
-    """Write ``data`` to ``path`` through a temporary file in the same folder.
-
-    Refuses to overwrite any path in ``protect`` (the input scenario). The previous file
-    stays intact until the new one is complete.
+    One file written through the one writer (``sizer.outputs``); a run writing several
+    files stages them together with ``sizer.outputs.Staged``.
     """
-    target = Path(path)
-    resolved = target.resolve()
-    if any(resolved == Path(p).resolve() for p in protect):
-        raise ScenarioError("refusing to overwrite the input scenario", file=str(target))
-    if target.is_dir():
-        raise ScenarioError("is a folder, not a file name", file=str(target))
-    folder = resolved.parent
-    if not folder.is_dir():
-        raise ScenarioError("its folder does not exist", file=str(target))
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
-    except OSError as exc:
-        raise ScenarioError(f"cannot write: {exc.strerror or exc}", file=str(target)) from exc
-    try:
-        # mkstemp makes the file private; give it the permissions a plain open() would.
-        os.chmod(tmp, 0o666 & ~_umask())
-        if isinstance(data, bytes):
-            with os.fdopen(fd, "wb") as fb:
-                fb.write(data)
-                fb.flush()
-                os.fsync(fb.fileno())
-        else:
-            with os.fdopen(fd, "w", encoding="utf-8", newline="") as ft:
-                ft.write(data)
-                ft.flush()
-                os.fsync(ft.fileno())
-        os.replace(tmp, resolved)
-    except OSError as exc:
-        Path(tmp).unlink(missing_ok=True)
-        raise ScenarioError(f"cannot write: {exc.strerror or exc}", file=str(target)) from exc
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-    return target
+    return write_file(path, data, protect=protect)
 
 
 # --- XLSX schedule (optional: needs openpyxl, the [xlsx] extra) ---------------------------
@@ -303,6 +264,7 @@ def _fixed_zip_times(data: bytes) -> bytes:
     return out.getvalue()
 
 
-def write_xlsx(path: str | Path, design: Design, *, protect: Sequence[Path] = ()) -> Path:
+def write_xlsx(path: str | Path, design: Design, *,
+               protect: Protected | Sequence[Path] = ()) -> Path:
     """Write the schedule workbook atomically; SizerError naming the extra without openpyxl."""
     return atomic_write(path, xlsx_bytes(design), protect=protect)

@@ -10,6 +10,7 @@ from __future__ import annotations
 import io
 import math
 from collections.abc import Sequence
+from functools import lru_cache
 
 from matplotlib.axes import Axes
 from matplotlib.backends.backend_agg import FigureCanvasAgg
@@ -45,8 +46,25 @@ METHOD_LABELS = {
 }
 
 
+@lru_cache(maxsize=1)
+def _font_codepoints() -> frozenset[int]:
+    """Characters the plot font (matplotlib's default, shipped with it) can draw."""
+    from matplotlib import font_manager
+    from matplotlib.ft2font import FT2Font
+
+    return frozenset(FT2Font(font_manager.findfont(font_manager.FontProperties())).get_charmap())
+
+
 def plain(text: str) -> str:
-    """Text from the scenario, safe for matplotlib: a "$" must not start mathtext."""
+    """Text from the scenario, safe for matplotlib.
+
+    A "$" must not start mathtext, and a character the font lacks (a name in a script it
+    does not cover) is drawn as "?" rather than warned about; the report's tables keep
+    the name exactly. Using the shipped font alone keeps the figures the same on every
+    machine.
+    """
+    have = _font_codepoints()
+    text = "".join(c if ord(c) in have else "?" for c in text)
     return text.replace("\\", "\\\\").replace("$", r"\$")
 
 

@@ -172,6 +172,9 @@ def _worker_for(payload: _Payload) -> _Worker:
 def _pool_init(payload: _Payload) -> None:
     """Process-pool initializer: prepare the problem once; leave Ctrl-C to the parent."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    # A forked worker inherits the command line's SIGTERM handler; the pool stops its
+    # workers with SIGTERM, which should simply end them.
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
     _worker_for(payload)
 
 

@@ -152,7 +152,12 @@ def parse_vary(text: str, currency: str) -> VaryRange:
             if not start < stop:
                 raise _field_error(name, f"START must be below STOP, got {parts[0].strip()} "
                                          f"and {parts[1].strip()}")
-            values = tuple(float(v) for v in np.linspace(start, stop, n))
+            with np.errstate(all="raise"):
+                try:
+                    values = tuple(float(v) for v in np.linspace(start, stop, n))
+                except FloatingPointError:
+                    raise _field_error(name, f"the range {parts[0].strip()} to "
+                                             f"{parts[1].strip()} is too wide to divide") from None
     else:
         values = tuple(parse_value(name, v, currency) for v in body.split(",") if v.strip())
         if not values:
