@@ -599,7 +599,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         args = parser.parse_args(argv)
     except SystemExit as exc:  # argparse already printed its one-line usage error
         return int(exc.code or 0)
-    from sizer.report.terminal import TerminalStream, for_terminal
+    from sizer.safe_text import TerminalStream, for_terminal
 
     stdout = sys.stdout
     try:

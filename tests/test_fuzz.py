@@ -65,8 +65,8 @@ from hypothesis import strategies as st
 
 from sizer.catalogue import load_catalogue
 from sizer.cli import main
-from sizer.report.terminal import for_terminal
 from sizer.rules import load_profile
+from sizer.safe_text import for_terminal
 
 # --- budget ---------------------------------------------------------------------------------
 
