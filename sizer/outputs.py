@@ -29,7 +29,7 @@ __all__ = ["Protected", "ScenarioError", "Staged", "check_outputs", "run_inputs"
 SCENARIO = "the input scenario"
 SCHEDULE = "the input CSV schedule"
 PRICE_LIST = "the input price list"
-DATA_TABLE = "a table sizer reads (rule profile or catalogue)"
+DATA_TABLE = "data sizer reads (a rule profile, catalogue, price list or demo scenario)"
 INPUT = "an input of this run"
 
 
@@ -265,9 +265,10 @@ def run_inputs(scenario_file: str | os.PathLike[str] | None,
     The scenario as named, the head and CSV schedule it read, its price list (as written
     and as found), the bundled price lists, and the rule profiles' and catalogues' tables.
     """
-    from sizer.catalogue.prices import COSTDATA_DIR, resolve_price_list
+    from sizer.catalogue.prices import resolve_price_list
 
     guard = Protected([scenario_file] if scenario_file is not None else [], SCENARIO)
+    guard.add(_bundled_tables(), DATA_TABLE)
     if scenario is None:
         return guard
     read = list(getattr(scenario, "inputs", ()))
@@ -278,12 +279,17 @@ def run_inputs(scenario_file: str | os.PathLike[str] | None,
         guard.add([given], PRICE_LIST)
         with contextlib.suppress(ScenarioError):  # the run says so when it reads prices
             guard.add([resolve_price_list(os.fspath(given), folder)], PRICE_LIST)
-    if COSTDATA_DIR.is_dir():
-        guard.add(sorted(COSTDATA_DIR.glob("*.csv")), PRICE_LIST)
-    # The rule profiles and conductor catalogues every run reads (package data).
-    package = Path(__file__).resolve().parent
-    for folder_name in ("rules", "catalogue"):
-        data = package / folder_name
-        guard.add(sorted(p for p in data.rglob("*") if p.suffix in (".toml", ".csv")),
-                  DATA_TABLE)
     return guard
+
+
+def _bundled_tables() -> list[Path]:
+    """The data sizer ships and reads: rule profiles, catalogues, price lists, scenarios."""
+    from sizer.bundled import bundled_folder
+
+    package = Path(__file__).resolve().parent
+    folders = [package / "rules", package / "catalogue"]
+    for name in ("costdata", "scenarios"):
+        with contextlib.suppress(Exception):  # a partial install: nothing there to protect
+            folders.append(bundled_folder(name))
+    return sorted(p for folder in folders if folder.is_dir() for p in folder.rglob("*")
+                  if p.suffix in (".toml", ".csv"))

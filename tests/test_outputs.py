@@ -135,12 +135,14 @@ def test_the_bundled_price_list_is_protected_too(tmp_path):
     assert bundled.read_bytes() == before
 
 
-def test_the_rule_tables_are_protected_too(tmp_path, priced):
+@pytest.mark.parametrize("argv", [["solve", "SITE", "--quiet", "--json"],
+                                  ["bench", "--sizes", "10", "--quiet", "--json"]])
+def test_the_rule_tables_are_protected_too(tmp_path, priced, argv):
     import sizer
 
     table = Path(sizer.__file__).parent / "rules" / "nec.toml"
     before = table.read_bytes()
-    code, out, err = run("solve", str(priced), "--json", str(table), "--quiet")
+    code, out, err = run(*[str(priced) if a == "SITE" else a for a in argv], str(table))
     one_line_exit_2(code, out, err)
     assert table.read_bytes() == before
 
