@@ -247,7 +247,7 @@ class Segment:
     voltage_v: float
     phases: int
     current_a: float           # for voltage drop and losses
-    required_ampacity_a: float  # with the continuous-load factor
+    required_ampacity_a: float  # before adjustment: with the continuous-load factor
     ocpd_a: float
     ocpd_chosen: bool          # True when sizer picked the device rating
     power_factor: float
@@ -258,6 +258,15 @@ class Segment:
     # 1-phase between a line and the neutral (120 V on 208Y/120, 277 V on 480Y/277); a
     # 1-phase segment with ``neutral`` and not this is a 3-wire circuit (two lines + N).
     line_to_neutral: bool = False
+    # The adjusted ampacity (after ambient and grouping factors) must carry this (A): the
+    # load at 100 % (NEC 210.19(A)(1)(b)), or the motor rules 430.22/430.24 where motors
+    # are below. ``required_ampacity_a`` is for the table ampacity before adjustment.
+    required_adjusted_a: float = 0.0
+    motor_branch: bool = False  # feeds one motor: conductors sized by 430.22, device by 430.52
+    motor_basis: str = ""       # where the full-load current came from, in words
+    service: bool = False       # fed from the source: service conductors, no EGC
+    secondary: bool = False     # fed from a transformer node: its secondary conductors
+    nonlinear_share: float = 0.0  # share of the demand that is non-linear (0-1)
 
     @property
     def id(self) -> str:
@@ -294,6 +303,9 @@ class CandidateTable:
     loss_pv: np.ndarray
     egc_size_index: np.ndarray
     rejected: tuple[str, ...] = field(default=())
+    # table ampacity before adjustment (terminal-limited column, sets summed), for the
+    # first ampacity test (NEC 210.19(A)(1)(a)); empty when not built
+    ampacity_before_a: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
     def __len__(self) -> int:
         return int(self.segment.shape[0])
@@ -309,7 +321,7 @@ class SegmentResult:
     material: str
     size: str
     sets: int
-    egc: str
+    egc: str | None             # None on service conductors: they carry no EGC
     length_m: float
     current_a: float
     ampacity_a: float
@@ -327,6 +339,7 @@ class SegmentResult:
     pinned: bool = False
     loadflow_drop_pct: float | None = None
     fault_ka: float | None = None
+    bonding_jumper: str | None = None  # service conductors: supply-side bonding jumper
 
 
 @dataclass(frozen=True)

@@ -177,8 +177,23 @@ def ampacity_ok(
     after = ampacity_a(profile, material, size_index, insulation_c, terminal_c, ambient_c,
                        grouping, installation)
     need_before = current + (profile.continuous_factor - 1.0) * continuous
+    return carries_load(n_sets * before, n_sets * after, need_before, current)
+
+
+def carries_load(before_a: object, after_a: object, need_before_a: object,
+                 need_after_a: object) -> np.ndarray:
+    """The two ampacity tests of NEC 210.19(A)(1) / 215.2(A)(1), applied apart (A).
+
+    ``before_a``: the table ampacity at the terminal-limited column, no adjustment or
+    correction (``unadjusted_ampacity_a``), against ``need_before_a`` (noncontinuous +
+    125 % of continuous; motors 430.22/430.24). ``after_a``: the adjusted and corrected
+    ampacity (``ampacity_a``) against ``need_after_a`` (the load itself; motors as
+    before). All for the whole run, parallel sets summed. NaN ampacities fail.
+    """
+    before = np.asarray(before_a, dtype=float)
+    after = np.asarray(after_a, dtype=float)
     with np.errstate(invalid="ignore"):
-        ok_before = n_sets * before * (1 + REL_TOL) >= need_before
-        ok_after = n_sets * after * (1 + REL_TOL) >= current
-    return np.asarray(ok_before & ok_after)
+        ok_before = before * (1 + REL_TOL) >= np.asarray(need_before_a, dtype=float)
+        ok_after = after * (1 + REL_TOL) >= np.asarray(need_after_a, dtype=float)
+    return np.asarray(ok_before & ok_after & (after > 0))
 

@@ -7,7 +7,6 @@ Every CSV opens with ``#`` lines naming its standard, table, edition and status.
 
 from __future__ import annotations
 
-import csv
 import math
 import tomllib
 from collections.abc import Mapping
@@ -21,6 +20,9 @@ from typing import Any
 import numpy as np
 
 from sizer.errors import ScenarioError, UnitError
+from sizer.rules.motors import MOTOR_RULES, MotorRules, read_flc_table, read_typical
+from sizer.rules.tables import read_csv as _read_csv
+from sizer.rules.tables import read_number as _number
 from sizer.units import MATERIALS, MM2_PER_CMIL, parse_size
 
 PROFILES: tuple[str, ...] = ("nec", "cec", "iec")
@@ -104,6 +106,22 @@ class RuleProfile:
     short_circuit_final_c: tuple[tuple[float, float], ...]  # (insulation rating, final temp)
     motor_start_dip_pct: float
     _size_lookup: Mapping[str, int] = field(init=False, repr=False)
+    # motor circuits (NEC Article 430); None: motors are ordinary loads
+    motors: MotorRules | None = None
+    # transformer secondary conductors: None (general rules), "device" (ampacity >= the
+    # device they end in, no next size up: NEC 240.21(C)) or "rated_current" (ampacity >=
+    # secondary_factor x rated secondary current)
+    secondary_rule: str | None = None
+    secondary_factor: float = 1.0
+    # service conductors: supply-side bonding jumper by the largest phase conductor per
+    # raceway, rows (largest Cu area mm2, largest Al area mm2, jumper Cu area, jumper Al
+    # area); above the last row, service_bonding_pct % of the phase area. () : an EGC as
+    # for any other run.
+    service_bonding: tuple[tuple[float, float, float, float], ...] = ()
+    service_bonding_pct: float = 12.5
+    # share of non-linear load from which a wye system's neutral counts as a
+    # current-carrying conductor (NEC 310.15(E)(3): "major portion"); None: never
+    neutral_nonlinear_share: float | None = None
 
     def __post_init__(self) -> None:
         lookup = {s: i for i, s in enumerate(self.sizes)}
@@ -328,43 +346,6 @@ class _Section:
             raise self._fail(sorted(self.data)[0], "is not a known key")
 
 
-def _read_csv(path: Path) -> tuple[list[str], list[list[str]], str]:
-    """Header, rows and the ``# source:`` text of a data CSV; ScenarioError if unreadable."""
-    try:
-        text = path.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise ScenarioError(f"cannot read rule table: {exc}", file=str(path)) from None
-    source = ""
-    lines = []
-    for line in text.splitlines():
-        if line.startswith("#"):
-            body = line.lstrip("#").strip()
-            if body.lower().startswith("source:") and not source:
-                source = body[len("source:"):].strip()
-        elif line.strip():
-            lines.append(line)
-    if not source:
-        raise ScenarioError("rule table has no '# source:' line", file=str(path))
-    rows = list(csv.reader(lines))
-    if not rows:
-        raise ScenarioError("rule table is empty", file=str(path))
-    header, body_rows = rows[0], rows[1:]
-    for row in body_rows:
-        if len(row) != len(header):
-            raise ScenarioError(f"row {row} does not match header {header}", file=str(path))
-    return header, body_rows, source
-
-
-def _number(text: str, path: Path) -> float:
-    """A CSV cell as a float; an empty cell is NaN (no value in the table)."""
-    if not text.strip():
-        return math.nan
-    try:
-        return float(text)
-    except ValueError:
-        raise ScenarioError(f"not a number: {text!r}", file=str(path)) from None
-
-
 def _canonical(size: str, path: Path) -> str:
     try:
         name = parse_size(size)
@@ -556,6 +537,8 @@ def read_profile(path: str | Path) -> RuleProfile:
     dip = ms.take("max_dip_pct", float)
     sources["motor_start"] = ms.take("source", str)
     ms.finish()
+
+    extra = _read_circuit_rules(top, here, sizes, area, sources)
     top.finish()
 
     area.flags.writeable = False
@@ -580,8 +563,63 @@ def read_profile(path: str | Path) -> RuleProfile:
         egc_phase_bands=tuple((b[0], b[1], b[2]) for b in phase_bands),
         min_parallel_size=min_parallel, default_clearing_time_s=clearing,
         short_circuit_final_c=tuple((b[0], b[1]) for b in finals),
-        motor_start_dip_pct=dip,
+        motor_start_dip_pct=dip, **extra,
     )
+
+
+def _read_circuit_rules(top: _Section, here: Path, sizes: tuple[str, ...], area: np.ndarray,
+                        sources: dict[str, str]) -> dict[str, Any]:
+    """The optional sections [motors], [transformer_secondary], [service], [neutral]."""
+    out: dict[str, Any] = {}
+    if (mo := top.optional_sub("motors")) is not None:
+        rule = mo.take("rule", str)
+        if rule not in MOTOR_RULES:
+            raise mo._fail("rule", f"must be one of {', '.join(MOTOR_RULES)}")
+        three = single = None
+        if (name := mo.take("three_phase_table", str, None)) is not None:
+            three = read_flc_table(here / name, mo.take("three_phase_name", str))
+        if (name := mo.take("single_phase_table", str, None)) is not None:
+            single = read_flc_table(here / name, mo.take("single_phase_name", str))
+        columns = _bands(mo.take("voltage_columns", list, []), 3, "motor voltage columns",
+                         mo.file)
+        device_max = mo.take("branch_device_max_pct", float, None)
+        out["motors"] = MotorRules(
+            rule=rule, three_phase=three, single_phase=single,
+            voltage_columns=tuple((c[0], c[1], c[2]) for c in columns),
+            typical=read_typical(here / mo.take("typical_table", str)),
+            branch_factor=mo.take("branch_factor", float),
+            branch_device_max_pct=device_max,
+            branch_device_next_size_up=mo.take("branch_device_next_size_up", bool, False),
+            conductor_protection_by_overload=mo.take("conductor_protection_by_overload", bool,
+                                                     False))
+        for key in ("table_source", "typical_source", "branch_source", "device_source"):
+            sources[f"motor_{key.removesuffix('_source')}"] = mo.take(key, str, "")
+        mo.finish()
+    if (sec := top.optional_sub("transformer_secondary")) is not None:
+        rule = sec.take("rule", str)
+        if rule not in ("device", "rated_current"):
+            raise sec._fail("rule", "must be device or rated_current")
+        out["secondary_rule"] = rule
+        out["secondary_factor"] = sec.take("factor", float, 1.0)
+        sources["transformer_secondary"] = sec.take("source", str)
+        sec.finish()
+    if (svc := top.optional_sub("service")) is not None:
+        path = here / svc.take("bonding_table", str)
+        header, rows, sources["service_bonding_table"] = _read_csv(path)
+        if header != ["phase_cu_max", "phase_al_max", "Cu", "Al"]:
+            raise ScenarioError("bonding table needs columns phase_cu_max,phase_al_max,Cu,Al",
+                                file=str(path))
+        out["service_bonding"] = tuple(
+            tuple(_size_area_mm2(_canonical(c, path), sizes, area, path) for c in r)
+            for r in rows)
+        out["service_bonding_pct"] = svc.take("above_table_pct", float)
+        sources["service_bonding"] = svc.take("source", str)
+        svc.finish()
+    if (neu := top.optional_sub("neutral")) is not None:
+        out["neutral_nonlinear_share"] = neu.take("nonlinear_share", float)
+        sources["neutral_counting"] = neu.take("source", str)
+        neu.finish()
+    return out
 
 
 @cache
