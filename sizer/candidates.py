@@ -24,6 +24,7 @@ from sizer.rules.ampacity import (
     ambient_factor,
     ampacity_a,
     carries_load,
+    current_carrying_conductors,
     grouping_factor,
     table_ampacity_a,
     unadjusted_ampacity_a,
@@ -109,7 +110,9 @@ def segment_arrays(
     phases = np.array([seg.phases for seg in segments], dtype=np.int64)
     neutral = np.array([seg.neutral for seg in segments], dtype=bool)
     conductors = conductors_per_set(phases, neutral)
-    default_grouping = np.where(phases == 1, 2, 3)
+    # NEC 310.15(E): the neutral counts where a wye circuit's load is mainly non-linear
+    default_grouping = current_carrying_conductors(
+        profile, phases, neutral, np.array([seg.nonlinear_share for seg in segments]))
     grouping = np.array(
         [seg.node.cable.grouping or 0 for seg in segments], dtype=np.int64
     )

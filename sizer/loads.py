@@ -151,6 +151,7 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
     cf = np.where(is_motor, mf, cf)
 
     s_abs = own_abs.copy()
+    nonlinear_va = own_abs * np.array([nd.nonlinear for nd in nodes])
     s = own_abs * (pf + 1j * sin)
     req_va = np.where(is_motor, own_abs, own_abs * cf)
     extra_va = np.where(is_motor, (mf - 1.0) * own_abs, 0.0)
@@ -166,6 +167,7 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
     max_i = np.zeros(n)
     max_req = np.zeros(n)
     max_extra = np.zeros(n)
+    sum_nl = np.zeros(n)   # non-linear VA below, for the neutral count (310.15(E)(3))
     has_ln = ln.copy()
     by_depth = np.argsort(depth, kind="stable")
     bounds = np.searchsorted(depth[by_depth], np.arange(depth.max() + 2))
@@ -187,6 +189,8 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
             r_node = r_sec + (np.abs(s_node) - np.abs(s_sec))
             i_f = np.abs(s_node) / kv[f]
             extra_va[f] = max_extra[f]
+            nonlinear_va[f] = np.where(sum_abs[f] > 0, sum_nl[f] / np.where(
+                sum_abs[f] > 0, sum_abs[f], 1.0), 0.0) * np.abs(s_node)
             req_f = (r_node + extra_va[f]) / kv[f]
             # Same voltage level below a panel: no less than the largest child's current.
             i_f = np.where(t, i_f, np.maximum(i_f, df[f] * max_i[f]))
@@ -202,6 +206,7 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
         np.maximum.at(max_i, p, current[up])
         np.maximum.at(max_req, p, required[up])
         np.maximum.at(max_extra, p, extra_va[up])
+        np.add.at(sum_nl, p, nonlinear_va[up])
         np.logical_or.at(has_motor, p, has_motor[up])
         same = ~tx[p]     # a transformer's children are on another voltage level
         np.logical_or.at(has_ln, p[same], has_ln[up[same]])
@@ -217,6 +222,8 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
     if profile.secondary_rule == "rated_current":
         required = np.maximum(required, profile.secondary_factor * rated_secondary_a)
 
+    share = np.clip(np.where(s_abs > 0, nonlinear_va / np.where(s_abs > 0, s_abs, 1.0), 0.0),
+                    0.0, 1.0)
     seg_pf = np.where(s_abs > 0, s.real / np.where(s_abs > 0, s_abs, 1.0), pf)
 
     # --- device ratings ----------------------------------------------------------------
@@ -273,6 +280,7 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
             required_adjusted_a=float(required_adjusted[i]),
             motor_branch=bool(is_motor[i]), motor_basis=basis[i],
             service=bool(parent[i] < 0),
+            nonlinear_share=float(share[i]),
             secondary=bool(secondary[i]),
             ocpd_a=float(ocpd[i]), ocpd_chosen=bool(np.isnan(given[i])),
             power_factor=float(seg_pf[i]), demand_va=complex(s[i]),

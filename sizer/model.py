@@ -193,6 +193,7 @@ class Node:
     motor: Motor | None = None
     clearing_time_s: float | None = None
     neutral: bool | None = None   # None: decided from the loads below (see loads.py)
+    nonlinear: float = 0.0        # share of the node's own load that is non-linear (0-1)
     description: str = ""         # free text from the scenario, shown in reports
 
     def __post_init__(self) -> None:
@@ -212,6 +213,8 @@ class Node:
         if self.clearing_time_s is not None:
             _check(finite_positive(self.clearing_time_s), "must be a positive time", self.id,
                    "clearing_time")
+        _check(math.isfinite(self.nonlinear) and 0 <= self.nonlinear <= 1,
+               "must be a share from 0 to 1", self.id, "nonlinear")
 
 
 @dataclass(frozen=True)

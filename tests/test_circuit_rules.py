@@ -247,3 +247,68 @@ def test_pinned_parallel_below_the_minimum_names_the_rule(tmp_path):
     assert "protection" not in rules
     assert "minimum size for parallel conductors (1/0 AWG, NEC 310.10(G)(1))" in rules[
         "parallel size"]
+
+
+# --- neutral counting (NEC 310.15(E)) -------------------------------------------------------
+
+NEUTRAL = """
+[[node]]
+id = "P"
+parent = "SRC"
+length = "20 ft"
+ocpd = "400 A"
+
+[[node]]
+id = "F"
+parent = "P"
+length = "50 ft"
+neutral = true
+conductor = "1 AWG Cu"
+ocpd = "110 A"
+
+[[node]]
+id = "IT"
+parent = "F"
+length = "20 ft"
+load = "{it} A"
+nonlinear = true
+
+[[node]]
+id = "MTR"
+parent = "F"
+length = "20 ft"
+load = "{plain} A"
+"""
+
+
+@pytest.mark.parametrize(("it", "plain", "counted"), [
+    (60, 40, True),    # 60 % non-linear: the major portion, the neutral counts (4 conductors)
+    (40, 60, False),   # 40 %: it carries only the unbalance and does not count
+])
+def test_neutral_counts_when_the_major_portion_is_nonlinear(tmp_path, it, plain, counted):
+    # NEC 310.15(E)(3): a 4-wire wye feeder whose load is mainly non-linear counts its
+    # neutral: 4 current-carrying conductors, factor 0.8 (310.15(C)(1)). 1 AWG Cu at
+    # 90 degC, 145 A (NEC Table 310.16): 145 × 0.8 = 116 A, below the 75 degC terminal
+    # column's 130 A; uncounted, the terminal column (130 A) limits it.
+    path = write_scenario(tmp_path, NEUTRAL.format(it=it, plain=plain))
+    prep = prepare(load_scenario(path), keep_pins=True)
+    feeder = next(s for s in prep.segments if s.id == "F")
+    assert feeder.nonlinear_share == pytest.approx(it / (it + plain))   # the feeder inherits
+    design = check(prep)
+    res = next(s for s in design.segments if s.id == "F")
+    assert res.ampacity_a == pytest.approx(116.0 if counted else 130.0)
+
+
+def test_nonlinear_share_reads_true_false_and_percent(tmp_path):
+    for text, share in (("true", 1.0), ("false", 0.0), ('"60 %"', 0.6), ("0.25", 0.25)):
+        body = NEUTRAL.format(it=10, plain=10).replace("nonlinear = true",
+                                                        f"nonlinear = {text}")
+        sc = load_scenario(write_scenario(tmp_path, body))
+        assert next(n for n in sc.nodes if n.id == "IT").nonlinear == share
+
+
+def test_nonlinear_out_of_range_is_one_line_exit_2(tmp_path, capsys):
+    body = NEUTRAL.format(it=10, plain=10).replace("nonlinear = true", "nonlinear = 1.5")
+    assert main(["solve", str(write_scenario(tmp_path, body))]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "IT" in err[0] and "nonlinear" in err[0]

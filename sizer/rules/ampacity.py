@@ -89,6 +89,26 @@ def grouping_factor(profile: RuleProfile, conductors: object) -> float | np.ndar
     return float(factor) if factor.ndim == 0 else factor
 
 
+def current_carrying_conductors(profile: RuleProfile, phases: object, neutral: object,
+                                nonlinear_share: object) -> np.ndarray:
+    """Current-carrying conductors of one circuit (one set) for the adjustment factor.
+
+    A 1-phase circuit counts 2; a 3-phase circuit its 3 lines, plus the neutral of a
+    4-wire wye circuit when more than the profile's share of its load is non-linear
+    (NEC 310.15(E)(3): "major portion", share 0.5); otherwise the neutral carries only
+    the unbalanced current and does not count (310.15(E)(1)).
+    """
+    ph = np.asarray(phases)
+    counts = np.where(ph == 1, 2, 3)
+    limit = profile.neutral_nonlinear_share
+    if limit is None:
+        return counts.astype(np.int64)
+    with np.errstate(invalid="ignore"):
+        harmonic = (ph == 3) & np.asarray(neutral, dtype=bool) & (
+            np.asarray(nonlinear_share, dtype=float) > limit)
+    return (counts + harmonic).astype(np.int64)
+
+
 def ampacity_a(
     profile: RuleProfile,
     material: str,
