@@ -51,6 +51,8 @@ def _cmd_loads(args: argparse.Namespace) -> int:
 
 def _cmd_reach(args: argparse.Namespace) -> int:
     from sizer.reach import conductor_reach
+    from sizer.rules import load_profile
+    from sizer.rules.profile import table_status_line
     from sizer.units import (
         M_PER_FT,
         parse_conductor,
@@ -93,20 +95,28 @@ def _cmd_reach(args: argparse.Namespace) -> int:
         conductor_temperature_c=located("--conductor-temperature", parse_temperature_c,
                                         args.conductor_temperature),
     )
+    # A run over its ampacity or unprotected has no reach worth giving: say so, exit 1.
+    for line in result.warnings:
+        print(f"sizer: warning: {line}", file=sys.stderr)
+    code = 1 if result.warnings else 0
     if args.json:
         from sizer.report.export import json_text
 
         print(json_text({
             "reach_m": result.reach_m,
             "design_current_a": result.design_current_a,
+            "current_basis": result.current_basis,
             "ampacity_a": result.ampacity_a,
             "conductor_temperature_c": result.conductor_temperature_c,
             "r_ohm_per_km": result.r_ohm_per_km,
             "x_ohm_per_km": result.x_ohm_per_km,
+            "warnings": list(result.warnings),
+            "table_status": result.table_status,
         }), end="")
-        return 0
+        return code
     print(f"{args.conductor} at {result.design_current_a:.1f} A, {args.voltage} "
           f"{args.phases}-phase, drop limit {args.limit}:")
+    print(f"  current      {result.current_basis}")
     print(f"  reach        {result.reach_m:.1f} m ({result.reach_m / M_PER_FT:.0f} ft)")
     print(f"  ampacity     {result.ampacity_a:.0f} A ({args.rules})")
     print(f"  running at   {result.conductor_temperature_c:.1f} degC "
@@ -114,8 +124,10 @@ def _cmd_reach(args: argparse.Namespace) -> int:
     print(f"  R {result.r_ohm_per_km:.4f} ohm/km ({result.r_ohm_per_km * M_PER_FT:.4f} "
           f"ohm/kft), X {result.x_ohm_per_km:.4f} ohm/km "
           f"({result.x_ohm_per_km * M_PER_FT:.4f} ohm/kft)")
+    if line := table_status_line(load_profile(args.rules)):
+        print(f"  tables       {line}")
     print(CAUTION)
-    return 0
+    return code
 
 
 def _outputs(args: argparse.Namespace, inputs: Sequence[str] = ()) -> list[Path]:
@@ -186,6 +198,17 @@ def _prepare(args: argparse.Namespace, *, keep_pins: bool = False) -> Prepared:
     return prepare(scenario, keep_pins=keep_pins)
 
 
+def _run_notes(prep: Prepared) -> list[str]:
+    """Circuit assumptions and the profile's stand-in / from-memory tables, for the console."""
+    from sizer.loads import circuit_notes
+    from sizer.rules.profile import table_status_line
+
+    notes = list(circuit_notes(prep.segments))
+    if line := table_status_line(prep.profile):
+        notes.append(line)
+    return notes
+
+
 def _cmd_solve(args: argparse.Namespace) -> int:
     from sizer.optimize import Objective
     from sizer.report.terminal import summary
@@ -206,7 +229,7 @@ def _cmd_solve(args: argparse.Namespace) -> int:
         if args.report and results.design.segments:
             results.report(args.report, protect=_protect(args, prep.scenario), progress=say)
     print(summary(results.design, prep.scenario.title, max_rows=args.rows,
-                  written=_written(args)))
+                  written=_written(args), notes=_run_notes(prep)))
     return 0 if results.design.segments else 1
 
 
@@ -221,7 +244,7 @@ def _cmd_check(args: argparse.Namespace) -> int:
                             time_limit_s=args.time_limit)
     _write_design_files(args, results)
     print(summary(results.design, prep.scenario.title, max_rows=args.rows,
-                  written=_written(args)))
+                  written=_written(args), notes=_run_notes(prep)))
     return 0 if results.status is DesignStatus.COMPLIANT else 1
 
 

@@ -180,8 +180,9 @@ FIELDS: tuple[Field, ...] = (
        attr="phases", example="1"),
     _F("node", "load", "the load: current (A), real power (W, kW, hp) or apparent power "
        "(VA, kVA); on a motor, its nameplate current, which does not size the circuit "
-       "(the profile's full-load current table does)", r.read_load, default_text="none: the sum of the loads below, or the "
-       "profile's unknown-load rule on the device", bounds="0 or more", attr="load",
+       "(the profile's full-load current table does)", r.read_load,
+       default_text="none: the sum of the loads below, or the profile's unknown-load rule "
+       "on the device", bounds="0 or more", attr="load",
        example='"180 kW"'),
     _F("node", "power_factor", "power factor of the load", r.read_fraction,
        default=DEFAULT_POWER_FACTOR, bounds="(0, 1]", attr="power_factor",

@@ -292,6 +292,19 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
     )
 
 
+def circuit_notes(segments: tuple[Segment, ...]) -> tuple[str, ...]:
+    """What sizer assumed or looked up per run, in words: motor currents, voltages taken."""
+    out = []
+    for seg in segments:
+        if seg.motor_basis:
+            out.append(f"{seg.id}: motor full-load current {seg.current_a:.3g} A from "
+                       f"{seg.motor_basis}")
+        if seg.node.voltage_assumed:
+            out.append(f"{seg.id}: 1-phase with no voltage given: taken line to line at "
+                       f"{seg.voltage_v:g} V (give voltage = \"...\" for line to neutral)")
+    return tuple(out)
+
+
 def motor_currents(nodes: tuple[Node, ...], leaf: np.ndarray,
                    profile: RuleProfile) -> tuple[np.ndarray, list[str]]:
     """Full-load current (A) of each motor leaf by the profile's rules, and its basis."""

@@ -194,6 +194,7 @@ class Node:
     clearing_time_s: float | None = None
     neutral: bool | None = None   # None: decided from the loads below (see loads.py)
     nonlinear: float = 0.0        # share of the node's own load that is non-linear (0-1)
+    voltage_assumed: bool = False  # 1-phase with no voltage given: line to line was taken
     description: str = ""         # free text from the scenario, shown in reports
 
     def __post_init__(self) -> None:

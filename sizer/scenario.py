@@ -693,6 +693,7 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 clearing_time_s=v.get("clearing_time", defaults["clearing_time"]),
                 neutral=v.get("neutral"), description=v.get("description", ""),
                 nonlinear=v.get("nonlinear", 0.0),
+                voltage_assumed=v.get("voltage_assumed", False),
             ))
         except ScenarioError as exc:
             report.add_error(exc, node=d.id, file=d.file)

@@ -191,6 +191,31 @@ class RuleProfile:
                 f"'{self.name}' (allowed: {allowed})")
 
 
+def table_status(profile: RuleProfile) -> dict[str, list[str]]:
+    """Which of the profile's tables and rules are stand-ins or (partly) from memory.
+
+    ``{"stand_in": [topic, ...], "from_memory": [topic, ...]}``, topics as in
+    ``profile.sources`` (ampacity_table, motor_table, ...), read from their source text:
+    "STAND-IN" marks a stand-in, "[M]" or "from memory" a recalled value. The console
+    and the JSON carry it; the report lists the full source texts.
+    """
+    stand_in = [t for t, text in sorted(profile.sources.items()) if "STAND-IN" in text]
+    memory = [t for t, text in sorted(profile.sources.items())
+              if t not in stand_in and ("[M]" in text or "from memory" in text.lower())]
+    return {"stand_in": stand_in, "from_memory": memory}
+
+
+def table_status_line(profile: RuleProfile) -> str:
+    """``table_status`` in one line for the console ("" when every value is corroborated)."""
+    status = table_status(profile)
+    parts = []
+    if status["stand_in"]:
+        parts.append("stand-ins: " + ", ".join(status["stand_in"]))
+    if status["from_memory"]:
+        parts.append("from memory (verify): " + ", ".join(status["from_memory"]))
+    return f"{profile.name} profile " + "; ".join(parts) if parts else ""
+
+
 def check_material(material: str) -> str:
     """Return ``material`` if it is "Cu" or "Al", else raise UnitError."""
     if material not in MATERIALS:
