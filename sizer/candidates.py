@@ -146,7 +146,7 @@ def segment_arrays(
              and profile.motors.conductor_protection_by_overload for seg in segments],
             dtype=bool),
         secondary=np.array([seg.secondary for seg in segments], dtype=bool),
-        service=np.array([seg.service and bool(profile.service_bonding) for seg in segments],
+        service=np.array([seg.service and profile.bonds_service() for seg in segments],
                          dtype=bool),
     )
 
@@ -281,13 +281,16 @@ def build_candidates(
     min_size, min_sets = _smallest_compliant(seg, mat, size, sets, code_ok,
                                              catalogue.area_mm2, n)
     pair = seg * 2 + mat
+    # cec: bonding conductor by the ampacity of the run (CEC Table 16), not the device
+    egc_key = (np.where(valid, ampacity, np.nan) if profile.egc_rule == "conductor_ampacity"
+               else ocpd)
     egc = _by_material(mat, lambda m, mask: egc_size_index_of_sizes(
-        profile, MATERIALS[m], ocpd[mask], size[mask], min_size[pair[mask]], sets[mask],
+        profile, MATERIALS[m], egc_key[mask], size[mask], min_size[pair[mask]], sets[mask],
         min_sets[pair[mask]]), dtype=np.int64)
     # Service conductors carry no EGC: a supply-side bonding jumper per raceway instead
     # (NEC 250.24(C), 250.102(C)), in the same column and priced the same way.
     service = sa.service[seg]
-    if service.any():
+    if service.any() and profile.service_bonding:
         egc[service] = _by_material(mat[service], lambda m, mask: bonding_jumper_size_index(
             profile, MATERIALS[m], size[service][mask]), dtype=np.int64)
     egc_ok = egc >= 0

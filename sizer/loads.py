@@ -26,6 +26,7 @@ The rules, each where a designer expects it:
   required *before adjustment* (NEC 210.19(A)(1)(a), 215.2(A)(1)(a): 125 %); the
   adjusted ampacity need only carry the load itself (210.19(A)(1)(b)): two separate
   tests, ``required_ampacity_a`` and ``required_adjusted_a``. Never toward drop or losses.
+  The cec profile applies its 80 % (1.25) to the ampacity as installed too (CEC 8-104).
 - **A feeder** carries the sum of the demand below it: apparent powers added
   arithmetically (conservative, common practice) × the node's ``demand_factor``, at the
   power factor of the vector sum (P / |S|); the required ampacity sums the children's
@@ -241,7 +242,8 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
     # The second test (210.19(A)(1)(b), 215.2(A)(1)(b)): the adjusted ampacity carries the
     # load at 100 %; where motors are below, 430.22/430.24 apply to it as well.
     required_adjusted = np.where(
-        has_motor, required, np.where(tx, np.maximum(current, rated_primary_a), current))
+        has_motor | profile.continuous_after_adjustment, required,
+        np.where(tx, np.maximum(current, rated_primary_a), current))
     if profile.secondary_rule == "rated_current":
         required_adjusted = np.maximum(required_adjusted,
                                        profile.secondary_factor * rated_secondary_a)

@@ -164,7 +164,7 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
     cat = prep.catalogue
     vd = t.vd_pct[choice]
     path = path_drops_pct(prep.parent, vd, prep.fixed_drop_pct)
-    service = [seg.service and bool(prep.profile.service_bonding) for seg in prep.segments]
+    service = [seg.service and prep.profile.bonds_service() for seg in prep.segments]
     results = []
     for s, seg in enumerate(prep.segments):
         r = int(choice[s])

@@ -312,3 +312,28 @@ def test_nonlinear_out_of_range_is_one_line_exit_2(tmp_path, capsys):
     assert main(["solve", str(write_scenario(tmp_path, body))]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "IT" in err[0] and "nonlinear" in err[0]
+
+
+# --- the cec profile's own rules (CSA C22.1, from memory) -----------------------------------
+
+
+def test_cec_continuous_80_percent_binds_the_ampacity_as_installed(tmp_path):
+    # CSA C22.1 Rule 8-104 (from memory): 48 A continuous within 80 % of the conductor
+    # ampacity as installed: 60 A after correction, where the NEC asks 48 A (210.19(A)(1)(b)).
+    for rules, after in (("cec", 60.0), ("nec", 48.0)):
+        path = write_scenario(tmp_path, CONTINUOUS_48A.format(pin=""), rules=rules,
+                              name=f"{rules}.toml")
+        seg = prepare(load_scenario(path)).segments[0]
+        assert (seg.required_ampacity_a, seg.required_adjusted_a) == (60.0, after)
+
+
+def test_cec_bonding_conductor_by_the_conductor_ampacity(tmp_path):
+    # CSA C22.1 Table 16 (from memory): by the ampacity of the ungrounded conductors, not
+    # the device: a run of 230 A (4/0 AWG Cu, 75 degC column) takes the 300 A row, 4 AWG Cu.
+    nodes = SERVICE.replace('load = "300 A"', 'load = "180 A"\nconductor = "4/0 AWG Cu"')
+    path = write_scenario(tmp_path, nodes, rules="cec")
+    design = check(prepare(load_scenario(path), keep_pins=True))
+    load = next(s for s in design.segments if s.id == "LOAD")
+    assert (load.ampacity_a, load.egc) == (230.0, "4 AWG")
+    svc = next(s for s in design.segments if s.id == "SWBD")
+    assert svc.egc is None and svc.bonding_jumper is not None   # service: a bonding jumper

@@ -65,12 +65,19 @@ def test_ampacity_protection_and_egc_hold(demo):
             if res.egc is None:
                 # NEC 250.24(C): service conductors carry a bonding jumper, not an EGC
                 assert seg.service and res.bonding_jumper is not None
-                jumper = bonding_jumper_size_index(p, res.material, np.array([phase]))[0]
-                assert cat.index(res.bonding_jumper) == jumper
+                if p.service_bonding:   # nec: Table 250.102(C)(1) by the phase size
+                    jumper = bonding_jumper_size_index(p, res.material, np.array([phase]))[0]
+                    assert cat.index(res.bonding_jumper) == jumper
                 continue
             egc = cat.index(res.egc)
             # NEC 250.122(A): never larger than the phase conductors ...
             assert egc <= phase
+            if p.egc_rule == "conductor_ampacity":
+                # CEC Table 16 (from memory): by the run's ampacity, not the device
+                table = egc_size_index(p, res.material, np.array([res.ampacity_a]),
+                                       cat.area_mm2[[phase]], cat.area_mm2[[phase]])[0]
+                assert egc == min(table, phase)
+                continue
             # ... and never smaller than the table size for the device (no growth assumed).
             table = egc_size_index(p, res.material, np.array([res.ocpd_a]),
                                    cat.area_mm2[[phase]], cat.area_mm2[[phase]])[0]

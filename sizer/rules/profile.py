@@ -28,7 +28,7 @@ from sizer.units import MATERIALS, MM2_PER_CMIL, parse_size
 PROFILES: tuple[str, ...] = ("nec", "cec", "iec")
 INSTALLATIONS: tuple[str, ...] = ("conduit", "steel_conduit", "tray", "buried", "free_air")
 CATALOGUES: tuple[str, ...] = ("awg", "metric")
-EGC_RULES: tuple[str, ...] = ("device_rating", "phase_area")
+EGC_RULES: tuple[str, ...] = ("device_rating", "phase_area", "conductor_ampacity")
 DROP_KINDS: tuple[str, ...] = ("branch", "feeder", "total")
 
 _HERE = Path(__file__).parent
@@ -94,7 +94,9 @@ class RuleProfile:
     next_size_up_max_a: float | None         # None: device must not exceed the ampacity
     small_conductor_max_ocpd_a: tuple[tuple[str, str, float], ...]  # (material, size, max device A)
     # equipment grounding (protective) conductor
-    egc_rule: str                            # "device_rating" | "phase_area"
+    # "device_rating" (NEC 250.122) | "phase_area" (IEC 60364-5-54) | "conductor_ampacity"
+    # (CEC Table 16: by the ampacity of the largest ungrounded conductor, or equivalent)
+    egc_rule: str
     egc_table: tuple[tuple[float, str, str], ...]  # device_rating: (device <= A, Cu size, Al size)
     egc_table_area_mm2: tuple[tuple[float, float], ...]  # same rows: (Cu area, Al area)
     egc_proportional: bool                   # NEC 250.122(B)
@@ -106,6 +108,9 @@ class RuleProfile:
     short_circuit_final_c: tuple[tuple[float, float], ...]  # (insulation rating, final temp)
     motor_start_dip_pct: float
     _size_lookup: Mapping[str, int] = field(init=False, repr=False)
+    # the continuous factor also binds the adjusted ampacity (CEC Rule 8-104), not only
+    # the ampacity before adjustment (NEC 210.19(A)(1)(a))
+    continuous_after_adjustment: bool = False
     # motor circuits (NEC Article 430); None: motors are ordinary loads
     motors: MotorRules | None = None
     # transformer secondary conductors: None (general rules), "device" (ampacity >= the
@@ -119,6 +124,7 @@ class RuleProfile:
     # for any other run.
     service_bonding: tuple[tuple[float, float, float, float], ...] = ()
     service_bonding_pct: float = 12.5
+
     # share of non-linear load from which a wye system's neutral counts as a
     # current-carrying conductor (NEC 310.15(E)(3): "major portion"); None: never
     neutral_nonlinear_share: float | None = None
@@ -132,6 +138,10 @@ class RuleProfile:
                                 file=self.path)
 
     # --- small helpers every caller needs -------------------------------------------
+
+    def bonds_service(self) -> bool:
+        """Whether service conductors get a bonding jumper (its table) instead of an EGC."""
+        return bool(self.service_bonding) or self.egc_rule == "conductor_ampacity"
 
     def size_index(self, size: str) -> int:
         """Index of a canonical size name in this profile's size order."""
@@ -298,7 +308,7 @@ def _problems(p: RuleProfile) -> list[str]:
             out.append(f"bad small-conductor limit {(mat, size, limit)}")
     if p.egc_rule not in EGC_RULES:
         out.append(f"egc rule must be one of {EGC_RULES}, got {p.egc_rule!r}")
-    if p.egc_rule == "device_rating":
+    if p.egc_rule in ("device_rating", "conductor_ampacity"):
         limits = [row[0] for row in p.egc_table]
         if not limits or any(b <= a for a, b in pairwise(limits)):
             out.append("EGC table must list ascending device ratings")
@@ -437,8 +447,9 @@ def _read_egc(
     path: Path, sizes: tuple[str, ...], area: np.ndarray
 ) -> tuple[tuple[tuple[float, str, str], ...], tuple[tuple[float, float], ...], str]:
     header, rows, source = _read_csv(path)
-    if header != ["ocpd_max_a", "Cu", "Al"]:
-        raise ScenarioError("EGC table needs columns ocpd_max_a,Cu,Al", file=str(path))
+    if header not in (["ocpd_max_a", "Cu", "Al"], ["ampacity_max_a", "Cu", "Al"]):
+        raise ScenarioError("EGC table needs columns ocpd_max_a,Cu,Al (or ampacity_max_a,Cu,Al)",
+                            file=str(path))
     table = tuple((_number(r[0], path), _canonical(r[1], path), _canonical(r[2], path))
                   for r in rows)
     areas = tuple((_size_area_mm2(cu, sizes, area, path), _size_area_mm2(al, sizes, area, path))
@@ -487,6 +498,7 @@ def read_profile(path: str | Path) -> RuleProfile:
     unknown_load_factor = dc.take("unknown_load_factor", float)
     sources["unknown_load"] = dc.take("unknown_load_source", str)
     continuous_factor = dc.take("continuous_factor", float)
+    continuous_after = dc.take("continuous_after_adjustment", bool, False)
     sources["continuous"] = dc.take("continuous_source", str)
     dc.finish()
 
@@ -539,7 +551,7 @@ def read_profile(path: str | Path) -> RuleProfile:
     egc_table: tuple[tuple[float, str, str], ...] = ()
     egc_areas: tuple[tuple[float, float], ...] = ()
     phase_bands: tuple[tuple[float, ...], ...] = ()
-    if egc_rule == "device_rating":
+    if egc_rule in ("device_rating", "conductor_ampacity"):
         egc_table, egc_areas, sources["egc_table"] = _read_egc(
             here / egc.take("table", str), sizes, area)
     elif egc_rule == "phase_area":
@@ -588,7 +600,7 @@ def read_profile(path: str | Path) -> RuleProfile:
         egc_phase_bands=tuple((b[0], b[1], b[2]) for b in phase_bands),
         min_parallel_size=min_parallel, default_clearing_time_s=clearing,
         short_circuit_final_c=tuple((b[0], b[1]) for b in finals),
-        motor_start_dip_pct=dip, **extra,
+        motor_start_dip_pct=dip, continuous_after_adjustment=continuous_after, **extra,
     )
 
 

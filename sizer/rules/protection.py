@@ -165,6 +165,8 @@ def egc_size_index(
     phase circular-mil areas (``sets`` × phase over ``min_sets`` × minimum; Chapter 9
     Table 8 areas, exact ratio) rounded up to the next size.
     phase_area rule (iec): IEC 60364-5-54 Table 54.2 from the phase size (same material).
+    conductor_ampacity rule (cec): CEC Table 16 by the ampacity of the run's ungrounded
+    conductors (parallel sets as their equivalent): pass that ampacity as ``ocpd_a``.
     Either way never larger than one phase conductor (250.122(A)). The EGC is of the
     same ``material`` as the phase conductors; ``min_sets`` defaults to ``sets``.
     Returns NO_SIZE (-1) where the device rating is outside the table or an area matches
