@@ -416,7 +416,9 @@ class _Page:
             ("Edition", p.edition),
             ("Voltage drop limits", f"{p.drop_feeder_pct:g} % per feeder, {p.drop_branch_pct:g} % "
                                     f"per branch circuit, {p.drop_total_pct:g} % source to load"),
-            ("Continuous loads", f"× {p.continuous_factor:g} for ampacity"),
+            ("Continuous loads", f"× {p.continuous_factor:g} for the ampacity before "
+                                 "adjustment" + (" and as installed"
+                                                 if p.continuous_after_adjustment else "")),
             ("Load unknown", f"{100 * p.unknown_load_factor:g} % of the device rating"),
             ("Motor-start dip limit", f"{p.motor_start_dip_pct:g} %"),
             ("Fault clearing time", f"{p.default_clearing_time_s:g} s unless a node gives one"),
@@ -439,7 +441,14 @@ class _Page:
                                      "([economics] emission_factor; 0.4 when not given)"),
         ]
         prices = self.price_facts()
-        notes = "".join(f"<li>{esc(n)}</li>" for n in getattr(p, "notes", ()) or ())
+        # the profile's stand-ins and from-memory tables, and what was assumed per run
+        from sizer.loads import circuit_notes
+        from sizer.rules.profile import table_status_line
+
+        status = table_status_line(p)
+        lines = [*(getattr(p, "notes", ()) or ()), *([status] if status else []),
+                 *circuit_notes(self.prep.segments)]
+        notes = "".join(f"<li>{esc(n)}</li>" for n in lines)
         return ('<section id="assumptions"><h2>Assumptions</h2><div class="columns">'
                 f"<div><h3>Rules</h3>{facts(rules)}"
                 f"{f'<ul class=muted>{notes}</ul>' if notes else ''}</div>"
