@@ -38,6 +38,7 @@ from sizer.model import (
     Violation,
 )
 from sizer.rules import REL_TOL, load_profile
+from sizer.rules.motors import branch_device_a
 from sizer.rules.profile import RuleProfile
 from sizer.topology import Topology
 from sizer.units import conductor_label
@@ -375,6 +376,19 @@ def check(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",
                    violations=tuple(found))
 
 
+def motor_device_violations(profile: RuleProfile, seg: Segment) -> list[Violation]:
+    """A motor branch's given device above what the profile allows (NEC 430.52)."""
+    motors = profile.motors
+    if not seg.motor_branch or seg.ocpd_chosen or motors is None:
+        return []
+    allowed = branch_device_a(motors, profile.standard_ratings_a, seg.current_a)
+    if allowed is None or seg.ocpd_a <= allowed * (1 + REL_TOL):
+        return []
+    return [Violation(seg.id, "motor device", seg.ocpd_a, allowed,
+                      f"a {seg.ocpd_a:g} A device is above the {allowed:g} A allowed for a "
+                      f"{seg.current_a:g} A motor ({profile.sources.get('motor_device', '')})")]
+
+
 def ampacity_violations(seg: Segment, label: str, before_a: float,
                         after_a: float) -> list[Violation]:
     """The two ampacity tests (NEC 210.19(A)(1)(a)/(b), motors 430.22/430.24) as violations."""
@@ -401,6 +415,7 @@ def violations(prep: Prepared, choice: np.ndarray, design: Design) -> list[Viola
         out.extend(ampacity_violations(seg, label, float(t.ampacity_before_a[r]),
                                        float(t.ampacity_a[r])))
         fails = prep.local.pinned_fails[s]
+        out.extend(motor_device_violations(prep.profile, seg))
         if "protection" in fails:
             out.append(Violation(seg.id, "protection", float(t.ampacity_a[r]), seg.ocpd_a,
                                  f"a {seg.ocpd_a:.0f} A device does not protect {label}"

@@ -337,3 +337,18 @@ def test_cec_bonding_conductor_by_the_conductor_ampacity(tmp_path):
     assert (load.ampacity_a, load.egc) == (230.0, "4 AWG")
     svc = next(s for s in design.segments if s.id == "SWBD")
     assert svc.egc is None and svc.bonding_jumper is not None   # service: a bonding jumper
+
+
+def test_check_flags_a_motor_device_above_430_52(tmp_path):
+    # 10 hp at 480 V, 14 A (NEC Table 430.250): an inverse-time breaker up to 250 % = 35 A
+    # (NEC 430.52, Table 430.52); a given 50 A device is above it. 35 A passes.
+    for device, flagged in (("50 A", True), ("35 A", False)):
+        nodes = ('[[node]]\nid = "P"\nparent = "SRC"\nlength = "10 ft"\nocpd = "100 A"\n'
+                 '[[node]]\nid = "M"\nparent = "P"\nlength = "40 ft"\n'
+                 f'motor = {{ hp = 10 }}\nocpd = "{device}"\nconductor = "10 AWG Cu"\n')
+        path = write_scenario(tmp_path, nodes, name=f"m{device[:2]}.toml")
+        design = check(prepare(load_scenario(path), keep_pins=True))
+        rules = {v.rule: v for v in design.violations}
+        assert ("motor device" in rules) == flagged
+        if flagged:
+            assert (rules["motor device"].value, rules["motor device"].limit) == (50.0, 35.0)
