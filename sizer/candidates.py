@@ -112,7 +112,9 @@ def segment_arrays(
     conductors = conductors_per_set(phases, neutral)
     # NEC 310.15(E): the neutral counts where a wye circuit's load is mainly non-linear
     default_grouping = current_carrying_conductors(
-        profile, phases, neutral, np.array([seg.nonlinear_share for seg in segments]))
+        profile, phases, neutral, np.array([seg.nonlinear_share for seg in segments]),
+        np.array([seg.phases == 1 and not seg.line_to_neutral and seg.from_three_phase
+                  for seg in segments]))
     grouping = np.array(
         [seg.node.cable.grouping or 0 for seg in segments], dtype=np.int64
     )

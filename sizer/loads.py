@@ -106,10 +106,12 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
     src = supply_bus(scenario.source.voltage_v, scenario.source.phases, scenario.source.id)
     buses: list[Bus] = []
     ln = np.zeros(n, dtype=bool)
+    from_3ph = np.zeros(n, dtype=bool)   # fed from a 3-phase (4-wire wye) bus
     depth = topo.depth - 1
     for i, nd in enumerate(nodes):
         bus = src if parent[i] < 0 else buses[parent[i]]
         ln[i] = is_line_to_neutral(bus, nd.phases, nd.voltage_v)
+        from_3ph[i] = bus.phases == 3
         buses.append(node_bus(bus, nd.id, nd.phases, nd.voltage_v, nd.transformer))
 
     volts = np.array([nd.voltage_v for nd in nodes])
@@ -135,6 +137,13 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
     value = np.array([nd.load.value if nd.load else 0.0 for nd in nodes])
     motor_w = np.array([nd.motor.power_w if nd.motor else 0.0 for nd in nodes])
     flc, basis = motor_currents(nodes, leaf, profile)
+    # iec: a nameplate current given as the load is the motor's rated current (the codes
+    # with tables keep it for the overload relay only, NEC 430.6(A))
+    nameplate = leaf & (kind == _CURRENT) & (motor_w > 0) & (
+        profile.motors is not None and profile.motors.rule == "efficiency")
+    flc = np.where(nameplate, value, flc)
+    basis = [f"the nameplate current {value[i]:g} A" if nameplate[i] else b
+             for i, b in enumerate(basis)]
     is_motor = leaf & (motor_w > 0) & (profile.motors is not None)
     unknown = leaf & (kind == 0) & (motor_w == 0) & ~np.isnan(given)
     own_abs = np.select(
@@ -283,6 +292,7 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
             motor_branch=bool(is_motor[i]), motor_basis=basis[i],
             service=bool(parent[i] < 0),
             nonlinear_share=float(share[i]),
+            from_three_phase=bool(from_3ph[i]),
             secondary=bool(secondary[i]),
             ocpd_a=float(ocpd[i]), ocpd_chosen=bool(np.isnan(given[i])),
             power_factor=float(seg_pf[i]), demand_va=complex(s[i]),

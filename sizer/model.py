@@ -271,6 +271,7 @@ class Segment:
     service: bool = False       # fed from the source: service conductors, no EGC
     secondary: bool = False     # fed from a transformer node: its secondary conductors
     nonlinear_share: float = 0.0  # share of the demand that is non-linear (0-1)
+    from_three_phase: bool = False  # fed from a 3-phase bus (a 1-phase 3-wire run: 2 lines + N)
 
     @property
     def id(self) -> str:

@@ -352,3 +352,40 @@ def test_check_flags_a_motor_device_above_430_52(tmp_path):
         assert ("motor device" in rules) == flagged
         if flagged:
             assert (rules["motor device"].value, rules["motor device"].limit) == (50.0, 35.0)
+
+
+@pytest.mark.parametrize(("phases", "neutral", "share", "two_lines", "expected"), [
+    (3, True, 0.6, False, 4),    # NEC 310.15(E)(3): major portion non-linear, neutral counts
+    (3, True, 0.5, False, 3),    # half is not the major portion
+    (3, False, 1.0, False, 3),   # no neutral run
+    (1, True, 0.0, True, 3),     # NEC 310.15(E)(2): 2 lines + N of a wye, the neutral counts
+    (1, True, 0.0, False, 2),    # 1-phase 2-wire: line and neutral
+])
+def test_current_carrying_conductor_count(phases, neutral, share, two_lines, expected):
+    from sizer.rules.ampacity import current_carrying_conductors
+    got = current_carrying_conductors(NEC, np.array([phases]), np.array([neutral]),
+                                      np.array([share]), np.array([two_lines]))
+    assert got.tolist() == [expected]
+    # the iec profile has no such rule here: 2 or 3
+    iec = current_carrying_conductors(load_profile("iec"), np.array([phases]),
+                                      np.array([neutral]), np.array([share]))
+    assert iec.tolist() == [2 if phases == 1 else 3]
+
+
+def test_solve_json_names_assumptions_and_stand_in_tables(tmp_path, capsys):
+    # A 1-phase run with no voltage on a 480 V 3-phase bus is taken line to line: said.
+    nodes = ('[[node]]\nid = "P"\nparent = "SRC"\nlength = "10 ft"\nocpd = "100 A"\n'
+             '[[node]]\nid = "H"\nparent = "P"\nlength = "40 ft"\nphases = 1\nload = "20 A"\n'
+             '[[node]]\nid = "M"\nparent = "P"\nlength = "40 ft"\nmotor = { hp = 10 }\n')
+    path = write_scenario(tmp_path, nodes, rules="cec")
+    out = tmp_path / "r.json"
+    assert main(["solve", str(path), "--json", str(out)]) == 0
+    console = capsys.readouterr().out
+    doc = json.loads(out.read_text())
+    notes = doc["circuit_notes"]
+    assert any(n.startswith("H: 1-phase with no voltage given: taken line to line at 480 V")
+               for n in notes)
+    assert any(n.startswith("M: motor full-load current 14 A from CEC Table 44") for n in notes)
+    assert "ampacity" in doc["table_status"]["stand_in"]
+    assert "motor_table" in doc["table_status"]["from_memory"]
+    assert "line to line at 480 V" in console and "cec profile stand-ins:" in console

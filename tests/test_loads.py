@@ -125,6 +125,15 @@ def test_motor_in_kw_iec(tmp_path):
     assert seg.ocpd_a == 32.0
 
 
+def test_iec_motor_uses_its_nameplate_current(tmp_path):
+    # iec: no full-load current table; a nameplate (rated) current given as the load is
+    # the motor's current (without it, the typical values of test_motor_in_kw_iec).
+    nodes = ('[[node]]\nid = "M"\nparent = "SRC"\nlength = "50 m"\nload = "29 A"\n'
+             'motor = { kw = 15 }\n')
+    seg = segments(tmp_path, nodes, rules="iec", volts="400 V")["M"]
+    assert seg.current_a == 29.0 and "nameplate" in seg.motor_basis
+
+
 def test_motor_nameplate_current_does_not_size_the_circuit(tmp_path):
     # NEC 430.6(A)(1): the table current sizes conductors and devices; a nameplate current
     # (given as the load) is for the overload relay only. 100 hp at 460 V: 124 A (NEC Table

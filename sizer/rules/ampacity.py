@@ -90,13 +90,17 @@ def grouping_factor(profile: RuleProfile, conductors: object) -> float | np.ndar
 
 
 def current_carrying_conductors(profile: RuleProfile, phases: object, neutral: object,
-                                nonlinear_share: object) -> np.ndarray:
+                                nonlinear_share: object, two_lines_of_wye: object = False
+                                ) -> np.ndarray:
     """Current-carrying conductors of one circuit (one set) for the adjustment factor.
 
     A 1-phase circuit counts 2; a 3-phase circuit its 3 lines, plus the neutral of a
     4-wire wye circuit when more than the profile's share of its load is non-linear
     (NEC 310.15(E)(3): "major portion", share 0.5); otherwise the neutral carries only
-    the unbalanced current and does not count (310.15(E)(1)).
+    the unbalanced current and does not count (310.15(E)(1)). A 1-phase 3-wire circuit
+    of two lines and the neutral of a wye (``two_lines_of_wye``) counts 3: its neutral
+    carries about the line current (310.15(E)(2)). Profiles without a neutral rule
+    count 2 or 3.
     """
     ph = np.asarray(phases)
     counts = np.where(ph == 1, 2, 3)
@@ -104,9 +108,11 @@ def current_carrying_conductors(profile: RuleProfile, phases: object, neutral: o
     if limit is None:
         return counts.astype(np.int64)
     with np.errstate(invalid="ignore"):
-        harmonic = (ph == 3) & np.asarray(neutral, dtype=bool) & (
+        with_neutral = np.asarray(neutral, dtype=bool)
+        harmonic = (ph == 3) & with_neutral & (
             np.asarray(nonlinear_share, dtype=float) > limit)
-    return (counts + harmonic).astype(np.int64)
+        shared = (ph == 1) & with_neutral & np.asarray(two_lines_of_wye, dtype=bool)
+    return (counts + harmonic + shared).astype(np.int64)
 
 
 def ampacity_a(
