@@ -1,7 +1,9 @@
-"""Both engines honour the circuit rules: random small trees with motors, transformer
-secondaries, continuous loads and service conductors, solved by the tree program, the
-MILP and exhaustive enumeration; the chosen rows are then re-checked against the rule
-functions themselves (NEC 430.22, 240.21(C), 210.19(A)(1), 250.24(C)).
+"""Both engines honour the circuit rules.
+
+Random small trees with motors, transformer secondaries, continuous and non-linear loads
+and service conductors are solved by the tree program, the MILP and exhaustive
+enumeration; the chosen rows are then re-checked against the rule functions themselves
+(NEC 430.22, 240.21(C), 210.19(A)(1), 310.15(E)(3)).
 """
 
 from __future__ import annotations
@@ -15,8 +17,10 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from test_engines import brute_force
 
+from sizer.candidates import MATERIALS
 from sizer.engines import SolveStatus, solve
 from sizer.optimize import Objective, build_problem, prepare
+from sizer.rules.ampacity import ampacity_a
 from sizer.rules.motors import HP_W, full_load_current
 from sizer.rules.protection import next_size_up_allowed, protects
 from sizer.scenario import load_scenario
@@ -37,9 +41,11 @@ def small_trees(draw):
                          f"motor = {{ hp = {draw(st.sampled_from(HP))} }}\n")
         elif kind == "load":
             cont = "true" if draw(st.booleans()) else "false"
+            # a 4-wire load, maybe mainly non-linear: its neutral counts (310.15(E)(3))
+            wye = ("neutral = true\nnonlinear = true\n" if draw(st.booleans()) else "")
             nodes.append(f'[[node]]\nid = "L{i}"\nparent = "P"\nlength = "{length} ft"\n'
                          f'load = "{draw(st.integers(10, 90))} A"\ncontinuous = {cont}\n'
-                         f"grouping = {draw(st.sampled_from([3, 6]))}\n")
+                         + wye)
         else:
             nodes.append(f'[[node]]\nid = "T{i}"\nparent = "P"\nlength = "{length} ft"\n'
                          'transformer = { rating = "45 kVA", secondary = "208 V", '
@@ -84,6 +90,11 @@ def test_engines_and_enumeration_agree_and_honour_the_rules(tmp_path, body, obje
         # 210.19(A)(1): (a) before adjustment, (b) after, apart
         assert t.ampacity_before_a[r] >= seg.required_ampacity_a * (1 - 1e-9)
         assert t.ampacity_a[r] >= seg.required_adjusted_a * (1 - 1e-9)
+        if seg.node.nonlinear:
+            # 4 current-carrying conductors: 310.15(C)(1) factor 0.8 on the 90 degC column
+            amp = ampacity_a(p, MATERIALS[int(t.material[r])], np.array([t.size_index[r]]),
+                             90.0, 75.0, 30.0, 4, "conduit")[0]
+            assert t.ampacity_a[r] == pytest.approx(amp * t.sets[r])
 
 
 def test_motor_hp_table_used_by_the_engines_not_the_old_formula(tmp_path):
