@@ -201,6 +201,9 @@ FIELDS: tuple[Field, ...] = (
     _F("node", "neutral", "a neutral is run with the phase conductors", r.read_bool,
        default_text="by the circuit (line-to-neutral loads need one)", attr="neutral",
        example="true"),
+    _F("node", "device_100_percent", "the run's device and its assembly are listed for "
+       "continuous operation at 100 % of their rating: continuous loads count at 100 %",
+       r.read_bool, default=False, attr="device_100_percent", example="true"),
     _F("node", "nonlinear", "share of the load that is non-linear (LED drivers, IT "
        "equipment): true, false or a share; a feeder takes the share of the loads below. "
        "Above the profile's share a 4-wire wye neutral counts as current-carrying",

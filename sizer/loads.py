@@ -120,6 +120,9 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
     pf = np.array([nd.power_factor for nd in nodes])
     sin = np.sqrt(1.0 - pf * pf)
     df = np.array([nd.demand_factor for nd in nodes])
+    # A device (and its assembly) listed for 100 % continuous operation: no 125 % for the
+    # run it protects (NEC 210.19(A)(1) Exception, 215.2(A)(1) Exception No. 1; CEC 8-104).
+    full = np.array([nd.device_100_percent for nd in nodes], dtype=bool)
     cf = np.where([nd.continuous for nd in nodes], float(profile.continuous_factor), 1.0)
     given = np.array([np.nan if nd.ocpd_a is None else nd.ocpd_a for nd in nodes])
     has_parent = parent >= 0
@@ -167,7 +170,8 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
     extra_va = np.where(is_motor, (mf - 1.0) * own_abs, 0.0)
     has_motor = is_motor.copy()
     current = np.where(leaf, own_i, 0.0)
-    required = current * cf
+    # the run's own need (1.0 behind a 100 %-rated device); its parent still sees 125 %
+    required = current * np.where(full & ~is_motor, 1.0, cf)
     load_fraction = np.zeros(n)
 
     # --- sums up the tree, one depth at a time, deepest first ---------------------------
@@ -206,6 +210,11 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
             i_f = np.where(t, i_f, np.maximum(i_f, df[f] * max_i[f]))
             req_f = np.where(t, np.maximum(req_f, rated_primary_a[f]),
                              np.maximum(req_f, df[f] * max_req[f]))
+            # 100 %-rated device: the feeder's own need counts the continuous load at 100 %
+            # (what it passes up to its parent keeps the 125 %).
+            req_full = np.maximum((np.abs(s_node) + extra_va[f]) / kv[f], df[f] * max_i[f])
+            req_f = np.where(full[f], np.where(t, np.maximum(req_full, rated_primary_a[f]),
+                                               req_full), req_f)
             s[f], s_abs[f], req_va[f], current[f], required[f] = (
                 s_node, np.abs(s_node), r_node, i_f, req_f)
         up = idx[has_parent[idx]]

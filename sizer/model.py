@@ -195,6 +195,7 @@ class Node:
     neutral: bool | None = None   # None: decided from the loads below (see loads.py)
     nonlinear: float = 0.0        # share of the node's own load that is non-linear (0-1)
     voltage_assumed: bool = False  # 1-phase with no voltage given: line to line was taken
+    device_100_percent: bool = False  # device listed for 100 % continuous operation
     description: str = ""         # free text from the scenario, shown in reports
 
     def __post_init__(self) -> None:

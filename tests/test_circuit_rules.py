@@ -389,3 +389,17 @@ def test_solve_json_names_assumptions_and_stand_in_tables(tmp_path, capsys):
     assert "ampacity" in doc["table_status"]["stand_in"]
     assert "motor_table" in doc["table_status"]["from_memory"]
     assert "line to line at 480 V" in console and "cec profile stand-ins:" in console
+
+
+def test_device_listed_for_100_percent_drops_the_125_percent(tmp_path):
+    # NEC 210.19(A)(1) Exception / 215.2(A)(1) Exception No. 1 (CEC Rule 8-104, from
+    # memory): with an assembly listed for 100 % continuous operation, 48 A continuous
+    # needs 48 A before and after adjustment; its feeder keeps 125 % for its own device.
+    body = ('[[node]]\nid = "P"\nparent = "SRC"\nlength = "10 ft"\n'
+            + CONTINUOUS_48A.format(pin="device_100_percent = true").replace(
+                'parent = "SRC"', 'parent = "P"'))
+    for rules in ("nec", "cec"):
+        path = write_scenario(tmp_path, body, rules=rules, name=f"{rules}.toml")
+        segs = {s.id: s for s in prepare(load_scenario(path)).segments}
+        assert (segs["L"].required_ampacity_a, segs["L"].required_adjusted_a) == (48.0, 48.0)
+        assert segs["P"].required_ampacity_a == pytest.approx(60.0)
