@@ -561,7 +561,7 @@ class _Page:
         # (header, key for the script or "", numeric)
         cols = [("From", "", False), ("Run (to)", "", False), ("Kind", "", False),
                 ("Circuit", "", False), (length, "", True), ("Current A", "", True),
-                ("Device A", "", True), ("Conductor", "c", False), ("EGC", "e", False),
+                ("Device A", "", True), ("Conductor", "c", False), ("EGC or bond", "e", False),
                 ("Ampacity A", "a", True), ("Use %", "u", True), ("Own drop %", "v", True),
                 ("Path drop % linear estimate", "p", True),
                 ("Path drop % load flow", "l", True), ("Fault kA", "f", True),
