@@ -441,13 +441,11 @@ class _Page:
                                      "([economics] emission_factor; 0.4 when not given)"),
         ]
         prices = self.price_facts()
-        # the profile's stand-ins and from-memory tables, and what was assumed per run
-        from sizer.loads import circuit_notes
+        # the profile's stand-ins and from-memory tables (per-run assumptions: Verification)
         from sizer.rules.profile import table_status_line
 
         status = table_status_line(p)
-        lines = [*(getattr(p, "notes", ()) or ()), *([status] if status else []),
-                 *circuit_notes(self.prep.segments)]
+        lines = [*(getattr(p, "notes", ()) or ()), *([status] if status else [])]
         notes = "".join(f"<li>{esc(n)}</li>" for n in lines)
         return ('<section id="assumptions"><h2>Assumptions</h2><div class="columns">'
                 f"<div><h3>Rules</h3>{facts(rules)}"
@@ -561,7 +559,7 @@ class _Page:
         # (header, key for the script or "", numeric)
         cols = [("From", "", False), ("Run (to)", "", False), ("Kind", "", False),
                 ("Circuit", "", False), (length, "", True), ("Current A", "", True),
-                ("Device A", "", True), ("Conductor", "c", False), ("EGC or bond", "e", False),
+                ("Device A", "", True), ("Conductor", "c", False), ("EGC/bond", "e", False),
                 ("Ampacity A", "a", True), ("Use %", "u", True), ("Own drop %", "v", True),
                 ("Path drop % linear estimate", "p", True),
                 ("Path drop % load flow", "l", True), ("Fault kA", "f", True),
@@ -715,9 +713,13 @@ class _Page:
         if d.diagnosis:
             out.append("<h3>Diagnosis</h3><ul>"
                        + "".join(f"<li>{esc(x)}</li>" for x in d.diagnosis) + "</ul>")
-        if d.notes:
+        # what sizer assumed or looked up per run (motor full-load currents, voltages taken)
+        from sizer.loads import circuit_notes
+
+        notes = (*d.notes, *circuit_notes(self.prep.segments))
+        if notes:
             out.append("<h3>Notes</h3><ul>"
-                       + "".join(f"<li>{esc(x)}</li>" for x in d.notes) + "</ul>")
+                       + "".join(f"<li>{esc(x)}</li>" for x in notes) + "</ul>")
         out.append("</section>")
         return "".join(out)
 

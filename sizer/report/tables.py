@@ -273,7 +273,7 @@ class ScheduleRow:
     size: str
     sets: int
     conductor: str
-    egc: str                      # the EGC, or "... bonding jumper" on service conductors
+    egc: str                      # the EGC, or "bond ..." (bonding jumper) on service runs
     ampacity_a: float
     utilisation_pct: float        # design current / ampacity
     vd_pct: float                 # the run's own drop
@@ -290,7 +290,7 @@ def grounding_label(s: SegmentResult) -> str:
     """The EGC's size, or the supply-side bonding jumper's on service conductors."""
     if s.egc is not None:
         return s.egc
-    return f"{s.bonding_jumper} bonding jumper" if s.bonding_jumper else ""
+    return f"bond {s.bonding_jumper}" if s.bonding_jumper else ""
 
 
 def schedule_table(design: Design,
