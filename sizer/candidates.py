@@ -20,11 +20,21 @@ from sizer.conductors import impedance_ohm_per_m, operating_temperature_c
 from sizer.drop import drop_pct, transformer_regulation_pct
 from sizer.errors import ScenarioError
 from sizer.model import CandidateTable, Segment
-from sizer.rules.ampacity import ambient_factor, ampacity_a, grouping_factor, table_ampacity_a
+from sizer.rules.ampacity import (
+    ambient_factor,
+    ampacity_a,
+    carries_load,
+    current_carrying_conductors,
+    grouping_factor,
+    table_ampacity_a,
+    unadjusted_ampacity_a,
+)
 from sizer.rules.profile import RuleProfile
 from sizer.rules.protection import (
+    bonding_jumper_size_index,
     egc_size_index_of_sizes,
     min_parallel_ok,
+    next_size_up_allowed,
     protects,
     small_conductor_ok,
     terminal_temperature_c,
@@ -38,7 +48,8 @@ class SegmentArrays:
 
     length_m: np.ndarray
     current_a: np.ndarray
-    required_a: np.ndarray
+    required_a: np.ndarray      # before adjustment (210.19(A)(1)(a), 430.22)
+    required_adjusted_a: np.ndarray  # after adjustment (210.19(A)(1)(b))
     ocpd_a: np.ndarray
     power_factor: np.ndarray
     voltage_v: np.ndarray
@@ -55,6 +66,9 @@ class SegmentArrays:
     pin_size: np.ndarray        # -1 none
     pin_sets: np.ndarray        # -1 none
     own_limit_pct: np.ndarray
+    motor_overload: np.ndarray  # bool: motor branch, conductors protected by the overload relay
+    secondary: np.ndarray       # bool: transformer secondary conductors
+    service: np.ndarray         # bool: service conductors (bonding jumper, no EGC)
 
 
 def conductors_per_set(phases: np.ndarray, neutral: np.ndarray) -> np.ndarray:
@@ -96,7 +110,11 @@ def segment_arrays(
     phases = np.array([seg.phases for seg in segments], dtype=np.int64)
     neutral = np.array([seg.neutral for seg in segments], dtype=bool)
     conductors = conductors_per_set(phases, neutral)
-    default_grouping = np.where(phases == 1, 2, 3)
+    # NEC 310.15(E): the neutral counts where a wye circuit's load is mainly non-linear
+    default_grouping = current_carrying_conductors(
+        profile, phases, neutral, np.array([seg.nonlinear_share for seg in segments]),
+        np.array([seg.phases == 1 and not seg.line_to_neutral and seg.from_three_phase
+                  for seg in segments]))
     grouping = np.array(
         [seg.node.cable.grouping or 0 for seg in segments], dtype=np.int64
     )
@@ -105,6 +123,8 @@ def segment_arrays(
         length_m=np.array([seg.length_m for seg in segments], dtype=float),
         current_a=np.array([seg.current_a for seg in segments], dtype=float),
         required_a=np.array([seg.required_ampacity_a for seg in segments], dtype=float),
+        required_adjusted_a=np.array([seg.required_adjusted_a for seg in segments],
+                                     dtype=float),
         ocpd_a=np.array([seg.ocpd_a for seg in segments], dtype=float),
         power_factor=np.array([seg.power_factor for seg in segments], dtype=float),
         voltage_v=np.array([seg.voltage_v for seg in segments], dtype=float),
@@ -123,6 +143,13 @@ def segment_arrays(
         pin_size=pin_k,
         pin_sets=pin_s,
         own_limit_pct=np.array([kind_limit[seg.kind] for seg in segments], dtype=float),
+        motor_overload=np.array(
+            [seg.motor_branch and profile.motors is not None
+             and profile.motors.conductor_protection_by_overload for seg in segments],
+            dtype=bool),
+        secondary=np.array([seg.secondary for seg in segments], dtype=bool),
+        service=np.array([seg.service and profile.bonds_service() for seg in segments],
+                         dtype=bool),
     )
 
 
@@ -137,7 +164,12 @@ class LocalDiagnosis:
 
 
 def _grid(sa: SegmentArrays, n_sizes: int) -> tuple[np.ndarray, ...]:
-    """Index arrays of every allowed (segment, material, size, sets) combination."""
+    """Index arrays of every allowed (segment, material, size, sets) combination.
+
+    A pinned segment keeps its pinned row and, flagged apart (the last array is False),
+    the other rows of the pin's material: the smallest compliant one of them is what
+    NEC 250.122(B) measures the pin's EGC growth from.
+    """
     n = sa.length_m.shape[0]
     s_max = int(sa.max_sets.max(initial=1))
     s_max = max(s_max, int(sa.pin_sets.max(initial=1)))
@@ -147,12 +179,14 @@ def _grid(sa: SegmentArrays, n_sizes: int) -> tuple[np.ndarray, ...]:
     )
     seg, mat, size, sets = (a.ravel() for a in (seg, mat, size, sets))
     pinned = sa.pin_material[seg] >= 0
-    keep = np.where(
+    pin_row = pinned & ((mat == sa.pin_material[seg]) & (size == sa.pin_size[seg])
+                        & (sets == sa.pin_sets[seg]))
+    keep = pin_row | np.where(
         pinned,
-        (mat == sa.pin_material[seg]) & (size == sa.pin_size[seg]) & (sets == sa.pin_sets[seg]),
+        (mat == sa.pin_material[seg]) & (sets <= sa.max_sets[seg]),
         sa.allowed[seg, mat] & (sets <= sa.max_sets[seg]),
     )
-    return seg[keep], mat[keep], size[keep], sets[keep]
+    return seg[keep], mat[keep], size[keep], sets[keep], ~pinned[keep] | pin_row[keep]
 
 
 def transformer_drops_pct(segments: tuple[Segment, ...]) -> np.ndarray:
@@ -186,22 +220,28 @@ def build_candidates(
     """
     sa = segment_arrays(segments, profile, catalogue)
     n = len(segments)
-    seg, mat, size, sets = _grid(sa, len(catalogue.sizes))
+    seg, mat, size, sets, own = _grid(sa, len(catalogue.sizes))
     inst_names = sorted(set(sa.installation))
     inst_code = np.array([inst_names.index(name) for name in sa.installation], dtype=np.int64)
 
     # --- ampacity per set (code) and the thermal rating behind the temperature ----------
     # Settings vary by segment, not by row: tabulate each distinct (settings, material,
     # terminal column) over all sizes once, then look rows up in the tables.
-    amp_set, thermal_set = _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size,
-                                            len(catalogue.sizes))
+    amp_set, before_set, thermal_set = _ampacity_lookup(
+        profile, sa, inst_names, inst_code, seg, mat, size, len(catalogue.sizes))
     ampacity = amp_set * sets
     ocpd = sa.ocpd_a[seg]
 
     valid = np.isfinite(ampacity) & (ampacity > 0)
-    carries = valid & (ampacity >= sa.required_a[seg] - 1e-9)
-    protected = protects(profile, np.where(valid, ampacity, 0.0), ocpd)
-    small_ok = _by_material(mat, lambda m, mask: small_conductor_ok(
+    # NEC 210.19(A)(1)/215.2(A)(1): the two tests apart (motors: 430.22/430.24 in both).
+    carries = valid & carries_load(before_set * sets, ampacity, sa.required_a[seg],
+                                   sa.required_adjusted_a[seg])
+    motor = sa.motor_overload[seg]
+    # 240.4(G): a motor branch's conductors are protected by the overload relay; the
+    # 430.52 device may exceed their ampacity and 240.4(D) does not apply.
+    protected = motor | protects(profile, np.where(valid, ampacity, 0.0), ocpd,
+                                 next_size_up_allowed(profile, sa.secondary[seg]))
+    small_ok = motor | _by_material(mat, lambda m, mask: small_conductor_ok(
         profile, MATERIALS[m], size[mask], ocpd[mask]), dtype=bool)
     parallel_ok = min_parallel_ok(profile, size, sets)
     code_ok = carries & protected & small_ok & parallel_ok
@@ -226,13 +266,16 @@ def build_candidates(
                   sa.voltage_v[seg], sets)
     drop_ok = vd <= sa.own_limit_pct[seg] + 1e-12
 
-    pinned = sa.pin_material[seg] >= 0
-    keep = code_ok & drop_ok
+    pinned = (sa.pin_material[seg] >= 0) & own
+    keep = code_ok & drop_ok & own
     if keep_pins:
         keep |= pinned & valid
 
-    diagnosis = _diagnose(n, seg, mat, size, sets, ampacity, vd, carries & protected & small_ok
-                          & parallel_ok, pinned, code_ok, drop_ok, catalogue)
+    broken = {"ampacity": ~carries, "protection": carries & ~protected,
+              "small-conductor limit": ~small_ok, parallel_rule_name(profile): ~parallel_ok,
+              "own voltage-drop limit": ~drop_ok}
+    diagnosis = _diagnose(n, seg, mat, size, sets, ampacity, vd, code_ok & own, pinned,
+                          broken, catalogue)
 
     # --- EGC: by the device, grown with the phase conductors (NEC 250.122(B)) -----------
     # "Increased in size" is measured from the smallest compliant conductor of the same
@@ -240,9 +283,18 @@ def build_candidates(
     min_size, min_sets = _smallest_compliant(seg, mat, size, sets, code_ok,
                                              catalogue.area_mm2, n)
     pair = seg * 2 + mat
+    # cec: bonding conductor by the ampacity of the run (CEC Table 16), not the device
+    egc_key = (np.where(valid, ampacity, np.nan) if profile.egc_rule == "conductor_ampacity"
+               else ocpd)
     egc = _by_material(mat, lambda m, mask: egc_size_index_of_sizes(
-        profile, MATERIALS[m], ocpd[mask], size[mask], min_size[pair[mask]], sets[mask],
+        profile, MATERIALS[m], egc_key[mask], size[mask], min_size[pair[mask]], sets[mask],
         min_sets[pair[mask]]), dtype=np.int64)
+    # Service conductors carry no EGC: a supply-side bonding jumper per raceway instead
+    # (NEC 250.24(C), 250.102(C)), in the same column and priced the same way.
+    service = sa.service[seg]
+    if service.any() and profile.service_bonding:
+        egc[service] = _by_material(mat[service], lambda m, mask: bonding_jumper_size_index(
+            profile, MATERIALS[m], size[service][mask]), dtype=np.int64)
     egc_ok = egc >= 0
     egc = np.where(egc_ok, egc, 0)
 
@@ -266,6 +318,7 @@ def build_candidates(
         size_index=size[idx],
         sets=sets[idx],
         ampacity_a=ampacity[idx],
+        ampacity_before_a=(before_set * sets)[idx],
         temp_c=temp_c[idx],
         r_ohm=r_ohm[idx],
         x_ohm=x_ohm[idx],
@@ -294,6 +347,7 @@ def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes
     all_sizes = np.arange(n_sizes)
     code_tab = np.full((uniq_settings.shape[0] * 2 * len(terms), n_sizes), np.nan)
     thermal_tab = np.full_like(code_tab, np.nan)
+    before_tab = np.full_like(code_tab, np.nan)
     for g in np.unique(group).tolist():
         t = g % len(terms)
         m = (g // len(terms)) % 2
@@ -302,12 +356,14 @@ def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes
         term = None if terms[t] < 0 else float(terms[t])
         code_tab[g] = ampacity_a(profile, MATERIALS[m], all_sizes, float(ins), term, float(amb),
                                  int(grp), inst_name)
+        before_tab[g] = unadjusted_ampacity_a(profile, MATERIALS[m], all_sizes, float(ins),
+                                              term, inst_name)
         # The insulation column corrected for ambient and grouping: the current at which
         # the conductor reaches its rated temperature (terminals do not heat it).
         thermal_tab[g] = (table_ampacity_a(profile, MATERIALS[m], all_sizes, float(ins), inst_name)
                           * ambient_factor(profile, float(ins), float(amb), inst_name)
                           * grouping_factor(profile, int(grp)))
-    return code_tab[group, size], thermal_tab[group, size]
+    return code_tab[group, size], before_tab[group, size], thermal_tab[group, size]
 
 
 def _smallest_compliant(seg, mat, size, sets, ok, area_mm2, n):
@@ -341,8 +397,15 @@ def conductor_label(catalogue: Catalogue, material: int, size_index: int, sets: 
     return f"{lead}{catalogue.sizes[size_index]} {MATERIALS[material]}"
 
 
-def _diagnose(n, seg, mat, size, sets, ampacity, vd, code_ok, pinned, code_ok_strict,
-              drop_ok, catalogue) -> LocalDiagnosis:
+def parallel_rule_name(profile: RuleProfile) -> str:
+    """The words for the minimum size of parallel conductors, with its source."""
+    source = profile.sources.get("parallel", "")
+    clause = source.split(":")[0] if source else "the profile's rule"
+    return f"minimum size for parallel conductors ({profile.min_parallel_size}, {clause})"
+
+
+def _diagnose(n, seg, mat, size, sets, ampacity, vd, code_ok, pinned, broken,
+              catalogue) -> LocalDiagnosis:
     best_amp = np.zeros(n)
     np.maximum.at(best_amp, seg, np.where(np.isfinite(ampacity), ampacity, 0.0))
     best_drop = np.full(n, np.inf)
@@ -358,12 +421,7 @@ def _diagnose(n, seg, mat, size, sets, ampacity, vd, code_ok, pinned, code_ok_st
             labels[s] = conductor_label(catalogue, int(mat[r]), int(size[r]), int(sets[r]))
     fails = [""] * n
     for r in np.flatnonzero(pinned).tolist():
-        broken = []
-        if not code_ok_strict[r]:
-            broken.append("ampacity or protection")
-        if not drop_ok[r]:
-            broken.append("own voltage-drop limit")
-        fails[int(seg[r])] = " and ".join(broken)
+        fails[int(seg[r])] = " and ".join(name for name, bad in broken.items() if bad[r])
     return LocalDiagnosis(best_amp, best_drop, tuple(labels), tuple(fails))
 
 

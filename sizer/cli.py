@@ -52,6 +52,8 @@ def _cmd_loads(args: argparse.Namespace) -> int:
 
 def _cmd_reach(args: argparse.Namespace) -> int:
     from sizer.reach import conductor_reach
+    from sizer.rules import load_profile
+    from sizer.rules.profile import table_status_line
     from sizer.units import M_PER_FT
 
     result = conductor_reach(
@@ -61,26 +63,29 @@ def _cmd_reach(args: argparse.Namespace) -> int:
         installation=args.installation, terminal_c=args.terminals,
         conductor_temperature_c=args.conductor_temperature,
     )
-    if result.design_current_a > result.ampacity_a:
-        # A run that cannot carry its current has no reach (NEC 310.14, IEC 60364-5-52).
-        raise ScenarioError(
-            f"{result.design_current_a:.4g} A is more than this conductor carries "
-            f"({result.ampacity_a:.4g} A under {args.rules}): choose a larger conductor",
-            field="--current" if args.current is not None else "--ocpd")
+    # A run over its ampacity or unprotected has no reach worth giving: say so, exit 1
+    # (the readers have already refused values no circuit could have).
+    for line in result.warnings:
+        print(f"sizer: warning: {line}", file=sys.stderr)
+    code = 1 if result.warnings else 0
     if args.json:
         from sizer.report.export import json_text
 
         print(json_text({
             "reach_m": result.reach_m,
             "design_current_a": result.design_current_a,
+            "current_basis": result.current_basis,
             "ampacity_a": result.ampacity_a,
             "conductor_temperature_c": result.conductor_temperature_c,
             "r_ohm_per_km": result.r_ohm_per_km,
             "x_ohm_per_km": result.x_ohm_per_km,
+            "warnings": list(result.warnings),
+            "table_status": result.table_status,
         }), end="")
-        return 0
+        return code
     print(f"{args.conductor} at {result.design_current_a:.1f} A, {args.voltage:g} V "
           f"{args.phases}-phase, drop limit {args.limit:g} %:")
+    print(f"  current      {result.current_basis}")
     print(f"  reach        {result.reach_m:.1f} m ({result.reach_m / M_PER_FT:.0f} ft)")
     print(f"  ampacity     {result.ampacity_a:.0f} A ({args.rules})")
     print(f"  running at   {result.conductor_temperature_c:.1f} degC "
@@ -88,8 +93,10 @@ def _cmd_reach(args: argparse.Namespace) -> int:
     print(f"  R {result.r_ohm_per_km:.4f} ohm/km ({result.r_ohm_per_km * M_PER_FT:.4f} "
           f"ohm/kft), X {result.x_ohm_per_km:.4f} ohm/km "
           f"({result.x_ohm_per_km * M_PER_FT:.4f} ohm/kft)")
+    if line := table_status_line(load_profile(args.rules)):
+        print(f"  tables       {line}")
     print(CAUTION)
-    return 0
+    return code
 
 
 _OUTPUT_OPTIONS = ("json", "csv", "xlsx", "report")
@@ -170,6 +177,17 @@ def _prepare(args: argparse.Namespace, *, keep_pins: bool = False) -> Prepared:
     return prepare(scenario, keep_pins=keep_pins)
 
 
+def _run_notes(prep: Prepared) -> list[str]:
+    """Circuit assumptions and the profile's stand-in / from-memory tables, for the console."""
+    from sizer.loads import circuit_notes
+    from sizer.rules.profile import table_status_line
+
+    notes = list(circuit_notes(prep.segments))
+    if line := table_status_line(prep.profile):
+        notes.append(line)
+    return notes
+
+
 def _cmd_solve(args: argparse.Namespace) -> int:
     from sizer.optimize import Objective
     from sizer.report.terminal import summary
@@ -193,7 +211,7 @@ def _cmd_solve(args: argparse.Namespace) -> int:
             makers["report"] = lambda: render_report(results, progress=say)
         _write_outputs(args, prep.scenario, makers)
     print(summary(results.design, prep.scenario.title, max_rows=args.rows,
-                  written=_written(args)))
+                  written=_written(args), notes=_run_notes(prep)))
     return 0 if results.design.segments else 1
 
 
@@ -208,7 +226,7 @@ def _cmd_check(args: argparse.Namespace) -> int:
                             time_limit_s=args.time_limit)
     _write_outputs(args, prep.scenario, _design_makers(args, results))
     print(summary(results.design, prep.scenario.title, max_rows=args.rows,
-                  written=_written(args)))
+                  written=_written(args), notes=_run_notes(prep)))
     return 0 if results.status is DesignStatus.COMPLIANT else 1
 
 

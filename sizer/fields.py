@@ -179,8 +179,10 @@ FIELDS: tuple[Field, ...] = (
     _F("node", "phases", "1 or 3", r.read_phases, default_text="the parent's", bounds="1 | 3",
        attr="phases", example="1"),
     _F("node", "load", "the load: current (A), real power (W, kW, hp) or apparent power "
-       "(VA, kVA)", r.read_load, default_text="none: the sum of the loads below, or the "
-       "profile's unknown-load rule on the device", bounds="0 or more", attr="load",
+       "(VA, kVA); on a motor, its nameplate current, which does not size the circuit "
+       "(the profile's full-load current table does)", r.read_load,
+       default_text="none: the sum of the loads below, or the profile's unknown-load rule "
+       "on the device", bounds="0 or more", attr="load",
        example='"180 kW"'),
     _F("node", "power_factor", "power factor of the load", r.read_fraction,
        default=DEFAULT_POWER_FACTOR, bounds="(0, 1]", attr="power_factor",
@@ -198,6 +200,14 @@ FIELDS: tuple[Field, ...] = (
        default_text="chosen by sizer", attr="pin", example='"2x 500 kcmil Al"'),
     _F("node", "neutral", "a neutral is run with the phase conductors", r.read_bool,
        default_text="by the circuit (line-to-neutral loads need one)", attr="neutral",
+       example="true"),
+    _F("node", "device_100_percent", "the run's device and its assembly are listed for "
+       "continuous operation at 100 % of their rating: continuous loads count at 100 %",
+       r.read_bool, default=False, attr="device_100_percent", example="true"),
+    _F("node", "nonlinear", "share of the load that is non-linear (LED drivers, IT "
+       "equipment): true, false or a share; a feeder takes the share of the loads below. "
+       "Above the profile's share a 4-wire wye neutral counts as current-carrying",
+       r.read_share, default=0.0, bounds="true, false or 0 to 1", attr="nonlinear",
        example="true"),
     _F("node", "clearing_time", "time the device takes to clear a fault, for the "
        "withstand check", r.auto(r.read_time), unit="s", default_text="auto: the profile's",

@@ -193,6 +193,9 @@ class Node:
     motor: Motor | None = None
     clearing_time_s: float | None = None
     neutral: bool | None = None   # None: decided from the loads below (see loads.py)
+    nonlinear: float = 0.0        # share of the node's own load that is non-linear (0-1)
+    voltage_assumed: bool = False  # 1-phase with no voltage given: line to line was taken
+    device_100_percent: bool = False  # device listed for 100 % continuous operation
     description: str = ""         # free text from the scenario, shown in reports
 
     def __post_init__(self) -> None:
@@ -212,6 +215,8 @@ class Node:
         if self.clearing_time_s is not None:
             _check(finite_positive(self.clearing_time_s), "must be a positive time", self.id,
                    "clearing_time")
+        _check(math.isfinite(self.nonlinear) and 0 <= self.nonlinear <= 1,
+               "must be a share from 0 to 1", self.id, "nonlinear")
 
 
 @dataclass(frozen=True)
@@ -247,7 +252,7 @@ class Segment:
     voltage_v: float
     phases: int
     current_a: float           # for voltage drop and losses
-    required_ampacity_a: float  # with the continuous-load factor
+    required_ampacity_a: float  # before adjustment: with the continuous-load factor
     ocpd_a: float
     ocpd_chosen: bool          # True when sizer picked the device rating
     power_factor: float
@@ -258,6 +263,16 @@ class Segment:
     # 1-phase between a line and the neutral (120 V on 208Y/120, 277 V on 480Y/277); a
     # 1-phase segment with ``neutral`` and not this is a 3-wire circuit (two lines + N).
     line_to_neutral: bool = False
+    # The adjusted ampacity (after ambient and grouping factors) must carry this (A): the
+    # load at 100 % (NEC 210.19(A)(1)(b)), or the motor rules 430.22/430.24 where motors
+    # are below. ``required_ampacity_a`` is for the table ampacity before adjustment.
+    required_adjusted_a: float = 0.0
+    motor_branch: bool = False  # feeds one motor: conductors sized by 430.22, device by 430.52
+    motor_basis: str = ""       # where the full-load current came from, in words
+    service: bool = False       # fed from the source: service conductors, no EGC
+    secondary: bool = False     # fed from a transformer node: its secondary conductors
+    nonlinear_share: float = 0.0  # share of the demand that is non-linear (0-1)
+    from_three_phase: bool = False  # fed from a 3-phase bus (a 1-phase 3-wire run: 2 lines + N)
 
     @property
     def id(self) -> str:
@@ -294,6 +309,9 @@ class CandidateTable:
     loss_pv: np.ndarray
     egc_size_index: np.ndarray
     rejected: tuple[str, ...] = field(default=())
+    # table ampacity before adjustment (terminal-limited column, sets summed), for the
+    # first ampacity test (NEC 210.19(A)(1)(a)); empty when not built
+    ampacity_before_a: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
     def __len__(self) -> int:
         return int(self.segment.shape[0])
@@ -309,7 +327,7 @@ class SegmentResult:
     material: str
     size: str
     sets: int
-    egc: str
+    egc: str | None             # None on service conductors: they carry no EGC
     length_m: float
     current_a: float
     ampacity_a: float
@@ -327,6 +345,7 @@ class SegmentResult:
     pinned: bool = False
     loadflow_drop_pct: float | None = None
     fault_ka: float | None = None
+    bonding_jumper: str | None = None  # service conductors: supply-side bonding jumper
 
 
 @dataclass(frozen=True)

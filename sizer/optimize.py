@@ -37,7 +37,8 @@ from sizer.model import (
     Totals,
     Violation,
 )
-from sizer.rules import load_profile
+from sizer.rules import REL_TOL, load_profile
+from sizer.rules.motors import branch_device_a
 from sizer.rules.profile import RuleProfile
 from sizer.topology import Topology
 from sizer.units import conductor_label
@@ -164,6 +165,7 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
     cat = prep.catalogue
     vd = t.vd_pct[choice]
     path = path_drops_pct(prep.parent, vd, prep.fixed_drop_pct)
+    service = [seg.service and prep.profile.bonds_service() for seg in prep.segments]
     results = []
     for s, seg in enumerate(prep.segments):
         r = int(choice[s])
@@ -174,7 +176,8 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
             material=MATERIALS[int(t.material[r])],
             size=cat.sizes[int(t.size_index[r])],
             sets=int(t.sets[r]),
-            egc=cat.sizes[int(t.egc_size_index[r])],
+            egc=None if service[s] else cat.sizes[int(t.egc_size_index[r])],
+            bonding_jumper=cat.sizes[int(t.egc_size_index[r])] if service[s] else None,
             length_m=seg.length_m, current_a=seg.current_a,
             ampacity_a=float(t.ampacity_a[r]), vd_pct=float(vd[s]),
             path_vd_pct=float(path[s]), r_ohm=float(t.r_ohm[r]), x_ohm=float(t.x_ohm[r]),
@@ -378,6 +381,34 @@ def check(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",
                    violations=tuple(found))
 
 
+def motor_device_violations(profile: RuleProfile, seg: Segment) -> list[Violation]:
+    """A motor branch's given device above what the profile allows (NEC 430.52)."""
+    motors = profile.motors
+    if not seg.motor_branch or seg.ocpd_chosen or motors is None:
+        return []
+    allowed = branch_device_a(motors, profile.standard_ratings_a, seg.current_a)
+    if allowed is None or seg.ocpd_a <= allowed * (1 + REL_TOL):
+        return []
+    return [Violation(seg.id, "motor device", seg.ocpd_a, allowed,
+                      f"a {seg.ocpd_a:g} A device is above the {allowed:g} A allowed for a "
+                      f"{seg.current_a:g} A motor ({profile.sources.get('motor_device', '')})")]
+
+
+def ampacity_violations(seg: Segment, label: str, before_a: float,
+                        after_a: float) -> list[Violation]:
+    """The two ampacity tests (NEC 210.19(A)(1)(a)/(b), motors 430.22/430.24) as violations."""
+    out = []
+    if after_a * (1 + REL_TOL) < seg.required_adjusted_a:
+        out.append(Violation(seg.id, "ampacity", after_a, seg.required_adjusted_a,
+                             f"{label} carries {after_a:.0f} A after adjustment, needs "
+                             f"{seg.required_adjusted_a:.0f} A"))
+    elif before_a * (1 + REL_TOL) < seg.required_ampacity_a:
+        out.append(Violation(seg.id, "ampacity", before_a, seg.required_ampacity_a,
+                             f"{label} carries {before_a:.0f} A before adjustment, needs "
+                             f"{seg.required_ampacity_a:.0f} A (continuous loads at 125 %)"))
+    return out
+
+
 def violations(prep: Prepared, choice: np.ndarray, design: Design) -> list[Violation]:
     """Every rule the chosen rows break, re-checked from the segment data."""
     out: list[Violation] = []
@@ -385,16 +416,24 @@ def violations(prep: Prepared, choice: np.ndarray, design: Design) -> list[Viola
     p = prep.profile
     for s, (seg, res) in enumerate(zip(prep.segments, design.segments, strict=True)):
         r = int(choice[s])
-        if t.ampacity_a[r] + 1e-9 < seg.required_ampacity_a:
-            out.append(Violation(seg.id, "ampacity", float(t.ampacity_a[r]),
-                                 seg.required_ampacity_a,
-                                 f"{conductor_label(res.sets, res.size, res.material)} carries "
-                                 f"{t.ampacity_a[r]:.0f} A, needs {seg.required_ampacity_a:.0f} A"))
-        if prep.local.pinned_fails[s] and "protection" in prep.local.pinned_fails[s] and not (
-                t.ampacity_a[r] + 1e-9 < seg.required_ampacity_a):
+        label = conductor_label(res.sets, res.size, res.material)
+        out.extend(ampacity_violations(seg, label, float(t.ampacity_before_a[r]),
+                                       float(t.ampacity_a[r])))
+        fails = prep.local.pinned_fails[s]
+        out.extend(motor_device_violations(prep.profile, seg))
+        if "protection" in fails:
             out.append(Violation(seg.id, "protection", float(t.ampacity_a[r]), seg.ocpd_a,
-                                 f"a {seg.ocpd_a:.0f} A device does not protect "
-                                 f"{conductor_label(res.sets, res.size, res.material)}"))
+                                 f"a {seg.ocpd_a:.0f} A device does not protect {label}"
+                                 + (" (transformer secondary conductors: no next size up, "
+                                    "NEC 240.21(C))" if seg.secondary else "")))
+        if "small-conductor" in fails:
+            out.append(Violation(seg.id, "small conductor", seg.ocpd_a, seg.ocpd_a,
+                                 f"a {seg.ocpd_a:.0f} A device is above the small-conductor "
+                                 f"limit of {label}"))
+        if "parallel" in fails:
+            rule = next(k for k in fails.split(" and ") if "parallel" in k)
+            out.append(Violation(seg.id, "parallel size", float(res.sets), 1.0,
+                                 f"{label}: below the {rule}"))
         own = p.drop_limit_pct(seg.kind)
         if res.vd_pct > own + 1e-9:
             out.append(Violation(seg.id, f"{seg.kind} drop", res.vd_pct, own,

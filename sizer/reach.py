@@ -6,7 +6,7 @@ and so reaches further than a table at full temperature says), unless the caller
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -16,7 +16,14 @@ from sizer.drop import reach_m
 from sizer.errors import ScenarioError
 from sizer.rules import load_profile
 from sizer.rules.ampacity import ambient_factor, ampacity_a, grouping_factor, table_ampacity_a
-from sizer.rules.protection import next_standard_rating_a, terminal_temperature_c
+from sizer.rules.profile import RuleProfile, table_status
+from sizer.rules.protection import (
+    min_parallel_ok,
+    next_standard_rating_a,
+    protects,
+    small_conductor_ok,
+    terminal_temperature_c,
+)
 from sizer.units import ConductorSpec
 
 
@@ -30,6 +37,10 @@ class ReachResult:
     conductor_temperature_c: float
     r_ohm_per_km: float
     x_ohm_per_km: float
+    warnings: tuple[str, ...] = ()   # rules the run breaks: the reach is then no answer
+    current_basis: str = ""          # where the design current came from, in words
+    # the profile's stand-in and from-memory topics (``table_status``)
+    table_status: dict[str, list[str]] = field(default_factory=dict)
 
 
 def conductor_reach(
@@ -81,5 +92,34 @@ def conductor_reach(
                                profile.frequency_hz)
     reach = float(reach_m(design_a, r, x, power_factor, phases, voltage_v, limit_pct,
                           conductor.sets)[0])
+    if current_a is None:
+        basis = (f"{design_a:g} A: {100 * profile.unknown_load_factor:g} % of the "
+                 f"{device_a:g} A device, unknown load ({profile.sources['unknown_load']})")
+    else:
+        basis = f"{design_a:g} A as given"
+    warnings = reach_warnings(profile, conductor, k, design_a, amp,
+                              ocpd_a if ocpd_a is not None else None)
     return ReachResult(reach, design_a, amp, conductor_temperature_c,
-                       float(r[0]) * 1e3, float(x[0]) * 1e3)
+                       float(r[0]) * 1e3, float(x[0]) * 1e3, warnings, basis,
+                       table_status(profile))
+
+
+def reach_warnings(profile: RuleProfile, conductor: ConductorSpec, size_index: np.ndarray,
+                   design_a: float, ampacity_a: float, ocpd_a: float | None) -> tuple[str, ...]:
+    """Rules the run breaks, as sentences: over its ampacity, unprotected, parallel size."""
+    out = []
+    if design_a > ampacity_a * (1 + 1e-9):
+        out.append(f"{conductor} carries {ampacity_a:.0f} A, less than the {design_a:g} A "
+                   "design current: over its ampacity")
+    if ocpd_a is not None:
+        if not protects(profile, np.array([ampacity_a]), np.array([ocpd_a]))[0]:
+            out.append(f"a {ocpd_a:g} A device does not protect {conductor} "
+                       f"({ampacity_a:.0f} A; {profile.sources['next_size_up']})")
+        elif not small_conductor_ok(profile, conductor.material, size_index,
+                                    np.array([ocpd_a]))[0]:
+            out.append(f"a {ocpd_a:g} A device is above the small-conductor limit of "
+                       f"{conductor} ({profile.sources['small_conductors']})")
+    if not min_parallel_ok(profile, size_index, np.array([conductor.sets]))[0]:
+        out.append(f"{conductor}: below the minimum size for parallel conductors "
+                   f"({profile.min_parallel_size}, {profile.sources.get('parallel', '')})")
+    return tuple(out)

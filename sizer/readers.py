@@ -258,6 +258,21 @@ def read_percent(value: Any, text: bool = False) -> float:
     return parse_percent(_unit_text(value, "2 %")) / 100.0
 
 
+def read_share(value: Any, text: bool = False) -> float:
+    """A share of the load as a fraction in [0, 1]: true (1), false (0), 0.6 or "60 %"."""
+    if isinstance(value, bool) or (text and isinstance(value, str)
+                                   and value.strip().lower() in ("true", "false", "yes", "no")):
+        return 1.0 if read_bool(value, text) else 0.0
+    if isinstance(value, str) and "%" in value:
+        x = parse_percent(value) / 100.0
+    else:
+        x = read_number(value, text)
+    if not 0 <= x <= 1:
+        raise ScenarioError(f"must be true, false or a share from 0 to 1 (or 0 % to 100 %), "
+                            f"got {show(value)}")
+    return x
+
+
 def read_materials(value: Any, text: bool = False) -> tuple[str, ...]:
     """A list of materials (or text such as "Cu, Al")."""
     if isinstance(value, str):

@@ -71,9 +71,14 @@ class Results:
 
     def document(self, extra: dict[str, Any] | None = None) -> dict[str, Any]:
         """The JSON results document (DESIGN.md "Results")."""
+        from sizer.loads import circuit_notes
         from sizer.report.export import design_document
+        from sizer.rules.profile import table_status
 
-        return design_document(self.design, extra)
+        # Which tables are stand-ins or from memory, and what was assumed per run.
+        more = {"table_status": table_status(self.prep.profile),
+                "circuit_notes": list(circuit_notes(self.prep.segments))}
+        return design_document(self.design, {**more, **(extra or {})})
 
     @cached_property
     def schedule(self) -> pd.DataFrame:

@@ -702,6 +702,9 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 pin=v.get("conductor"), transformer=v.get("transformer"), motor=motor,
                 clearing_time_s=v.get("clearing_time", defaults["clearing_time"]),
                 neutral=v.get("neutral"), description=v.get("description", ""),
+                nonlinear=v.get("nonlinear", 0.0),
+                voltage_assumed=v.get("voltage_assumed", False),
+                device_100_percent=v.get("device_100_percent", False),
             ))
         except ScenarioError as exc:
             report.add_error(exc, node=d.id, file=d.file)
@@ -732,6 +735,8 @@ def _schedule_row(n: Node) -> dict[str, str]:
         "demand_factor": "" if n.demand_factor == 1.0 else _num(n.demand_factor),
         "conductor": str(n.pin) if n.pin else "",
         "neutral": "" if n.neutral is None else ("true" if n.neutral else "false"),
+        "nonlinear": "" if n.nonlinear == 0.0 else _num(n.nonlinear),
+        "device_100_percent": "true" if n.device_100_percent else "",
         "clearing_time": ("auto" if n.clearing_time_s is None
                           else f"{_num(n.clearing_time_s)} s"),
         "materials": ", ".join(c.materials),

@@ -380,6 +380,9 @@ def check_voltage_levels(tree: Tree, source_bus: Bus, report: Report) -> dict[st
         d.values["voltage_v"] = voltage
         d.values["phases_n"] = phases
         d.values["line_to_neutral"] = is_line_to_neutral(bus, phases, voltage)
+        # A 1-phase run on a 3-phase bus with no voltage of its own: line to line, said.
+        d.values["voltage_assumed"] = (phases == 1 and bus.phases == 3
+                                       and "voltage" not in d.given)
         tx = d.values.get("transformer")
         if tx is not None:
             if close(tx.secondary_v, voltage):

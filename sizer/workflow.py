@@ -385,7 +385,8 @@ def audit(prep: Prepared, design: Design, *, rel_tol: float = 1e-6) -> None:
                              [s.parent for s in design.segments], prep.scenario.source.id)
     own_vd = []
     pf = {seg.id: seg.power_factor for seg in prep.segments}
-    required = {seg.id: seg.required_ampacity_a for seg in prep.segments}
+    # the adjusted ampacity against the load (or the motor rule): 210.19(A)(1)(b)
+    required = {seg.id: seg.required_adjusted_a for seg in prep.segments}
     fixed = {seg.id: float(prep.fixed_drop_pct[i]) for i, seg in enumerate(prep.segments)}
     leaf = {seg.id: seg.is_leaf for seg in prep.segments}
     p = prep.profile
@@ -397,7 +398,7 @@ def audit(prep: Prepared, design: Design, *, rel_tol: float = 1e-6) -> None:
         if not math.isclose(vd, s.vd_pct, rel_tol=rel_tol, abs_tol=1e-9):
             problems.append(f"'{s.id}' drop {s.vd_pct:.6f} % but R, X and I give {vd:.6f} %")
         own_vd.append(s.vd_pct + fixed[s.id])
-        if s.ampacity_a < required[s.id] * (1 - rel_tol):
+        if not s.pinned and s.ampacity_a < required[s.id] * (1 - rel_tol):
             problems.append(f"'{s.id}' ampacity {s.ampacity_a:.1f} A below {required[s.id]:.1f} A")
         own = p.drop_limit_pct(s.kind)
         if not s.pinned and s.vd_pct > own * (1 + rel_tol):

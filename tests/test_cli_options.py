@@ -8,6 +8,7 @@ one line naming the option, exit code 2, before any work and without a warning.
 from __future__ import annotations
 
 import io
+import json
 import warnings
 from contextlib import redirect_stderr, redirect_stdout
 from pathlib import Path
@@ -58,13 +59,22 @@ def site(tmp_path: Path) -> Path:
 # --- item 6: sizer reach ---------------------------------------------------------------------
 
 
+def test_an_overloaded_conductor_is_no_answer():
+    # 5,000 A on 4 AWG used to print "0.7 m" and exit 0: now the warning says why the
+    # reach is no answer and the exit code is 1 (a rule failed), as for any run over its
+    # ampacity.
+    code, out, err = run(*REACH, "--current", "5000 A", "--json")
+    assert code == 1
+    assert "over its ampacity" in err and len(err.splitlines()) == 1
+    assert "over its ampacity" in json.loads(out)["warnings"][0]
+
+
 @pytest.mark.parametrize(("option", "value"), [
     ("--limit", "-3 %"),            # "reach -81 m"
     ("--limit", "0 %"),
     ("--limit", "150 %"),
     ("--current", "1e300 A"),       # a RuntimeWarning before
     ("--current", "-5 A"),
-    ("--current", "5000 A"),        # far above what 4 AWG carries: "0.7 m"
     ("--ambient", "-273 degC"),
     ("--ambient", "500 degC"),
     ("--insulation", "-5 degC"),

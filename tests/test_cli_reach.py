@@ -29,7 +29,9 @@ def test_json_schema_and_values(capsys):
     assert code == 0
     doc = json.loads(out)
     assert set(doc) == {"reach_m", "design_current_a", "ampacity_a", "conductor_temperature_c",
-                        "r_ohm_per_km", "x_ohm_per_km"}
+                        "r_ohm_per_km", "x_ohm_per_km", "warnings", "current_basis",
+                        "table_status"}
+    assert doc["warnings"] == []
     # NEC 310.16: 4 AWG Cu, 60 degC column = 70 A; a 50 A circuit is <= 100 A, so the
     # 110.14(C)(1)(a) terminal rule limits it to the 60 degC column.
     assert doc["ampacity_a"] == 70
@@ -84,3 +86,48 @@ def test_loads_writes_the_schedule_back_as_csv(tmp_path, capsys):
     head.write_text(head_text.replace('catalogue = "costdata/', 'catalogue = "../costdata/'),
                     encoding="utf-8")
     assert load_scenario(head).nodes == load_scenario(demo).nodes
+
+
+# --- warnings: a run over its ampacity or unprotected has no reach worth giving ---------
+
+
+def test_over_ampacity_warns_on_stderr_and_in_json_exit_1(capsys):
+    # 6 AWG Cu at 70 A: 55 A at the 60 degC terminal column (NEC Table 310.16; 110.14(C)(1):
+    # a circuit of 100 A or less), less than 70 A.
+    code = main(["reach", "--conductor", "6 AWG Cu", *BASE[3:], "--current", "70 A", "--json"])
+    captured = capsys.readouterr()
+    out, err = captured.out, captured.err
+    assert code == 1
+    doc = json.loads(out)
+    assert doc["warnings"] and "over its ampacity" in doc["warnings"][0]
+    assert "over its ampacity" in err
+
+
+def test_unprotected_by_the_device_warns(capsys):
+    # 4 AWG Cu, 70 A at 60 degC (NEC Table 310.16): a 100 A device is above the next
+    # standard rating over 70 A (NEC 240.4(B), 240.6(A)): not protected.
+    code, _, err = run(capsys, "--ocpd", "100 A")
+    assert code == 1
+    assert "a 100 A device does not protect 4 AWG Cu" in err
+
+
+def test_ocpd_says_which_rule_set_the_current(capsys):
+    # cec: CSA C22.1 Rule 8-102(2), 80 % of the 60 A device when the load is unknown: 48 A.
+    code, out, _ = run(capsys, "--ocpd", "60 A", "--rules", "cec", "--json")
+    doc = json.loads(out)
+    assert code == 0
+    assert doc["current_basis"].startswith("48 A: 80 % of the 60 A device, unknown load")
+
+
+def test_console_and_json_name_stand_in_tables(capsys):
+    code, out, _ = run(capsys, "--current", "30 A", "--rules", "cec")
+    assert code == 0 and "stand-ins: " in out and "ampacity" in out
+    code, out, _ = run(capsys, "--current", "30 A", "--rules", "cec", "--json")
+    assert "ampacity" in json.loads(out)["table_status"]["stand_in"]
+
+
+def test_parallel_below_the_minimum_names_the_rule(capsys):
+    code = main(["reach", "--conductor", "2x 4 AWG Cu", *BASE[3:], "--current", "80 A"])
+    err = capsys.readouterr().err
+    assert code == 1
+    assert "minimum size for parallel conductors (1/0 AWG, NEC 310.10(G)(1)" in err

@@ -788,7 +788,13 @@ def check_design(doc: dict[str, Any], case: dict[str, Any], valid: bool, shown: 
         assert s["ampacity_a"] >= s["current_a"] * (1 - _TOL), f"ampacity: {where}"
         assert s["ocpd_a"] >= s["current_a"] * (1 - _TOL), f"device: {where}"
         assert _TRADE_SIZE.match(s["size"]) and s["size"] in profile.sizes, f"size: {where}"
-        assert _TRADE_SIZE.match(s["egc"]), f"egc: {where}"
+        # A run fed from the source is a service: a bonding jumper, not an EGC (NEC
+        # 250.24(C)); every other run has an EGC and no jumper.
+        service = s["parent"] not in {x["id"] for x in segments}
+        if service and profile.bonds_service():
+            assert s["egc"] is None and _TRADE_SIZE.match(s["bonding_jumper"]), f"bond: {where}"
+        else:
+            assert _TRADE_SIZE.match(s["egc"]) and s["bonding_jumper"] is None, f"egc: {where}"
         assert s["material"] in ("Cu", "Al") and isinstance(s["sets"], int) and s["sets"] >= 1, \
             where
         assert s["capex"] >= 0 and s["loss_pv"] >= 0, where

@@ -14,7 +14,12 @@ from builders import write_scenario
 from sizer.cli import main
 from sizer.economics import economic_size_index
 from sizer.optimize import Objective, optimise, prepare
-from sizer.rules.protection import egc_size_index, protects
+from sizer.rules.protection import (
+    bonding_jumper_size_index,
+    egc_size_index,
+    next_size_up_allowed,
+    protects,
+)
 from sizer.scenario import load_scenario
 from sizer.workflow import frontier
 
@@ -49,12 +54,30 @@ def test_ampacity_protection_and_egc_hold(demo):
     p, cat = prep.profile, prep.catalogue
     for d in designs.values():
         for seg, res in zip(prep.segments, d.segments, strict=True):
-            assert res.ampacity_a >= seg.required_ampacity_a - 1e-9
-            assert protects(p, np.array([res.ampacity_a]), np.array([res.ocpd_a]))[0]
+            # NEC 210.19(A)(1)(b): the adjusted ampacity carries the load (motors: 430.22)
+            assert res.ampacity_a >= seg.required_adjusted_a - 1e-9
+            # NEC 240.4(G): a motor branch is protected by its overload relay; 240.21(C):
+            # transformer secondary conductors get no next size up.
+            if not seg.motor_branch:
+                assert protects(p, np.array([res.ampacity_a]), np.array([res.ocpd_a]),
+                                next_size_up_allowed(p, np.array([seg.secondary])))[0]
             phase = cat.index(res.size)
+            if res.egc is None:
+                # NEC 250.24(C): service conductors carry a bonding jumper, not an EGC
+                assert seg.service and res.bonding_jumper is not None
+                if p.service_bonding:   # nec: Table 250.102(C)(1) by the phase size
+                    jumper = bonding_jumper_size_index(p, res.material, np.array([phase]))[0]
+                    assert cat.index(res.bonding_jumper) == jumper
+                continue
             egc = cat.index(res.egc)
             # NEC 250.122(A): never larger than the phase conductors ...
             assert egc <= phase
+            if p.egc_rule == "conductor_ampacity":
+                # CEC Table 16 (from memory): by the run's ampacity, not the device
+                table = egc_size_index(p, res.material, np.array([res.ampacity_a]),
+                                       cat.area_mm2[[phase]], cat.area_mm2[[phase]])[0]
+                assert egc == min(table, phase)
+                continue
             # ... and never smaller than the table size for the device (no growth assumed).
             table = egc_size_index(p, res.material, np.array([res.ocpd_a]),
                                    cat.area_mm2[[phase]], cat.area_mm2[[phase]])[0]

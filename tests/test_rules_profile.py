@@ -111,8 +111,15 @@ def test_cec_values() -> None:
     assert p.catalogue == "awg"
     # NEC values stand in for the CEC tables, and the profile says so
     assert "STAND-IN" in p.sources["ampacity"]
-    assert "STAND-IN" in p.sources["egc"]
     assert any("STAND-IN" in note for note in p.notes)
+    # its own rules, from memory and marked so: bonding conductors by CEC Table 16 (by the
+    # conductor's ampacity), secondary conductors at 125 % (Rule 26-256), the continuous
+    # 80 % on the ampacity as installed (Rule 8-104), motor Tables 44 and 45
+    assert p.egc_rule == "conductor_ampacity" and "[M]" in p.sources["egc"]
+    assert p.egc_table[5] == (200.0, "6 AWG", "4 AWG")   # CEC Table 16 [M]
+    assert (p.secondary_rule, p.secondary_factor) == ("rated_current", 1.25)
+    assert p.continuous_after_adjustment
+    assert p.motors is not None and p.motors.three_phase.name == "CEC Table 44"
 
 
 def test_iec_values() -> None:

@@ -136,8 +136,9 @@ def _fmt(value: Any) -> Any:
 
 SCHEDULE_COLUMNS = (
     "id", "parent", "kind", "voltage_v", "phases", "length_m", "current_a", "ocpd_a",
-    "material", "size", "sets", "egc", "ampacity_a", "temp_c", "vd_pct", "path_vd_pct",
-    "loadflow_drop_pct", "fault_ka", "r_ohm", "x_ohm", "capex", "loss_kw", "loss_pv", "pinned",
+    "material", "size", "sets", "egc", "bonding_jumper", "ampacity_a", "temp_c", "vd_pct",
+    "path_vd_pct", "loadflow_drop_pct", "fault_ka", "r_ohm", "x_ohm", "capex", "loss_kw",
+    "loss_pv", "pinned",
 )
 
 

@@ -416,7 +416,9 @@ class _Page:
             ("Edition", p.edition),
             ("Voltage drop limits", f"{p.drop_feeder_pct:g} % per feeder, {p.drop_branch_pct:g} % "
                                     f"per branch circuit, {p.drop_total_pct:g} % source to load"),
-            ("Continuous loads", f"× {p.continuous_factor:g} for ampacity"),
+            ("Continuous loads", f"× {p.continuous_factor:g} for the ampacity before "
+                                 "adjustment" + (" and as installed"
+                                                 if p.continuous_after_adjustment else "")),
             ("Load unknown", f"{100 * p.unknown_load_factor:g} % of the device rating"),
             ("Motor-start dip limit", f"{p.motor_start_dip_pct:g} %"),
             ("Fault clearing time", f"{p.default_clearing_time_s:g} s unless a node gives one"),
@@ -439,7 +441,12 @@ class _Page:
                                      "([economics] emission_factor; 0.4 when not given)"),
         ]
         prices = self.price_facts()
-        notes = "".join(f"<li>{esc(n)}</li>" for n in getattr(p, "notes", ()) or ())
+        # the profile's stand-ins and from-memory tables (per-run assumptions: Verification)
+        from sizer.rules.profile import table_status_line
+
+        status = table_status_line(p)
+        lines = [*(getattr(p, "notes", ()) or ()), *([status] if status else [])]
+        notes = "".join(f"<li>{esc(n)}</li>" for n in lines)
         return ('<section id="assumptions"><h2>Assumptions</h2><div class="columns">'
                 f"<div><h3>Rules</h3>{facts(rules)}"
                 f"{f'<ul class=muted>{notes}</ul>' if notes else ''}</div>"
@@ -552,7 +559,7 @@ class _Page:
         # (header, key for the script or "", numeric)
         cols = [("From", "", False), ("Run (to)", "", False), ("Kind", "", False),
                 ("Circuit", "", False), (length, "", True), ("Current A", "", True),
-                ("Device A", "", True), ("Conductor", "c", False), ("EGC", "e", False),
+                ("Device A", "", True), ("Conductor", "c", False), ("EGC/bond", "e", False),
                 ("Ampacity A", "a", True), ("Use %", "u", True), ("Own drop %", "v", True),
                 ("Path drop % linear estimate", "p", True),
                 ("Path drop % load flow", "l", True), ("Fault kA", "f", True),
@@ -706,9 +713,13 @@ class _Page:
         if d.diagnosis:
             out.append("<h3>Diagnosis</h3><ul>"
                        + "".join(f"<li>{esc(x)}</li>" for x in d.diagnosis) + "</ul>")
-        if d.notes:
+        # what sizer assumed or looked up per run (motor full-load currents, voltages taken)
+        from sizer.loads import circuit_notes
+
+        notes = (*d.notes, *circuit_notes(self.prep.segments))
+        if notes:
             out.append("<h3>Notes</h3><ul>"
-                       + "".join(f"<li>{esc(x)}</li>" for x in d.notes) + "</ul>")
+                       + "".join(f"<li>{esc(x)}</li>" for x in notes) + "</ul>")
         out.append("</section>")
         return "".join(out)
 

@@ -273,7 +273,7 @@ class ScheduleRow:
     size: str
     sets: int
     conductor: str
-    egc: str
+    egc: str                      # the EGC, or "bond ..." (bonding jumper) on service runs
     ampacity_a: float
     utilisation_pct: float        # design current / ampacity
     vd_pct: float                 # the run's own drop
@@ -286,6 +286,13 @@ class ScheduleRow:
     pinned: bool
 
 
+def grounding_label(s: SegmentResult) -> str:
+    """The EGC's size, or the supply-side bonding jumper's on service conductors."""
+    if s.egc is not None:
+        return s.egc
+    return f"bond {s.bonding_jumper}" if s.bonding_jumper else ""
+
+
 def schedule_table(design: Design,
                    descriptions: Mapping[str, str] | None = None) -> tuple[ScheduleRow, ...]:
     """The per-segment schedule, in the design's order (parents first)."""
@@ -295,7 +302,8 @@ def schedule_table(design: Design,
             from_id=s.parent, to_id=s.id, description=text.get(s.id, ""), kind=s.kind,
             voltage_v=s.voltage_v, phases=s.phases, length_m=s.length_m,
             current_a=s.current_a, ocpd_a=s.ocpd_a, material=s.material, size=s.size,
-            sets=s.sets, conductor=segment_conductor(s), egc=s.egc, ampacity_a=s.ampacity_a,
+            sets=s.sets, conductor=segment_conductor(s), egc=grounding_label(s),
+            ampacity_a=s.ampacity_a,
             utilisation_pct=100.0 * s.current_a / s.ampacity_a if s.ampacity_a > 0 else math.nan,
             vd_pct=s.vd_pct, path_vd_pct=s.path_vd_pct, loadflow_drop_pct=s.loadflow_drop_pct,
             fault_ka=s.fault_ka, capex=s.capex, loss_kw=s.loss_kw, loss_pv=s.loss_pv,

@@ -11,13 +11,14 @@ from sizer.units import conductor_label
 
 
 def summary(design: Design, title: str, *, max_rows: int | None = 40, max_findings: int = 8,
-            written: Sequence[str | PathLike[str]] = ()) -> str:
+            written: Sequence[str | PathLike[str]] = (), notes: Sequence[str] = ()) -> str:
     """A one-screen text summary; long schedules and finding lists are cut short.
 
     ``max_rows`` None prints every run. ``written`` names the files this run wrote, so a
     cut schedule can point to them (and says how to see it all when there are none).
     Drops say which they are: the path column and the worst drop are the AC load flow's
-    when it ran (as in the report), the linear estimate's otherwise.
+    when it ran (as in the report), the linear estimate's otherwise. ``notes`` (what was
+    assumed per run, the profile's stand-in tables) come before the caution.
     """
     cur = design.currency
     lines = [f"{title}", f"status: {DesignStatus(design.status).words}"
@@ -30,16 +31,17 @@ def summary(design: Design, title: str, *, max_rows: int | None = 40, max_findin
         shown = design.segments if max_rows is None else design.segments[:max(max_rows, 0)]
         lines.append(
             f"{'segment':<14} {'kind':<7} {'length':>8} {'I A':>7} {'dev A':>6} "
-            f"{'conductor':<22} {'EGC':<10} {'Iz A':>6} {'vd %':>5} "
+            f"{'conductor':<22} {'EGC or bond':<14} {'Iz A':>6} {'vd %':>5} "
             f"{'path % LF' if by_flow else 'path % est':>10} {'capex':>10}")
         for s in shown:
             cond = conductor_label(s.sets, s.size, s.material)
             pin = "*" if s.pinned else ""
+            bond = s.egc or f"SSBJ {s.bonding_jumper}"   # service: supply-side bonding jumper
             path = (f"{s.loadflow_drop_pct:10.2f}" if by_flow and s.loadflow_drop_pct is not None
                     else f"{s.path_vd_pct:10.2f}")
             lines.append(
                 f"{s.id[:14]:<14} {s.kind:<7} {s.length_m:7.1f}m {s.current_a:7.1f} "
-                f"{s.ocpd_a:6.0f} {(cond + pin)[:22]:<22} {s.egc[:10]:<10} {s.ampacity_a:6.0f} "
+                f"{s.ocpd_a:6.0f} {(cond + pin)[:22]:<22} {bond[:14]:<14} {s.ampacity_a:6.0f} "
                 f"{s.vd_pct:5.2f} {path} {s.capex:10,.0f}")
         hidden = len(design.segments) - len(shown)
         if hidden > 0:
@@ -68,7 +70,7 @@ def summary(design: Design, title: str, *, max_rows: int | None = 40, max_findin
         where = (f"in {', '.join(str(w) for w in written)}" if written
                  else "not shown (--json writes every one)")
         lines.append(f"  ! ... {len(design.violations) - max_findings} more findings {where}")
-    for n in design.notes:
+    for n in (*design.notes, *notes):
         lines.append(f"note: {n}")
     lines.append(CAUTION)
     return "\n".join(lines)

@@ -89,6 +89,32 @@ def grouping_factor(profile: RuleProfile, conductors: object) -> float | np.ndar
     return float(factor) if factor.ndim == 0 else factor
 
 
+def current_carrying_conductors(profile: RuleProfile, phases: object, neutral: object,
+                                nonlinear_share: object, two_lines_of_wye: object = False
+                                ) -> np.ndarray:
+    """Current-carrying conductors of one circuit (one set) for the adjustment factor.
+
+    A 1-phase circuit counts 2; a 3-phase circuit its 3 lines, plus the neutral of a
+    4-wire wye circuit when more than the profile's share of its load is non-linear
+    (NEC 310.15(E)(3): "major portion", share 0.5); otherwise the neutral carries only
+    the unbalanced current and does not count (310.15(E)(1)). A 1-phase 3-wire circuit
+    of two lines and the neutral of a wye (``two_lines_of_wye``) counts 3: its neutral
+    carries about the line current (310.15(E)(2)). Profiles without a neutral rule
+    count 2 or 3.
+    """
+    ph = np.asarray(phases)
+    counts = np.where(ph == 1, 2, 3)
+    limit = profile.neutral_nonlinear_share
+    if limit is None:
+        return counts.astype(np.int64)
+    with np.errstate(invalid="ignore"):
+        with_neutral = np.asarray(neutral, dtype=bool)
+        harmonic = (ph == 3) & with_neutral & (
+            np.asarray(nonlinear_share, dtype=float) > limit)
+        shared = (ph == 1) & with_neutral & np.asarray(two_lines_of_wye, dtype=bool)
+    return (counts + harmonic + shared).astype(np.int64)
+
+
 def ampacity_a(
     profile: RuleProfile,
     material: str,
@@ -177,8 +203,23 @@ def ampacity_ok(
     after = ampacity_a(profile, material, size_index, insulation_c, terminal_c, ambient_c,
                        grouping, installation)
     need_before = current + (profile.continuous_factor - 1.0) * continuous
+    return carries_load(n_sets * before, n_sets * after, need_before, current)
+
+
+def carries_load(before_a: object, after_a: object, need_before_a: object,
+                 need_after_a: object) -> np.ndarray:
+    """The two ampacity tests of NEC 210.19(A)(1) / 215.2(A)(1), applied apart (A).
+
+    ``before_a``: the table ampacity at the terminal-limited column, no adjustment or
+    correction (``unadjusted_ampacity_a``), against ``need_before_a`` (noncontinuous +
+    125 % of continuous; motors 430.22/430.24). ``after_a``: the adjusted and corrected
+    ampacity (``ampacity_a``) against ``need_after_a`` (the load itself; motors as
+    before). All for the whole run, parallel sets summed. NaN ampacities fail.
+    """
+    before = np.asarray(before_a, dtype=float)
+    after = np.asarray(after_a, dtype=float)
     with np.errstate(invalid="ignore"):
-        ok_before = n_sets * before * (1 + REL_TOL) >= need_before
-        ok_after = n_sets * after * (1 + REL_TOL) >= current
-    return np.asarray(ok_before & ok_after)
+        ok_before = before * (1 + REL_TOL) >= np.asarray(need_before_a, dtype=float)
+        ok_after = after * (1 + REL_TOL) >= np.asarray(need_after_a, dtype=float)
+    return np.asarray(ok_before & ok_after & (after > 0))
 

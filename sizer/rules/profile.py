@@ -7,7 +7,6 @@ Every CSV opens with ``#`` lines naming its standard, table, edition and status.
 
 from __future__ import annotations
 
-import csv
 import math
 import tomllib
 from collections.abc import Mapping
@@ -21,12 +20,15 @@ from typing import Any
 import numpy as np
 
 from sizer.errors import ScenarioError, UnitError
+from sizer.rules.motors import MOTOR_RULES, MotorRules, read_flc_table, read_typical
+from sizer.rules.tables import read_csv as _read_csv
+from sizer.rules.tables import read_number as _number
 from sizer.units import MATERIALS, MM2_PER_CMIL, parse_size
 
 PROFILES: tuple[str, ...] = ("nec", "cec", "iec")
 INSTALLATIONS: tuple[str, ...] = ("conduit", "steel_conduit", "tray", "buried", "free_air")
 CATALOGUES: tuple[str, ...] = ("awg", "metric")
-EGC_RULES: tuple[str, ...] = ("device_rating", "phase_area")
+EGC_RULES: tuple[str, ...] = ("device_rating", "phase_area", "conductor_ampacity")
 DROP_KINDS: tuple[str, ...] = ("branch", "feeder", "total")
 
 _HERE = Path(__file__).parent
@@ -92,7 +94,9 @@ class RuleProfile:
     next_size_up_max_a: float | None         # None: device must not exceed the ampacity
     small_conductor_max_ocpd_a: tuple[tuple[str, str, float], ...]  # (material, size, max device A)
     # equipment grounding (protective) conductor
-    egc_rule: str                            # "device_rating" | "phase_area"
+    # "device_rating" (NEC 250.122) | "phase_area" (IEC 60364-5-54) | "conductor_ampacity"
+    # (CEC Table 16: by the ampacity of the largest ungrounded conductor, or equivalent)
+    egc_rule: str
     egc_table: tuple[tuple[float, str, str], ...]  # device_rating: (device <= A, Cu size, Al size)
     egc_table_area_mm2: tuple[tuple[float, float], ...]  # same rows: (Cu area, Al area)
     egc_proportional: bool                   # NEC 250.122(B)
@@ -104,6 +108,26 @@ class RuleProfile:
     short_circuit_final_c: tuple[tuple[float, float], ...]  # (insulation rating, final temp)
     motor_start_dip_pct: float
     _size_lookup: Mapping[str, int] = field(init=False, repr=False)
+    # the continuous factor also binds the adjusted ampacity (CEC Rule 8-104), not only
+    # the ampacity before adjustment (NEC 210.19(A)(1)(a))
+    continuous_after_adjustment: bool = False
+    # motor circuits (NEC Article 430); None: motors are ordinary loads
+    motors: MotorRules | None = None
+    # transformer secondary conductors: None (general rules), "device" (ampacity >= the
+    # device they end in, no next size up: NEC 240.21(C)) or "rated_current" (ampacity >=
+    # secondary_factor x rated secondary current)
+    secondary_rule: str | None = None
+    secondary_factor: float = 1.0
+    # service conductors: supply-side bonding jumper by the largest phase conductor per
+    # raceway, rows (largest Cu area mm2, largest Al area mm2, jumper Cu area, jumper Al
+    # area); above the last row, service_bonding_pct % of the phase area. () : an EGC as
+    # for any other run.
+    service_bonding: tuple[tuple[float, float, float, float], ...] = ()
+    service_bonding_pct: float = 12.5
+
+    # share of non-linear load from which a wye system's neutral counts as a
+    # current-carrying conductor (NEC 310.15(E)(3): "major portion"); None: never
+    neutral_nonlinear_share: float | None = None
 
     def __post_init__(self) -> None:
         lookup = {s: i for i, s in enumerate(self.sizes)}
@@ -114,6 +138,10 @@ class RuleProfile:
                                 file=self.path)
 
     # --- small helpers every caller needs -------------------------------------------
+
+    def bonds_service(self) -> bool:
+        """Whether service conductors get a bonding jumper (its table) instead of an EGC."""
+        return bool(self.service_bonding) or self.egc_rule == "conductor_ampacity"
 
     def size_index(self, size: str) -> int:
         """Index of a canonical size name in this profile's size order."""
@@ -171,6 +199,31 @@ class RuleProfile:
         allowed = ", ".join(f"{t:g} degC" for t in self.insulation_temps_c)
         return (f"insulation rated {insulation_c:g} degC is not in rule profile "
                 f"'{self.name}' (allowed: {allowed})")
+
+
+def table_status(profile: RuleProfile) -> dict[str, list[str]]:
+    """Which of the profile's tables and rules are stand-ins or (partly) from memory.
+
+    ``{"stand_in": [topic, ...], "from_memory": [topic, ...]}``, topics as in
+    ``profile.sources`` (ampacity_table, motor_table, ...), read from their source text:
+    "STAND-IN" marks a stand-in, "[M]" or "from memory" a recalled value. The console
+    and the JSON carry it; the report lists the full source texts.
+    """
+    stand_in = [t for t, text in sorted(profile.sources.items()) if "STAND-IN" in text]
+    memory = [t for t, text in sorted(profile.sources.items())
+              if t not in stand_in and ("[M]" in text or "from memory" in text.lower())]
+    return {"stand_in": stand_in, "from_memory": memory}
+
+
+def table_status_line(profile: RuleProfile) -> str:
+    """``table_status`` in one line for the console ("" when every value is corroborated)."""
+    status = table_status(profile)
+    parts = []
+    if status["stand_in"]:
+        parts.append("stand-ins: " + ", ".join(status["stand_in"]))
+    if status["from_memory"]:
+        parts.append("from memory (verify): " + ", ".join(status["from_memory"]))
+    return f"{profile.name} profile " + "; ".join(parts) if parts else ""
 
 
 def check_material(material: str) -> str:
@@ -255,7 +308,7 @@ def _problems(p: RuleProfile) -> list[str]:
             out.append(f"bad small-conductor limit {(mat, size, limit)}")
     if p.egc_rule not in EGC_RULES:
         out.append(f"egc rule must be one of {EGC_RULES}, got {p.egc_rule!r}")
-    if p.egc_rule == "device_rating":
+    if p.egc_rule in ("device_rating", "conductor_ampacity"):
         limits = [row[0] for row in p.egc_table]
         if not limits or any(b <= a for a, b in pairwise(limits)):
             out.append("EGC table must list ascending device ratings")
@@ -328,43 +381,6 @@ class _Section:
             raise self._fail(sorted(self.data)[0], "is not a known key")
 
 
-def _read_csv(path: Path) -> tuple[list[str], list[list[str]], str]:
-    """Header, rows and the ``# source:`` text of a data CSV; ScenarioError if unreadable."""
-    try:
-        text = path.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise ScenarioError(f"cannot read rule table: {exc}", file=str(path)) from None
-    source = ""
-    lines = []
-    for line in text.splitlines():
-        if line.startswith("#"):
-            body = line.lstrip("#").strip()
-            if body.lower().startswith("source:") and not source:
-                source = body[len("source:"):].strip()
-        elif line.strip():
-            lines.append(line)
-    if not source:
-        raise ScenarioError("rule table has no '# source:' line", file=str(path))
-    rows = list(csv.reader(lines))
-    if not rows:
-        raise ScenarioError("rule table is empty", file=str(path))
-    header, body_rows = rows[0], rows[1:]
-    for row in body_rows:
-        if len(row) != len(header):
-            raise ScenarioError(f"row {row} does not match header {header}", file=str(path))
-    return header, body_rows, source
-
-
-def _number(text: str, path: Path) -> float:
-    """A CSV cell as a float; an empty cell is NaN (no value in the table)."""
-    if not text.strip():
-        return math.nan
-    try:
-        return float(text)
-    except ValueError:
-        raise ScenarioError(f"not a number: {text!r}", file=str(path)) from None
-
-
 def _canonical(size: str, path: Path) -> str:
     try:
         name = parse_size(size)
@@ -431,8 +447,9 @@ def _read_egc(
     path: Path, sizes: tuple[str, ...], area: np.ndarray
 ) -> tuple[tuple[tuple[float, str, str], ...], tuple[tuple[float, float], ...], str]:
     header, rows, source = _read_csv(path)
-    if header != ["ocpd_max_a", "Cu", "Al"]:
-        raise ScenarioError("EGC table needs columns ocpd_max_a,Cu,Al", file=str(path))
+    if header not in (["ocpd_max_a", "Cu", "Al"], ["ampacity_max_a", "Cu", "Al"]):
+        raise ScenarioError("EGC table needs columns ocpd_max_a,Cu,Al (or ampacity_max_a,Cu,Al)",
+                            file=str(path))
     table = tuple((_number(r[0], path), _canonical(r[1], path), _canonical(r[2], path))
                   for r in rows)
     areas = tuple((_size_area_mm2(cu, sizes, area, path), _size_area_mm2(al, sizes, area, path))
@@ -481,6 +498,7 @@ def read_profile(path: str | Path) -> RuleProfile:
     unknown_load_factor = dc.take("unknown_load_factor", float)
     sources["unknown_load"] = dc.take("unknown_load_source", str)
     continuous_factor = dc.take("continuous_factor", float)
+    continuous_after = dc.take("continuous_after_adjustment", bool, False)
     sources["continuous"] = dc.take("continuous_source", str)
     dc.finish()
 
@@ -533,7 +551,7 @@ def read_profile(path: str | Path) -> RuleProfile:
     egc_table: tuple[tuple[float, str, str], ...] = ()
     egc_areas: tuple[tuple[float, float], ...] = ()
     phase_bands: tuple[tuple[float, ...], ...] = ()
-    if egc_rule == "device_rating":
+    if egc_rule in ("device_rating", "conductor_ampacity"):
         egc_table, egc_areas, sources["egc_table"] = _read_egc(
             here / egc.take("table", str), sizes, area)
     elif egc_rule == "phase_area":
@@ -556,6 +574,8 @@ def read_profile(path: str | Path) -> RuleProfile:
     dip = ms.take("max_dip_pct", float)
     sources["motor_start"] = ms.take("source", str)
     ms.finish()
+
+    extra = _read_circuit_rules(top, here, sizes, area, sources)
     top.finish()
 
     area.flags.writeable = False
@@ -580,8 +600,63 @@ def read_profile(path: str | Path) -> RuleProfile:
         egc_phase_bands=tuple((b[0], b[1], b[2]) for b in phase_bands),
         min_parallel_size=min_parallel, default_clearing_time_s=clearing,
         short_circuit_final_c=tuple((b[0], b[1]) for b in finals),
-        motor_start_dip_pct=dip,
+        motor_start_dip_pct=dip, continuous_after_adjustment=continuous_after, **extra,
     )
+
+
+def _read_circuit_rules(top: _Section, here: Path, sizes: tuple[str, ...], area: np.ndarray,
+                        sources: dict[str, str]) -> dict[str, Any]:
+    """The optional sections [motors], [transformer_secondary], [service], [neutral]."""
+    out: dict[str, Any] = {}
+    if (mo := top.optional_sub("motors")) is not None:
+        rule = mo.take("rule", str)
+        if rule not in MOTOR_RULES:
+            raise mo._fail("rule", f"must be one of {', '.join(MOTOR_RULES)}")
+        three = single = None
+        if (name := mo.take("three_phase_table", str, None)) is not None:
+            three = read_flc_table(here / name, mo.take("three_phase_name", str))
+        if (name := mo.take("single_phase_table", str, None)) is not None:
+            single = read_flc_table(here / name, mo.take("single_phase_name", str))
+        columns = _bands(mo.take("voltage_columns", list, []), 3, "motor voltage columns",
+                         mo.file)
+        device_max = mo.take("branch_device_max_pct", float, None)
+        out["motors"] = MotorRules(
+            rule=rule, three_phase=three, single_phase=single,
+            voltage_columns=tuple((c[0], c[1], c[2]) for c in columns),
+            typical=read_typical(here / mo.take("typical_table", str)),
+            branch_factor=mo.take("branch_factor", float),
+            branch_device_max_pct=device_max,
+            branch_device_next_size_up=mo.take("branch_device_next_size_up", bool, False),
+            conductor_protection_by_overload=mo.take("conductor_protection_by_overload", bool,
+                                                     False))
+        for key in ("table_source", "typical_source", "branch_source", "device_source"):
+            sources[f"motor_{key.removesuffix('_source')}"] = mo.take(key, str, "")
+        mo.finish()
+    if (sec := top.optional_sub("transformer_secondary")) is not None:
+        rule = sec.take("rule", str)
+        if rule not in ("device", "rated_current"):
+            raise sec._fail("rule", "must be device or rated_current")
+        out["secondary_rule"] = rule
+        out["secondary_factor"] = sec.take("factor", float, 1.0)
+        sources["transformer_secondary"] = sec.take("source", str)
+        sec.finish()
+    if (svc := top.optional_sub("service")) is not None:
+        path = here / svc.take("bonding_table", str)
+        header, rows, sources["service_bonding_table"] = _read_csv(path)
+        if header != ["phase_cu_max", "phase_al_max", "Cu", "Al"]:
+            raise ScenarioError("bonding table needs columns phase_cu_max,phase_al_max,Cu,Al",
+                                file=str(path))
+        out["service_bonding"] = tuple(
+            tuple(_size_area_mm2(_canonical(c, path), sizes, area, path) for c in r)
+            for r in rows)
+        out["service_bonding_pct"] = svc.take("above_table_pct", float)
+        sources["service_bonding"] = svc.take("source", str)
+        svc.finish()
+    if (neu := top.optional_sub("neutral")) is not None:
+        out["neutral_nonlinear_share"] = neu.take("nonlinear_share", float)
+        sources["neutral_counting"] = neu.take("source", str)
+        neu.finish()
+    return out
 
 
 @cache

@@ -27,13 +27,16 @@ def next_standard_rating_a(profile: RuleProfile, current_a: object) -> np.ndarra
     return np.where((pos < len(ratings)) & ~np.isnan(current), out, np.nan)
 
 
-def protects(profile: RuleProfile, ampacity_a: object, ocpd_a: object) -> np.ndarray:
+def protects(profile: RuleProfile, ampacity_a: object, ocpd_a: object,
+             next_size_up: object = True) -> np.ndarray:
     """Whether a device rated ``ocpd_a`` protects conductors of total ``ampacity_a`` (A).
 
     The rating may not exceed the ampacity, except that (NEC 240.4(B)) where the profile
     allows it, a device up to the next standard rating above the ampacity is allowed
     when that rating is at most ``next_size_up_max_a`` (800 A); above that (240.4(C))
     the ampacity must be at least the rating. Pass the ampacity of all parallel sets.
+    ``next_size_up`` False (per row) withholds 240.4(B): transformer secondary
+    conductors, NEC 240.21(C) (see ``next_size_up_allowed``).
     """
     amp = np.asarray(ampacity_a, dtype=float)
     ocpd = np.asarray(ocpd_a, dtype=float)
@@ -42,8 +45,41 @@ def protects(profile: RuleProfile, ampacity_a: object, ocpd_a: object) -> np.nda
         if profile.next_size_up_max_a is not None:
             nxt = next_standard_rating_a(profile, amp)
             allowed = nxt <= profile.next_size_up_max_a * (1 + REL_TOL)
-            ok |= (ocpd > 0) & allowed & (ocpd <= nxt * (1 + REL_TOL))
+            ok |= (np.asarray(next_size_up, dtype=bool) & (ocpd > 0) & allowed
+                   & (ocpd <= nxt * (1 + REL_TOL)))
     return np.asarray(ok)
+
+
+def next_size_up_allowed(profile: RuleProfile, secondary: object) -> np.ndarray:
+    """Whether 240.4(B) may apply: not on transformer secondary conductors (240.21(C))."""
+    sec = np.asarray(secondary, dtype=bool)
+    return ~sec if profile.secondary_rule == "device" else np.ones(sec.shape, dtype=bool)
+
+
+def bonding_jumper_size_index(profile: RuleProfile, material: str,
+                              phase_size_index: object) -> np.ndarray:
+    """Size index of the supply-side bonding jumper of service conductors, per raceway.
+
+    NEC 250.102(C)(1): by the largest ungrounded conductor in the raceway (one phase
+    conductor of one parallel set, 250.102(C)(2)), from the profile's table; above its
+    last row, ``service_bonding_pct`` (12.5 %) of that conductor's area. Same material
+    as the phase conductors, never larger than them. NO_SIZE where the profile has no
+    such table or the size is invalid.
+    """
+    check_material(material)
+    phase, ok = profile.indices(phase_size_index)
+    area = profile.size_area_mm2
+    if not profile.service_bonding:
+        return np.full(phase.shape, NO_SIZE, dtype=np.int64)
+    col = 0 if material == "Cu" else 1
+    tops = np.asarray([row[col] for row in profile.service_bonding])
+    jumper = np.asarray([row[2 + col] for row in profile.service_bonding])
+    row = np.searchsorted(tops, area[phase] * (1 - 1e-9), side="left")
+    needed = np.where(row < tops.size, jumper[np.minimum(row, tops.size - 1)],
+                      profile.service_bonding_pct / 100.0 * area[phase])
+    pick = np.searchsorted(area, needed * (1 - 1e-9), side="left")
+    pick = np.minimum(pick, phase)
+    return np.where(ok & (pick < area.size), pick, NO_SIZE).astype(np.int64)
 
 
 def small_conductor_ok(
@@ -129,6 +165,8 @@ def egc_size_index(
     phase circular-mil areas (``sets`` × phase over ``min_sets`` × minimum; Chapter 9
     Table 8 areas, exact ratio) rounded up to the next size.
     phase_area rule (iec): IEC 60364-5-54 Table 54.2 from the phase size (same material).
+    conductor_ampacity rule (cec): CEC Table 16 by the ampacity of the run's ungrounded
+    conductors (parallel sets as their equivalent): pass that ampacity as ``ocpd_a``.
     Either way never larger than one phase conductor (250.122(A)). The EGC is of the
     same ``material`` as the phase conductors; ``min_sets`` defaults to ``sets``.
     Returns NO_SIZE (-1) where the device rating is outside the table or an area matches
