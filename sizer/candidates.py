@@ -175,13 +175,18 @@ def build_candidates(
     profile: RuleProfile,
     catalogue: Catalogue,
     prices: PriceList,
-    loss_pv_per_w: float,
+    loss_pv_per_w: float | np.ndarray,
     *,
     keep_pins: bool = False,
+    loss_a2: np.ndarray | None = None,
 ) -> tuple[CandidateTable, LocalDiagnosis]:
     """Every compliant candidate of every segment, and what the rejected rows could reach.
 
-    With ``keep_pins`` a pinned row stays in the table even when it breaks a
+    Ampacity, protection and drop use each segment's sizing current; the loss columns use
+    ``loss_a2`` (per segment: Σ I² of its current-carrying conductors at the operating
+    peak, A², from ``sizer.operating``) when given, else the sizing current on every
+    conductor. ``loss_pv_per_w`` is F (money per W of peak loss): one value, or one per
+    segment. With ``keep_pins`` a pinned row stays in the table even when it breaks a
     segment-local rule (``sizer check`` reports it as a violation).
     """
     sa = segment_arrays(segments, profile, catalogue)
@@ -252,9 +257,10 @@ def build_candidates(
 
     r_ohm = r_m * length / sets
     x_ohm = x_m * length / sets
-    loss_factor = np.where(sa.phases[seg] == 1, 2.0, 3.0)
-    loss_w = loss_factor * current**2 * r_ohm
-    loss_pv = loss_w * loss_pv_per_w
+    if loss_a2 is None:
+        loss_a2 = np.where(sa.phases == 1, 2.0, 3.0) * sa.current_a ** 2
+    loss_w = np.asarray(loss_a2, dtype=float)[seg] * r_ohm
+    loss_pv = loss_w * _per_row(loss_pv_per_w, seg)
 
     idx = np.flatnonzero(keep)
     counts = np.bincount(seg[idx], minlength=n)
@@ -276,6 +282,12 @@ def build_candidates(
         egc_size_index=egc[idx],
     )
     return table, diagnosis
+
+
+def _per_row(per_segment: float | np.ndarray, seg: np.ndarray) -> np.ndarray | float:
+    """A per-segment value spread over rows (a single value stays as it is)."""
+    arr = np.asarray(per_segment, dtype=float)
+    return float(arr) if arr.ndim == 0 else arr[seg]
 
 
 def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes):
@@ -372,7 +384,7 @@ def reprice(
     segments: tuple[Segment, ...],
     catalogue: Catalogue,
     prices: PriceList,
-    loss_pv_per_w: float,
+    loss_pv_per_w: float | np.ndarray,
 ) -> CandidateTable:
     """The same rows with ``capex`` and ``loss_pv`` for new prices and a new F (money per W).
 
@@ -391,5 +403,5 @@ def reprice(
     length = np.array([s.length_m for s in segments], dtype=float)[seg]
     capex = installed_cost(prices, length, conductors[seg], table.material, table.size_index,
                            table.sets, table.egc_size_index)
-    loss_pv = table.loss_w * loss_pv_per_w
+    loss_pv = table.loss_w * _per_row(loss_pv_per_w, seg)
     return replace(table, capex=capex, loss_pv=loss_pv)

@@ -43,6 +43,7 @@ class Economics:
     hours_per_year: float = 8760.0
     # Grid emission factor for the CO2 column; 0.4 kg/kWh is a round mid-range grid value.
     emission_kg_per_kwh: float = 0.4
+    loss_load_method: str = "moments"   # one of LOSS_LOAD_METHODS (sizer.operating)
 
     def __post_init__(self) -> None:
         _check(self.energy_price_per_kwh >= 0, "must not be negative", None, "energy_price")
@@ -62,6 +63,9 @@ class Economics:
                    "loss_load_factor")
         _check(0 < self.hours_per_year <= 8784, "must be between 0 and 8784 h", None, "hours")
         _check(self.emission_kg_per_kwh >= 0, "must not be negative", None, "emission_factor")
+        _check(self.loss_load_method in LOSS_LOAD_METHODS,
+               "must be one of " + ", ".join(f'"{m}"' for m in LOSS_LOAD_METHODS), None,
+               "loss_load_method")
 
 
 @dataclass(frozen=True)
@@ -153,6 +157,39 @@ class CableSettings:
         _check(self.max_sets >= 1, "must be at least 1", None, "max_sets")
 
 
+# How a run's loss-load factor is found (see sizer.operating): from the mean and spread of
+# the loads below it ("moments"), or Buller-Woodrow on the run's own load factor.
+LOSS_LOAD_METHODS = ("moments", "buller-woodrow")
+
+
+@dataclass(frozen=True)
+class Operating:
+    """How a node's load runs, for losses only (None: the category's or parent's default).
+
+    Sizing never reads these: ampacity, protection and drop use the code's sizing current.
+    """
+
+    category: str | None = None          # a row of sizer/operating_profiles.csv
+    utilisation: float | None = None     # peak operating current / the declared load
+    load_factor: float | None = None     # mean / peak operating current
+    loss_load_factor: float | None = None  # mean square / peak² of the operating current
+    peak_coincidence: float | None = None  # current at the building's peak / own peak
+    coincidence: float | None = None     # feeders: operating peak / sum of the peaks below
+    load_growth: float | None = None     # fraction per year, for this node and below
+
+    def __post_init__(self) -> None:
+        for name in ("utilisation", "load_factor", "loss_load_factor", "peak_coincidence",
+                     "coincidence"):
+            value = getattr(self, name)
+            if value is not None:
+                top = 1.0 if name != "utilisation" else 2.0
+                _check(math.isfinite(value) and 0 < value <= top,
+                       f"must be in (0, {top:g}]", None, name)
+        if self.load_growth is not None:
+            _check(math.isfinite(self.load_growth) and -0.5 < self.load_growth < 1.0,
+                   "must be between -50 % and 100 %", None, "load_growth")
+
+
 @dataclass(frozen=True)
 class Source:
     """The service or supply transformer secondary at the root of the tree."""
@@ -194,6 +231,7 @@ class Node:
     clearing_time_s: float | None = None
     neutral: bool | None = None   # None: decided from the loads below (see loads.py)
     description: str = ""         # free text from the scenario, shown in reports
+    operating: Operating = field(default_factory=Operating)  # how the load runs (losses)
 
     def __post_init__(self) -> None:
         # The dataclass checks its own fields; whole-tree checks live in sizer.validation.
@@ -327,6 +365,9 @@ class SegmentResult:
     pinned: bool = False
     loadflow_drop_pct: float | None = None
     fault_ka: float | None = None
+    operating_a: float = 0.0          # peak operating current used for losses
+    loss_kwh_per_year: float = 0.0    # first year, from the run's own loss-load factor
+    loss_cost_per_year: float = 0.0   # first year: energy + demand charge at the building peak
 
 
 @dataclass(frozen=True)

@@ -37,6 +37,7 @@ from sizer.model import (
     Totals,
     Violation,
 )
+from sizer.operating import RunProfiles, loss_current_squared, run_profiles
 from sizer.rules import load_profile
 from sizer.rules.profile import RuleProfile
 from sizer.topology import Topology
@@ -67,6 +68,7 @@ class Prepared:
     fixed_drop_pct: np.ndarray
     topology: Topology
     leaf_limit_pct: np.ndarray
+    runs: RunProfiles            # operating peaks and loss profiles (sizer.operating)
 
     @property
     def parent(self) -> np.ndarray:
@@ -114,13 +116,15 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
     segments = design_segments(scenario, profile)
     price_list = prices if prices is not None else price_list_for(scenario, catalogue)
     econ = economic_params(scenario)
+    runs = run_profiles(scenario, segments, econ)
     table, local = build_candidates(
-        segments, profile, catalogue, price_list, econ.loss_pv_per_w, keep_pins=keep_pins
+        segments, profile, catalogue, price_list, runs.loss_pv_per_w(econ),
+        keep_pins=keep_pins, loss_a2=loss_current_squared(segments, runs),
     )
     topology = Topology(np.array([s.parent_index for s in segments], dtype=np.int64))
     limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)
     return Prepared(scenario, profile, catalogue, price_list, econ, segments, table, local,
-                    transformer_drops_pct(segments), topology, limit)
+                    transformer_drops_pct(segments), topology, limit, runs)
 
 
 def objective_costs(table: CandidateTable, objective: Objective,
@@ -164,6 +168,9 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
     cat = prep.catalogue
     vd = t.vd_pct[choice]
     path = path_drops_pct(prep.parent, vd, prep.fixed_drop_pct)
+    loss_w = t.loss_w[choice]
+    kwh = loss_w * prep.runs.kwh_per_w(prep.economics)
+    cost_year = loss_w * prep.runs.annual_cost_per_w(prep.economics)
     results = []
     for s, seg in enumerate(prep.segments):
         r = int(choice[s])
@@ -181,12 +188,13 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
             ocpd_a=seg.ocpd_a, capex=float(t.capex[r]), loss_kw=float(t.loss_w[r]) / 1e3,
             loss_pv=float(t.loss_pv[r]), temp_c=float(t.temp_c[r]),
             voltage_v=seg.voltage_v, phases=seg.phases, pinned=seg.node.pin is not None,
+            operating_a=float(prep.runs.operating_a[s]), loss_kwh_per_year=float(kwh[s]),
+            loss_cost_per_year=float(cost_year[s]),
         ))
-    loss_w = float(t.loss_w[choice].sum())
     totals = Totals(
         capex=float(t.capex[choice].sum()),
         loss_pv=float(t.loss_pv[choice].sum()),
-        loss_kwh_per_year=float(prep.economics.annual_loss_kwh(loss_w)),
+        loss_kwh_per_year=float(kwh.sum()),
     )
     return Design(
         status=status, objective=objective, rules=prep.profile.name,

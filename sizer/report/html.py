@@ -299,7 +299,7 @@ class _Page:
                  f"upfront + losses over {self.econ.years:g} years, today's money",
                  key="lifecycle"),
             card("Losses", f"{tb.money(t.loss_kwh_per_year)} kWh/yr",
-                 f"{tb.money(tb.peak_loss_w(d) * self.econ.annual_cost_per_w)} {self.cur} "
+                 f"{tb.money(tb.annual_loss_cost(d))} {self.cur} "
                  "in the first year", key="losses"),
             card("Worst voltage drop", pct(worst),
                  f"{'AC load flow' if worst_lf is not None else 'linear estimate'}, "
@@ -429,12 +429,14 @@ class _Page:
             ("Discount rate", f"{100 * e.discount:g} % a year"),
             ("Load growth", f"{100 * e.load_growth:g} % a year"),
             ("Lifetime", f"{e.years:g} years"),
-            ("Load factor", f"{se.load_factor:g}"),
+            ("Load factor", f"{se.load_factor:g} (loads with no category)"),
             ("Loss load factor", f"{e.theta:.3f} "
-                                 + ("(given)" if given_llf else "(0.3 LF + 0.7 LF²)")),
+                                 + ("(given)" if given_llf else "(0.3 LF + 0.7 LF²)")
+                                 + "; each run has its own, see below"),
             ("Hours per year", f"{e.hours_per_year:g} h"),
             ("Present value of 1 W of peak loss",
-             f"{e.loss_pv_per_w:.3f} {self.cur} (IEC 60287-3-2)"),
+             f"{e.loss_pv_per_w:.3f} {self.cur} (IEC 60287-3-2) for a run that peaks with "
+             "the building at the load factor above; each run's own below"),
             ("Grid emission factor", f"{se.emission_kg_per_kwh:g} kg CO₂/kWh "
                                      "([economics] emission_factor; 0.4 when not given)"),
         ]
@@ -444,7 +446,34 @@ class _Page:
                 f"<div><h3>Rules</h3>{facts(rules)}"
                 f"{f'<ul class=muted>{notes}</ul>' if notes else ''}</div>"
                 f"<div><h3>Economics</h3>{facts(econ)}</div>"
-                f"<div><h3>Prices</h3>{facts(prices)}</div></div></section>")
+                f"<div><h3>Prices</h3>{facts(prices)}</div></div>"
+                f"{self.operation_block()}</section>")
+
+    def operation_block(self) -> str:
+        """How the loads run: the operating profiles behind the losses."""
+        rows = tb.profiles_table(self.prep)
+        method = self.scenario.economics.loss_load_method
+        how = ("each run's loss-load factor from the mean and spread of the loads below it "
+               "(spreads added as fully correlated, the upper bound)" if method == "moments"
+               else "each run's loss-load factor from its own load factor, 0.3 LF + 0.7 LF² "
+                    "(Buller-Woodrow)")
+        body = table(
+            ["Load category", "Loads", "Overridden", "Utilisation", "Load factor",
+             "Full-load hours", "Loss-load factor", "Peak coincidence", "Source"],
+            [(r.category.replace("_", " "), r.loads, r.overridden,
+              f"{100 * r.utilisation:.0f} %", f"{r.load_factor:.2f}",
+              f"{r.full_load_hours:,.0f} h", f"{r.loss_load_factor:.3f}",
+              f"{r.peak_coincidence:.2f}", r.source) for r in rows],
+            numeric=[False, True, True, True, True, True, True, True, False])
+        return ("<h3>How the loads run (losses only)</h3>"
+                "<p class=muted>Ampacity, protection and voltage drop use the code's sizing "
+                "currents; losses use each load's operating peak (utilisation × its declared "
+                "load, or × the device rating when no load is given) and profile. Feeders: "
+                "the phasor sum of the operating peaks below × the coincidence factor (the "
+                f"demand factor unless given); {how}. The demand charge falls on each run's "
+                "loss at the building's peak (peak coincidence squared). Category defaults "
+                "are common practice or from memory, marked in the source column.</p>"
+                + body)
 
     def price_facts(self) -> list[tuple[str, str]]:
         """The price list, its currency, date and metal prices."""
