@@ -172,6 +172,7 @@ class Operating:
     category: str | None = None          # a row of sizer/operating_profiles.csv
     utilisation: float | None = None     # peak operating current / the declared load
     load_factor: float | None = None     # mean / peak operating current
+    full_load_hours: float | None = None   # instead of load_factor: h / hours per year
     loss_load_factor: float | None = None  # mean square / peak² of the operating current
     peak_coincidence: float | None = None  # current at the building's peak / own peak
     coincidence: float | None = None     # feeders: operating peak / sum of the peaks below
@@ -182,9 +183,18 @@ class Operating:
                      "coincidence"):
             value = getattr(self, name)
             if value is not None:
-                top = 1.0 if name != "utilisation" else 2.0
-                _check(math.isfinite(value) and 0 < value <= top,
-                       f"must be in (0, {top:g}]", None, name)
+                _check(math.isfinite(value) and 0 < value <= 1, "must be in (0, 1]", None,
+                       name)
+        _check(self.load_factor is None or self.full_load_hours is None,
+               "give load_factor or full_load_hours, not both", None, "full_load_hours")
+        if self.full_load_hours is not None:
+            _check(math.isfinite(self.full_load_hours) and 0 < self.full_load_hours <= 8784,
+                   "must be above 0 h and at most 8784 h", None, "full_load_hours")
+        if self.load_factor is not None and self.loss_load_factor is not None:
+            lf = self.load_factor
+            _check(lf * lf * (1 - 1e-9) <= self.loss_load_factor <= lf * (1 + 1e-9),
+                   f"{self.loss_load_factor:g} is impossible with load_factor {lf:g}: any "
+                   f"load curve has LF² ≤ loss load factor ≤ LF", None, "loss_load_factor")
         if self.load_growth is not None:
             _check(math.isfinite(self.load_growth) and -0.5 < self.load_growth < 1.0,
                    "must be between -50 % and 100 %", None, "load_growth")

@@ -148,7 +148,9 @@ def _leaf_values(
                                 field="category")
         cats.append(name)
         util[i] = op.utilisation if op.utilisation is not None else prof.utilisation
-        given_lf = op.load_factor if op.load_factor is not None else prof.load_factor
+        given_lf = (op.load_factor if op.load_factor is not None
+                    else min(op.full_load_hours / econ.hours_per_year, 1.0)
+                    if op.full_load_hours is not None else prof.load_factor)
         if given_lf is None:
             # The general row: the scenario's own load factor, and its loss-load factor
             # when [economics] gives one.

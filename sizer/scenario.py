@@ -57,6 +57,7 @@ from sizer.model import (
     Economics,
     Motor,
     Node,
+    Operating,
     Prices,
     Scenario,
     Source,
@@ -692,10 +693,17 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 pin=v.get("conductor"), transformer=v.get("transformer"), motor=motor,
                 clearing_time_s=v.get("clearing_time", defaults["clearing_time"]),
                 neutral=v.get("neutral"), description=v.get("description", ""),
+                operating=Operating(**{
+                    name: v.get(key, defaults.get(key)) for key, name in _OPERATING_KEYS}),
             ))
         except ScenarioError as exc:
             report.add_error(exc, node=d.id, file=d.file)
     return tuple(nodes)
+
+
+# Node keys of how the load runs (sizer.operating) → Operating attributes.
+_OPERATING_KEYS = tuple((f.name, f.attr) for f in fields.in_table("node")
+                        if f.attr in {x.name for x in dataclasses.fields(Operating)})
 
 
 # --- writing a schedule -----------------------------------------------------------------------
@@ -731,6 +739,12 @@ def _schedule_row(n: Node) -> dict[str, str]:
         "grouping": "auto" if c.grouping is None else str(c.grouping),
         "max_sets": str(c.max_sets),
     }
+    op = n.operating
+    for key, name in _OPERATING_KEYS:
+        value = getattr(op, name)
+        row[key] = ("" if value is None else value if isinstance(value, str)
+                    else f"{_num(value)} h" if key == "full_load_hours"
+                    else f"{_num(100 * value)} %" if key == "load_growth" else _num(value))
     if (t := n.transformer) is not None:
         row |= {"transformer.rating": f"{_num(t.rating_va)} VA",
                 "transformer.secondary": f"{_num(t.secondary_v)} V",
