@@ -360,7 +360,7 @@ def money_reader(currency: str, per: str, alt_per: str = "") -> Reader:
 
 def read_category(value: Any, text: bool = False) -> str:
     """A load category of ``sizer/operating_profiles.csv`` (how the load runs, for losses)."""
-    from sizer.operating import categories   # the data file's rows; imported late (data)
+    from sizer.operating import categories  # the data file's rows; imported late (data)
 
     name = read_text(value, text)
     known = categories()

@@ -21,7 +21,7 @@ from hypothesis import strategies as st
 
 from sizer.cli import main
 from sizer.economics import EconomicParams
-from sizer.operating import RunProfiles, load_profiles, run_profiles
+from sizer.operating import RunProfiles, load_profiles
 from sizer.optimize import Objective, optimise, prepare
 from sizer.scenario import load_scenario
 
