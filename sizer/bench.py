@@ -180,8 +180,8 @@ def measure(n_segments: int, repeats: int = 3, milp_limit_s: float = 60.0,
     from sizer.engines import solve
     from sizer.loads import design_segments
     from sizer.model import DesignStatus
-    from sizer.operating import loss_current_squared
     from sizer.optimize import Objective, build_problem, design_from_choice, prepare
+    from sizer.phases import loss_current_squared_by_phase
     from sizer.report.export import design_document, json_text, schedule_csv
     from sizer.rules import load_profile
     from sizer.scenario import load_scenario
@@ -201,7 +201,8 @@ def measure(n_segments: int, repeats: int = 3, milp_limit_s: float = 60.0,
     res.stages_s["candidates"], _ = _time(
         lambda: build_candidates(segments, profile, catalogue, prep.prices,
                                  prep.runs.loss_pv_per_w(prep.economics),
-                                 loss_a2=loss_current_squared(segments, prep.runs)), repeats)
+                                 loss_a2=loss_current_squared_by_phase(
+                                     prep.segments, prep.runs, prep.phases)), repeats)
     res.candidates = len(prep.table)
     problem = build_problem(prep, Objective.LIFECYCLE)
     res.stages_s["engine"], sol = _time(lambda: solve(problem, engine="tree"), repeats)

@@ -262,6 +262,13 @@ FIELDS: tuple[Field, ...] = (
     _F("node", "load_growth", "yearly growth of the loads at and below this node, for "
        "losses", r.read_percent, unit="%", default_text="[economics] load_growth",
        attr="load_growth", example='"3 %"'),
+    _F("node", "phase", "the phase (line to neutral) or pair (line to line) a single-phase "
+       "circuit on a three-phase panel uses", r.read_phase,
+       default_text="assigned by sizer to balance the panel",
+       bounds="A | B | C | AB | BC | CA", attr="phase", example='"BC"'),
+    _F("node", "triplen", "third-harmonic current of the load as a share of its current "
+       "(adds up in the neutral)", r.read_percent, unit="%", default=0.0,
+       bounds="0 to 100 %", attr="triplen", example='"30 %"'),
     _F("node", "transformer", "the node is a transformer: a table of the keys below",
        attr="transformer", subtable=True, example='{ rating = "75 kVA", ... }'),
     _F("node", "motor", "the node's load is a motor: a table of the keys below",

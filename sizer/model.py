@@ -242,6 +242,8 @@ class Node:
     neutral: bool | None = None   # None: decided from the loads below (see loads.py)
     description: str = ""         # free text from the scenario, shown in reports
     operating: Operating = field(default_factory=Operating)  # how the load runs (losses)
+    phase: str | None = None      # "A" | "B" | "C" | "AB" | "BC" | "CA"; None: assigned
+    triplen: float = 0.0          # third-harmonic current / the load's current (neutral)
 
     def __post_init__(self) -> None:
         # The dataclass checks its own fields; whole-tree checks live in sizer.validation.
@@ -260,6 +262,8 @@ class Node:
         if self.clearing_time_s is not None:
             _check(finite_positive(self.clearing_time_s), "must be a positive time", self.id,
                    "clearing_time")
+        _check(math.isfinite(self.triplen) and 0 <= self.triplen <= 1,
+               "must be between 0 and 100 %", self.id, "triplen")
 
 
 @dataclass(frozen=True)
@@ -376,6 +380,9 @@ class SegmentResult:
     loadflow_drop_pct: float | None = None
     fault_ka: float | None = None
     operating_a: float = 0.0          # peak operating current used for losses
+    phase: str | None = None          # single-phase runs on a three-phase system
+    phase_currents_a: tuple[float, float, float] | None = None  # three-phase runs (sizing)
+    neutral_a: float | None = None    # three-phase runs: phasor sum + triplens (sizing)
     loss_kwh_per_year: float = 0.0    # first year, from the run's own loss-load factor
     loss_cost_per_year: float = 0.0   # first year: energy + demand charge at the building peak
 

@@ -12,6 +12,7 @@ from collections.abc import Callable
 from dataclasses import dataclass, replace
 from enum import StrEnum
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -37,7 +38,13 @@ from sizer.model import (
     Totals,
     Violation,
 )
-from sizer.operating import RunProfiles, loss_current_squared, run_profiles
+from sizer.operating import RunProfiles, run_profiles
+from sizer.phases import (
+    PhaseState,
+    assign_phases,
+    loss_current_squared_by_phase,
+    sized_by_worst_phase,
+)
 from sizer.rules import load_profile
 from sizer.rules.profile import RuleProfile
 from sizer.topology import Topology
@@ -69,6 +76,7 @@ class Prepared:
     topology: Topology
     leaf_limit_pct: np.ndarray
     runs: RunProfiles            # operating peaks and loss profiles (sizer.operating)
+    phases: PhaseState           # phase assignment, phase and neutral currents
 
     @property
     def parent(self) -> np.ndarray:
@@ -117,14 +125,17 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
     price_list = prices if prices is not None else price_list_for(scenario, catalogue)
     econ = economic_params(scenario)
     runs = run_profiles(scenario, segments, econ)
+    phase_state = assign_phases(scenario, segments, runs)
+    segments = sized_by_worst_phase(segments, phase_state, profile)
     table, local = build_candidates(
         segments, profile, catalogue, price_list, runs.loss_pv_per_w(econ),
-        keep_pins=keep_pins, loss_a2=loss_current_squared(segments, runs),
+        keep_pins=keep_pins,
+        loss_a2=loss_current_squared_by_phase(segments, runs, phase_state),
     )
     topology = Topology(np.array([s.parent_index for s in segments], dtype=np.int64))
     limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)
     return Prepared(scenario, profile, catalogue, price_list, econ, segments, table, local,
-                    transformer_drops_pct(segments), topology, limit, runs)
+                    transformer_drops_pct(segments), topology, limit, runs, phase_state)
 
 
 def objective_costs(table: CandidateTable, objective: Objective,
@@ -189,7 +200,7 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
             loss_pv=float(t.loss_pv[r]), temp_c=float(t.temp_c[r]),
             voltage_v=seg.voltage_v, phases=seg.phases, pinned=seg.node.pin is not None,
             operating_a=float(prep.runs.operating_a[s]), loss_kwh_per_year=float(kwh[s]),
-            loss_cost_per_year=float(cost_year[s]),
+            loss_cost_per_year=float(cost_year[s]), **_phase_fields(prep, s),
         ))
     totals = Totals(
         capex=float(t.capex[choice].sum()),
@@ -206,6 +217,14 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
         notes=(solution.message,) if solution and solution.message else (),
         choice=tuple(int(r) for r in choice),
     )
+
+
+def _phase_fields(prep: Prepared, s: int) -> dict[str, Any]:
+    """``phase`` of a single-phase run, phase and neutral currents of a three-phase one."""
+    if prep.segments[s].phases == 1:
+        return {"phase": prep.phases.phase[s]}
+    a, b, c = (float(v) for v in prep.phases.sizing_a[s])
+    return {"phase_currents_a": (a, b, c), "neutral_a": float(prep.phases.neutral_a[s])}
 
 
 def empty_design(prep: Prepared, status: DesignStatus, objective: str,

@@ -387,3 +387,12 @@ def read_full_load_hours(value: Any, text: bool = False) -> float:
     if not 0 < h <= 8784:
         raise ScenarioError(f"must be above 0 h and at most 8784 h a year, got {show(value)}")
     return h
+
+
+def read_phase(value: Any, text: bool = False) -> str:
+    """The line(s) a single-phase circuit uses: A, B, C (to neutral) or AB, BC, CA."""
+    name = read_text(value, text).upper()
+    if name not in ("A", "B", "C", "AB", "BC", "CA"):
+        raise ScenarioError(f"must be A, B or C (line to neutral) or AB, BC or CA (line to "
+                            f"line), got {show(value)}")
+    return name

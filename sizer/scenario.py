@@ -693,6 +693,7 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 pin=v.get("conductor"), transformer=v.get("transformer"), motor=motor,
                 clearing_time_s=v.get("clearing_time", defaults["clearing_time"]),
                 neutral=v.get("neutral"), description=v.get("description", ""),
+                phase=v.get("phase"), triplen=v.get("triplen", 0.0),
                 operating=Operating(**{
                     name: v.get(key, defaults.get(key)) for key, name in _OPERATING_KEYS}),
             ))
@@ -739,6 +740,8 @@ def _schedule_row(n: Node) -> dict[str, str]:
         "grouping": "auto" if c.grouping is None else str(c.grouping),
         "max_sets": str(c.max_sets),
     }
+    row["phase"] = n.phase or ""
+    row["triplen"] = "" if n.triplen == 0.0 else f"{_num(100 * n.triplen)} %"
     op = n.operating
     for key, name in _OPERATING_KEYS:
         value = getattr(op, name)

@@ -266,6 +266,7 @@ class _Page:
             self.options_section(),
             self.justification_section(),
             self.schedule_section(),
+            self.phase_section(),
             self.figures_section(),
             self.verification_section(),
             *extra_sections,
@@ -561,6 +562,43 @@ class _Page:
                               "savings after; where a curve crosses zero it has paid back."))
         out.append("</section>")
         return "".join(out)
+
+    def phase_section(self) -> str:
+        """Each three-phase panel's phase balance: currents per phase, neutral, bars."""
+        segs = self.prep.segments
+        ph = self.prep.phases
+        panels = []
+        for i, seg in enumerate(segs):
+            kids = [k for k, g in enumerate(segs) if g.parent_index == i
+                    and ph.phase[k] is not None]
+            if seg.phases == 3 and kids:
+                panels.append((i, kids))
+        if not panels:
+            return ""
+        rows = []
+        for i, kids in panels:
+            cur = [float(v) for v in ph.sizing_a[i]]
+            top = max(cur) or 1.0
+            mean = sum(cur) / 3
+            bars = "".join(
+                f'<div><span class="muted">{name}</span> <span style="display:inline-block;'
+                f'height:0.7em;width:{120 * c / top:.0f}px;background:#4a78a8"></span> '
+                f"{c:,.1f} A</div>" for name, c in zip("ABC", cur, strict=True))
+            on = "; ".join(f"{p}: " + ", ".join(segs[k].id for k in kids if ph.phase[k] == p)
+                           for p in ("A", "B", "C", "AB", "BC", "CA")
+                           if any(ph.phase[k] == p for k in kids))
+            rows.append(f"<tr><th>{esc(segs[i].id)}</th><td>{bars}</td>"
+                        f"<td class=num>{ph.neutral_a[i]:,.1f} A</td>"
+                        f"<td class=num>{100 * (top - mean) / mean if mean else 0:.1f} %</td>"
+                        f"<td>{esc(on)}</td></tr>")
+        return ('<section id="phases"><h2>Phase balance</h2><p class=muted>Single-phase '
+                "circuits on each three-phase panel, as fixed in the scenario or assigned "
+                "by sizer to make the most loaded phase as light as possible (sizing "
+                "currents). Feeders are sized and their drop taken at their most loaded "
+                "phase; the neutral carries the phasor sum plus declared triplen harmonics."
+                '</p><div class="scroll"><table><thead><tr><th>Panel</th><th>Phase currents'
+                "</th><th>Neutral</th><th>Top phase over the mean</th><th>Circuits</th></tr>"
+                f"</thead><tbody>{''.join(rows)}</tbody></table></div></section>")
 
     def schedule_section(self) -> str:
         """The cable schedule of the design: one row per run, narrow enough for a page.
