@@ -269,6 +269,9 @@ FIELDS: tuple[Field, ...] = (
     _F("node", "triplen", "third-harmonic current of the load as a share of its current "
        "(adds up in the neutral)", r.read_percent, unit="%", default=0.0,
        bounds="0 to 100 %", attr="triplen", example='"30 %"'),
+    _F("node", "spare", "spare capacity reserved on a feeder or panel: sizes its run "
+       "(ampacity, device, drop) but not its losses", r.read_percent, unit="%",
+       default=0.0, bounds="0 to 100 %", attr="spare", example='"25 %"'),
     _F("node", "transformer", "the node is a transformer: a table of the keys below",
        attr="transformer", subtable=True, example='{ rating = "75 kVA", ... }'),
     _F("node", "motor", "the node's load is a motor: a table of the keys below",

@@ -244,6 +244,7 @@ class Node:
     operating: Operating = field(default_factory=Operating)  # how the load runs (losses)
     phase: str | None = None      # "A" | "B" | "C" | "AB" | "BC" | "CA"; None: assigned
     triplen: float = 0.0          # third-harmonic current / the load's current (neutral)
+    spare: float = 0.0            # spare capacity reserved: sizes the run, not its losses
 
     def __post_init__(self) -> None:
         # The dataclass checks its own fields; whole-tree checks live in sizer.validation.
@@ -264,6 +265,8 @@ class Node:
                    "clearing_time")
         _check(math.isfinite(self.triplen) and 0 <= self.triplen <= 1,
                "must be between 0 and 100 %", self.id, "triplen")
+        _check(math.isfinite(self.spare) and 0 <= self.spare <= 1,
+               "must be between 0 and 100 %", self.id, "spare")
 
 
 @dataclass(frozen=True)

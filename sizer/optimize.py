@@ -47,6 +47,7 @@ from sizer.phases import (
 )
 from sizer.rules import load_profile
 from sizer.rules.profile import RuleProfile
+from sizer.spare import with_spare_capacity
 from sizer.topology import Topology
 from sizer.units import conductor_label
 
@@ -126,7 +127,8 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
     econ = economic_params(scenario)
     runs = run_profiles(scenario, segments, econ)
     phase_state = assign_phases(scenario, segments, runs)
-    segments = sized_by_worst_phase(segments, phase_state, profile)
+    segments = with_spare_capacity(sized_by_worst_phase(segments, phase_state, profile),
+                                   profile)
     table, local = build_candidates(
         segments, profile, catalogue, price_list, runs.loss_pv_per_w(econ),
         keep_pins=keep_pins,

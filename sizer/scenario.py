@@ -694,6 +694,7 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 clearing_time_s=v.get("clearing_time", defaults["clearing_time"]),
                 neutral=v.get("neutral"), description=v.get("description", ""),
                 phase=v.get("phase"), triplen=v.get("triplen", 0.0),
+                spare=v.get("spare", 0.0),
                 operating=Operating(**{
                     name: v.get(key, defaults.get(key)) for key, name in _OPERATING_KEYS}),
             ))
@@ -742,6 +743,7 @@ def _schedule_row(n: Node) -> dict[str, str]:
     }
     row["phase"] = n.phase or ""
     row["triplen"] = "" if n.triplen == 0.0 else f"{_num(100 * n.triplen)} %"
+    row["spare"] = "" if n.spare == 0.0 else f"{_num(100 * n.spare)} %"
     op = n.operating
     for key, name in _OPERATING_KEYS:
         value = getattr(op, name)

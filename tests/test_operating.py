@@ -300,3 +300,48 @@ def test_sweep_reprices_with_each_runs_own_factors(tmp_path):
     rebuilt = prepare(replace(prep.scenario, economics=replace(
         prep.scenario.economics, energy_price_per_kwh=0.24)))
     np.testing.assert_allclose(moved.table.loss_pv, rebuilt.table.loss_pv, rtol=1e-12)
+
+
+# --- spare capacity: sizes the run, not its losses -----------------------------------------
+
+SPARE = """
+[[node]]
+id = "P"
+parent = "SRC"
+length = "400 ft"
+{spare}
+
+[[node]]
+id = "L"
+parent = "P"
+length = "100 ft"
+load = "100 A"
+"""
+
+
+def test_spare_sizes_the_run_but_not_its_losses(tmp_path):
+    bare, _ = runs_of(write_scenario(tmp_path, SPARE.format(spare=""), name="a.toml"))
+    spare, _ = runs_of(write_scenario(tmp_path, SPARE.format(spare='spare = "25 %"'),
+                                      name="b.toml"))
+    # Sizing: 100 A → 125 A of required ampacity; sizer's device at or above it.
+    assert spare.segments[0].required_ampacity_a == pytest.approx(125.0)
+    assert spare.segments[0].ocpd_a >= 125.0
+    assert spare.segments[0].current_a == pytest.approx(125.0)   # drop with the spare used
+    # Losses: the same operating current, so the same peak loss on the same conductor.
+    assert spare.runs.operating_a[0] == bare.runs.operating_a[0] == pytest.approx(100.0)
+    assert min(spare.table.ampacity_a[:int(spare.table.offsets[1])]) >= 125.0
+
+
+def test_report_options_price_the_spare(tmp_path):
+    from sizer.workflow import compare_options
+
+    prep = prepare(load_scenario(write_scenario(tmp_path, SPARE.format(
+        spare='spare = "25 %"'))))
+    options = {o.key: o.design for o in compare_options(prep)}
+    assert "without_spare" in options
+    # Both are lifecycle optima; only the one with the spare must carry 125 A on P. (The
+    # one without may still cost more: NEC 250.122(B) grows the EGC of a conductor
+    # upsized over the minimum for a smaller device, so no ordering is asserted.)
+    with_, bare = options["lifecycle"].segments[0], options["without_spare"].segments[0]
+    assert with_.ampacity_a >= 125.0 and bare.ampacity_a >= 100.0
+    assert with_.operating_a == bare.operating_a == pytest.approx(100.0)

@@ -518,7 +518,22 @@ class _Page:
                   f"{self.econ.years:g} years (energy and demand charge, escalated and "
                   f"discounted). Loss cost and CO₂ per year are first-year figures; CO₂ uses "
                   f"{ef:g} kg/kWh and grows with the load over the life. The highlighted row "
-                  "is the lifecycle optimum.</p></section>")
+                  "is the lifecycle optimum.</p>" + self.spare_note() + "</section>")
+
+    def spare_note(self) -> str:
+        """What the reserved spare capacity costs, against the same optimum without it."""
+        by_key = {r.key: r for r in self.option_rows}
+        with_, bare = by_key.get("lifecycle"), by_key.get("without_spare")
+        if with_ is None or bare is None or not (with_.feasible and bare.feasible):
+            return ""
+        runs = [n.id for n in self.scenario.nodes if n.spare > 0]
+        added = with_.capex - bare.capex
+        total = with_.lifecycle - bare.lifecycle
+        return (f'<p class="note">Spare capacity reserved on {_count(len(runs), "run")} '
+                f"({esc(', '.join(runs))}): it adds {tb.money(added)} {self.cur} upfront "
+                f"and {tb.money(total)} {self.cur} to the lifetime total against the same "
+                "optimum without it (its losses are priced at the operating load, not the "
+                "reserve).</p>")
 
     def justification_section(self) -> str:
         """Per-segment upsizing: the sentences, the table, the totals."""
