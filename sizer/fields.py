@@ -272,6 +272,11 @@ FIELDS: tuple[Field, ...] = (
     _F("node", "spare", "spare capacity reserved on a feeder or panel: sizes its run "
        "(ampacity, device, drop) but not its losses", r.read_percent, unit="%",
        default=0.0, bounds="0 to 100 %", attr="spare", example='"25 %"'),
+    _F("node", "neutral_size", "a three-phase run's neutral over the phase size: up to "
+       "200 % (nonlinear loads), or \"reduced\" to its own current where the rule profile "
+       "allows (sizer/rules/neutral.csv)", r.read_neutral_size, unit="%", default=1.0,
+       default_text="100 % (full size)", bounds="\"reduced\" or 100 % to 200 %",
+       attr="neutral_size", also_defaults=True, example='"200 %"'),
     _F("node", "transformer", "the node is a transformer: a table of the keys below",
        attr="transformer", subtable=True, example='{ rating = "75 kVA", ... }'),
     _F("node", "motor", "the node's load is a motor: a table of the keys below",

@@ -245,6 +245,9 @@ class Node:
     phase: str | None = None      # "A" | "B" | "C" | "AB" | "BC" | "CA"; None: assigned
     triplen: float = 0.0          # third-harmonic current / the load's current (neutral)
     spare: float = 0.0            # spare capacity reserved: sizes the run, not its losses
+    # Neutral of a three-phase run over the phase area: 1 full, up to 2; 0: reduced to
+    # its own current where the rule profile allows (sizer/rules/neutral.csv).
+    neutral_size: float = 1.0
 
     def __post_init__(self) -> None:
         # The dataclass checks its own fields; whole-tree checks live in sizer.validation.
@@ -267,6 +270,8 @@ class Node:
                "must be between 0 and 100 %", self.id, "triplen")
         _check(math.isfinite(self.spare) and 0 <= self.spare <= 1,
                "must be between 0 and 100 %", self.id, "spare")
+        _check(self.neutral_size == 0.0 or 1.0 <= self.neutral_size <= 2.0,
+               "must be \"reduced\" or between 100 % and 200 %", self.id, "neutral_size")
 
 
 @dataclass(frozen=True)
@@ -349,6 +354,7 @@ class CandidateTable:
     loss_pv: np.ndarray
     egc_size_index: np.ndarray
     rejected: tuple[str, ...] = field(default=())
+    neutral_size_index: np.ndarray | None = None   # the neutral's own size (3-phase runs)
 
     def __len__(self) -> int:
         return int(self.segment.shape[0])
@@ -386,6 +392,7 @@ class SegmentResult:
     phase: str | None = None          # single-phase runs on a three-phase system
     phase_currents_a: tuple[float, float, float] | None = None  # three-phase runs (sizing)
     neutral_a: float | None = None    # three-phase runs: phasor sum + triplens (sizing)
+    neutral_size: str | None = None   # three-phase runs with a neutral: its own size
     loss_kwh_per_year: float = 0.0    # first year, from the run's own loss-load factor
     loss_cost_per_year: float = 0.0   # first year: energy + demand charge at the building peak
 

@@ -43,6 +43,7 @@ from sizer.phases import (
     PhaseState,
     assign_phases,
     loss_current_squared_by_phase,
+    neutral_current_squared,
     sized_by_worst_phase,
 )
 from sizer.rules import load_profile
@@ -133,6 +134,8 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
         segments, profile, catalogue, price_list, runs.loss_pv_per_w(econ),
         keep_pins=keep_pins,
         loss_a2=loss_current_squared_by_phase(segments, runs, phase_state),
+        neutral_a=phase_state.neutral_a,
+        neutral_a2=neutral_current_squared(segments, phase_state),
     )
     topology = Topology(np.array([s.parent_index for s in segments], dtype=np.int64))
     limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)
@@ -202,7 +205,7 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
             loss_pv=float(t.loss_pv[r]), temp_c=float(t.temp_c[r]),
             voltage_v=seg.voltage_v, phases=seg.phases, pinned=seg.node.pin is not None,
             operating_a=float(prep.runs.operating_a[s]), loss_kwh_per_year=float(kwh[s]),
-            loss_cost_per_year=float(cost_year[s]), **_phase_fields(prep, s),
+            loss_cost_per_year=float(cost_year[s]), **_phase_fields(prep, s, r),
         ))
     totals = Totals(
         capex=float(t.capex[choice].sum()),
@@ -221,12 +224,18 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
     )
 
 
-def _phase_fields(prep: Prepared, s: int) -> dict[str, Any]:
+def _phase_fields(prep: Prepared, s: int, row: int) -> dict[str, Any]:
     """``phase`` of a single-phase run, phase and neutral currents of a three-phase one."""
-    if prep.segments[s].phases == 1:
+    seg = prep.segments[s]
+    if seg.phases == 1:
         return {"phase": prep.phases.phase[s]}
     a, b, c = (float(v) for v in prep.phases.sizing_a[s])
-    return {"phase_currents_a": (a, b, c), "neutral_a": float(prep.phases.neutral_a[s])}
+    out: dict[str, Any] = {"phase_currents_a": (a, b, c),
+                           "neutral_a": float(prep.phases.neutral_a[s])}
+    t = prep.table
+    if seg.neutral and t.neutral_size_index is not None:
+        out["neutral_size"] = prep.catalogue.sizes[int(t.neutral_size_index[row])]
+    return out
 
 
 def empty_design(prep: Prepared, status: DesignStatus, objective: str,

@@ -286,11 +286,10 @@ def sized_by_worst_phase(segments: tuple[Segment, ...], state: PhaseState,
 
 def loss_current_squared_by_phase(segments: tuple[Segment, ...], runs: RunProfiles,
                                   state: PhaseState) -> np.ndarray:
-    """Σ I² over the current-carrying conductors at the operating peak (A²), phases apart.
+    """Σ I² over the phase conductors at the operating peak (A²), phases apart.
 
     1-phase: 2·I² (line and return, or two lines). 3-phase: Σ|I_p|² over the three
-    phases plus the neutral's I_N² where a neutral is run (a full-size neutral: the same
-    resistance as a phase conductor).
+    phases; the neutral is apart (``neutral_current_squared``), at its own size.
     """
     out = np.empty(len(segments))
     for i, seg in enumerate(segments):
@@ -298,6 +297,10 @@ def loss_current_squared_by_phase(segments: tuple[Segment, ...], runs: RunProfil
             out[i] = 2.0 * runs.operating_a[i] ** 2
         else:
             out[i] = float(np.sum(np.abs(state.operating[i]) ** 2))
-            if seg.neutral:
-                out[i] += state.operating_neutral_a[i] ** 2
     return out
+
+
+def neutral_current_squared(segments: tuple[Segment, ...], state: PhaseState) -> np.ndarray:
+    """I_N² at the operating peak of each three-phase run that has a neutral (A²), else 0."""
+    own = np.array([s.phases == 3 and s.neutral for s in segments], dtype=bool)
+    return np.where(own, state.operating_neutral_a ** 2, 0.0)

@@ -396,3 +396,13 @@ def read_phase(value: Any, text: bool = False) -> str:
         raise ScenarioError(f"must be A, B or C (line to neutral) or AB, BC or CA (line to "
                             f"line), got {show(value)}")
     return name
+
+
+def read_neutral_size(value: Any, text: bool = False) -> float:
+    """A three-phase neutral's size: "reduced" (0.0) or 100 % to 200 % of the phase area."""
+    if isinstance(value, str) and value.strip().lower() == "reduced":
+        return 0.0
+    pct = read_percent(value, text)
+    if not 1.0 - 1e-12 <= pct <= 2.0 + 1e-12:
+        raise ScenarioError(f'must be "reduced" or between 100 % and 200 %, got {show(value)}')
+    return pct

@@ -695,6 +695,7 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 neutral=v.get("neutral"), description=v.get("description", ""),
                 phase=v.get("phase"), triplen=v.get("triplen", 0.0),
                 spare=v.get("spare", 0.0),
+                neutral_size=v.get("neutral_size", defaults["neutral_size"]),
                 operating=Operating(**{
                     name: v.get(key, defaults.get(key)) for key, name in _OPERATING_KEYS}),
             ))
@@ -744,6 +745,8 @@ def _schedule_row(n: Node) -> dict[str, str]:
     row["phase"] = n.phase or ""
     row["triplen"] = "" if n.triplen == 0.0 else f"{_num(100 * n.triplen)} %"
     row["spare"] = "" if n.spare == 0.0 else f"{_num(100 * n.spare)} %"
+    row["neutral_size"] = ("reduced" if n.neutral_size == 0.0
+                           else f"{_num(100 * n.neutral_size)} %")
     op = n.operating
     for key, name in _OPERATING_KEYS:
         value = getattr(op, name)

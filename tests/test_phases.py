@@ -182,3 +182,135 @@ def test_a_line_to_neutral_circuit_given_a_pair_is_one_clear_line(tmp_path, caps
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1
     assert "node 'C1'" in err[0] and "field 'phase'" in err[0]
+
+
+# --- the neutral's own size --------------------------------------------------------------
+
+UNBALANCED = """
+[[node]]
+id = "P"
+parent = "SRC"
+length = "100 ft"
+neutral = true
+{size}
+
+[[node]]
+id = "A1"
+parent = "P"
+length = "60 ft"
+phases = 1
+voltage = "120 V"
+load = "12 kW"
+power_factor = 1.0
+phase = "A"
+ocpd = "150 A"
+{extra}
+
+[[node]]
+id = "A2"
+parent = "P"
+length = "60 ft"
+phases = 1
+voltage = "120 V"
+load = "12 kW"
+power_factor = 1.0
+phase = "A"
+ocpd = "150 A"
+{extra}
+
+[[node]]
+id = "B1"
+parent = "P"
+length = "60 ft"
+phases = 1
+voltage = "120 V"
+load = "12 kW"
+power_factor = 1.0
+phase = "B"
+ocpd = "150 A"
+{extra}
+
+[[node]]
+id = "C1"
+parent = "P"
+length = "60 ft"
+phases = 1
+voltage = "120 V"
+load = "12 kW"
+power_factor = 1.0
+phase = "C"
+ocpd = "150 A"
+{extra}
+"""
+
+
+def neutral_rows(tmp_path, size="", extra="", name="n.toml"):
+    path = write_scenario(tmp_path, UNBALANCED.format(size=size, extra=extra),
+                          voltage="208 V", name=name)
+    prep = prepare(load_scenario(path))
+    t = prep.table
+    rows = range(int(t.offsets[0]), int(t.offsets[1]))
+    sizes = prep.catalogue.sizes
+    return prep, {(sizes[int(t.size_index[r])], int(t.sets[r])): r for r in rows}
+
+
+def test_reduced_neutral_is_sized_for_its_own_current(tmp_path):
+    prep, rows = neutral_rows(tmp_path, size='neutral_size = "reduced"')
+    # 12 kW / 120 V = 100 A per circuit: A 200 A, B 100 A, C 100 A;
+    # I_N = √(200² + 100² + 100² − 200·100 − 100·100 − 100·200) = 100 A.
+    assert prep.phases.neutral_a[0] == pytest.approx(100.0)
+    t = prep.table
+    r = rows[("3/0 AWG", 1)]
+    # 3/0 Cu carries 200 A at 75 degC (NEC Table 310.16); its neutral for 100 A is 3 AWG
+    # Cu (100 A in the same column), above the 6 AWG EGC of a 200 A device (NEC 250.122).
+    assert prep.catalogue.sizes[int(t.neutral_size_index[r])] == "3 AWG"
+    assert prep.catalogue.sizes[int(t.egc_size_index[r])] == "6 AWG"
+    # Every row: the neutral is never above the phase size nor below the EGC.
+    own = slice(int(t.offsets[0]), int(t.offsets[1]))
+    assert (t.neutral_size_index[own] <= t.size_index[own]).all()
+    assert (t.neutral_size_index[own] >= t.egc_size_index[own]).all()
+
+
+def test_reduced_neutral_is_cheaper_and_a_double_neutral_dearer(tmp_path):
+    _, full = neutral_rows(tmp_path, name="a.toml")
+    red_prep, red = neutral_rows(tmp_path, size='neutral_size = "reduced"', name="b.toml")
+    dbl_prep, dbl = neutral_rows(tmp_path, size='neutral_size = "200 %"', name="c.toml")
+    full_prep, _ = neutral_rows(tmp_path, name="a.toml")
+    key = ("3/0 AWG", 1)
+    capex = [p.table.capex[rows[key]] for p, rows in
+             ((red_prep, red), (full_prep, full), (dbl_prep, dbl))]
+    assert capex[0] < capex[1] < capex[2]
+    # 200 %: at least twice the phase area (3/0 = 85.0 mm² → 4/0 is 107 mm², too small;
+    # 350 kcmil = 177 mm² is the first at or above 170 mm²; areas from NEC Ch. 9 Table 8).
+    area = dbl_prep.catalogue.area_mm2
+    r = dbl[key]
+    assert area[dbl_prep.table.neutral_size_index[r]] >= 2 * area[dbl_prep.table.size_index[r]]
+    assert dbl_prep.catalogue.sizes[int(dbl_prep.table.neutral_size_index[r])] == "350 kcmil"
+    # The larger neutral loses less: same phase losses, I_N² at half the resistance or less.
+    assert dbl_prep.table.loss_w[r] < full_prep.table.loss_w[full[key]]
+
+
+def test_iec_keeps_a_full_neutral_when_triplens_exceed_15_percent():
+    from sizer.candidates import neutral_rules
+
+    rule = neutral_rules()["iec"]
+    # IEC 60364-5-52 524.2.3 (from memory): reduction only up to 15 % third harmonics,
+    # phase above 16 mm² Cu / 25 mm² Al, neutral at least 16 / 25 mm².
+    assert float(rule["max_triplen"]) == 0.15
+    assert (float(rule["min_phase_mm2_Cu"]), float(rule["min_phase_mm2_Al"])) == (16, 25)
+
+
+@pytest.mark.parametrize(("triplen", "reduced"), [("10 %", True), ("20 %", False)])
+def test_iec_reduction_stops_above_15_percent_triplens(tmp_path, triplen, reduced):
+    body = (UNBALANCED.format(size='neutral_size = "reduced"', extra=f'triplen = "{triplen}"')
+            .replace('voltage = "120 V"', 'voltage = "230 V"')
+            .replace('load = "12 kW"', 'load = "23 kW"')
+            .replace('ocpd = "150 A"', 'ocpd = "125 A"'))
+    path = write_scenario(tmp_path, body, rules="iec", voltage="400 V", currency="EUR",
+                          energy_price="0.2 EUR/kWh", insulation="90 degC")
+    path.write_text(path.read_text().replace('terminals = "75 degC"', 'terminals = "auto"'))
+    prep = prepare(load_scenario(path))
+    t = prep.table
+    own = slice(int(t.offsets[0]), int(t.offsets[1]))
+    smaller = t.neutral_size_index[own] < t.size_index[own]
+    assert smaller.any() == reduced

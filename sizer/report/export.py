@@ -56,8 +56,9 @@ def clean(value: Any) -> Any:
 
 _SEGMENT_FIELDS = tuple(f.name for f in fields(SegmentResult))
 # Keys written only on the runs they describe: ``phase`` on single-phase runs of a
-# three-phase system, ``phase_currents_a`` and ``neutral_a`` on three-phase runs.
-_ONLY_WHERE_SET = frozenset({"phase", "phase_currents_a", "neutral_a"})
+# three-phase system, ``phase_currents_a`` and ``neutral_a`` on three-phase runs,
+# ``neutral_size`` on three-phase runs with a neutral.
+_ONLY_WHERE_SET = frozenset({"phase", "phase_currents_a", "neutral_a", "neutral_size"})
 
 
 def design_document(design: Design, extra: Mapping[str, Any] | None = None) -> dict[str, Any]:
