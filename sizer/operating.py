@@ -6,7 +6,8 @@ ampacity, protection and voltage drop. Losses are priced from an *operating prof
 
 - **A load** runs at ``utilisation`` × its declared load (an unknown load: × its device
   rating) at its peak, with a ``load_factor`` (mean / peak) and a ``peak_coincidence``
-  (its current at the building's peak / its own peak). Defaults per load category come
+  (its current at the building's peak / its own peak), never above its sizing current.
+  Defaults per load category come
   from ``sizer/operating_profiles.csv`` (common practice, each row sourced); a node may
   override each value, and loads with no category use the ``general`` row, which takes
   the ``[economics]`` load factor. Motors default to ``motors``, loads with no load given
@@ -195,11 +196,15 @@ def run_profiles(scenario: Scenario, segments: tuple[Segment, ...],
     for i in np.flatnonzero(leaf).tolist():
         seg = segments[i]
         s_decl = seg.demand_va
+        share = util[i]
         if seg.node.load is None and seg.node.motor is None:
-            # Unknown load: the basis is the device rating, not the code's percentage of it.
+            # Unknown load: the basis is the device rating, not the code's percentage of
+            # it; never above the sizing current (the code's percentage) all the same.
             pf = seg.power_factor
-            s_decl = kv[i] * seg.ocpd_a * (pf + 1j * np.sqrt(max(0.0, 1 - pf * pf)))
-        peak[i] = util[i] * s_decl
+            rated = kv[i] * seg.ocpd_a * (pf + 1j * np.sqrt(max(0.0, 1 - pf * pf)))
+            share = min(share, abs(s_decl) / abs(rated)) if abs(rated) > 0 else 0.0
+            s_decl = rated
+        peak[i] = share * s_decl
         mean[i] = lf_own[i] * peak[i]
         spread[i] = np.sqrt(max(mu_own[i] - lf_own[i] ** 2, 0.0)) * abs(peak[i])
         at_peak[i] = k_own[i] * peak[i]

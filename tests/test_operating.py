@@ -345,3 +345,76 @@ def test_report_options_price_the_spare(tmp_path):
     with_, bare = options["lifecycle"].segments[0], options["without_spare"].segments[0]
     assert with_.ampacity_a >= 125.0 and bare.ampacity_a >= 100.0
     assert with_.operating_a == bare.operating_a == pytest.approx(100.0)
+
+
+# --- both engines see the operating losses and the neutral's own price ----------------------
+
+
+@pytest.mark.parametrize("engine", ["tree", "milp"])
+def test_engines_match_brute_force_with_operating_losses_and_own_neutral(tmp_path, engine):
+    from test_engines import assert_matches, brute_force
+
+    from sizer.engines import solve
+    from sizer.optimize import build_problem
+
+    nodes = """
+[[node]]
+id = "P"
+parent = "SRC"
+length = "300 ft"
+neutral_size = "reduced"
+spare = "20 %"
+max_sets = 1
+
+[[node]]
+id = "LTG"
+parent = "P"
+length = "250 ft"
+phases = 1
+voltage = "277 V"
+load = "4 kW"
+category = "lighting"
+max_sets = 1
+
+[[node]]
+id = "REC"
+parent = "P"
+length = "200 ft"
+phases = 1
+voltage = "277 V"
+ocpd = "20 A"
+max_sets = 1
+
+[[node]]
+id = "PUMP"
+parent = "P"
+length = "150 ft"
+load = "30 A"
+motor = { hp = 25 }
+max_sets = 1
+"""
+    prep = prepare(load_scenario(write_scenario(tmp_path, nodes)))
+    problem = build_problem(prep, Objective.LIFECYCLE)
+    expected, _ = brute_force(problem)
+    assert_matches(solve(problem, engine=engine), expected)
+    # The objective is capex + loss PV, the loss PV from operating currents.
+    np.testing.assert_allclose(problem.cost, prep.table.capex + prep.table.loss_pv)
+
+
+def test_operating_peak_never_exceeds_the_sizing_current_of_an_unknown_load(tmp_path):
+    nodes = """
+[[node]]
+id = "SIGN"
+parent = "SRC"
+length = "200 ft"
+phases = 1
+voltage = "277 V"
+ocpd = "20 A"
+category = "lighting"
+"""
+    prep, ix = runs_of(write_scenario(tmp_path, nodes))
+    i = ix["SIGN"]
+    # Lighting runs at 100 % of its load, but with no load given the basis is the 20 A
+    # device, capped at the sizing current: 80 % of it (nec profile) = 16 A.
+    assert prep.segments[i].current_a == pytest.approx(16.0)
+    assert prep.runs.operating_a[i] == pytest.approx(16.0)
