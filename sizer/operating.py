@@ -170,6 +170,9 @@ def _leaf_values(
     return util, lf, mu, k, coinc, growth, tuple(cats)
 
 
+# Extreme inputs (a load of 1e-300 A) must not raise numpy warnings: ratios are taken
+# before squares and the results stay finite.
+@np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore")
 def run_profiles(scenario: Scenario, segments: tuple[Segment, ...],
                  econ: EconomicParams) -> RunProfiles:
     """The operating peak and loss profile of every segment (see the module docstring)."""
@@ -236,7 +239,8 @@ def run_profiles(scenario: Scenario, segments: tuple[Segment, ...],
     if method == "buller-woodrow":
         mu = np.asarray(buller_woodrow(lf), dtype=float)
     else:
-        mu = np.where(mag > 0, (np.abs(mean) ** 2 + spread ** 2) / safe ** 2, 0.0)
+        # Ratios first, then squares: no overflow or underflow at extreme currents.
+        mu = np.where(mag > 0, (np.abs(mean) / safe) ** 2 + (spread / safe) ** 2, 0.0)
     mu = np.where(leaf, mu_own, np.clip(mu, lf * lf, lf))
     lf = np.where(leaf, lf_own, lf)
     k = np.where(mag > 0, np.minimum(np.abs(at_peak) / safe, 1.0), 0.0)

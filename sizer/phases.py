@@ -159,6 +159,7 @@ def _phasor(mag: float, angle_deg: float, pf: float) -> complex:
     return mag * cmath.exp(1j * (math.radians(angle_deg) - math.acos(min(max(pf, 0), 1))))
 
 
+@np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore")
 def assign_phases(scenario: Scenario, segments: tuple[Segment, ...], runs: RunProfiles,
                   ) -> PhaseState:
     """Assign phases per panel and work out phase and neutral currents of every run."""
@@ -284,6 +285,7 @@ def sized_by_worst_phase(segments: tuple[Segment, ...], state: PhaseState,
     return tuple(out)
 
 
+@np.errstate(over="ignore", under="ignore")
 def loss_current_squared_by_phase(segments: tuple[Segment, ...], runs: RunProfiles,
                                   state: PhaseState) -> np.ndarray:
     """Σ I² over the phase conductors at the operating peak (A²), phases apart.
@@ -300,6 +302,7 @@ def loss_current_squared_by_phase(segments: tuple[Segment, ...], runs: RunProfil
     return out
 
 
+@np.errstate(over="ignore", under="ignore")
 def neutral_current_squared(segments: tuple[Segment, ...], state: PhaseState) -> np.ndarray:
     """I_N² at the operating peak of each three-phase run that has a neutral (A²), else 0."""
     own = np.array([s.phases == 3 and s.neutral for s in segments], dtype=bool)
