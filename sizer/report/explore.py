@@ -141,6 +141,8 @@ def explorer_data(points: Sequence[DesignPoint], shown: int, reference: int,
             "label": p.label, "method": p.method,
             "capex": round(d.totals.capex, 2), "losspv": round(d.totals.loss_pv, 2),
             "lossw": round(loss_w, 3), "kwh": round(d.totals.loss_kwh_per_year, 1),
+            # First-year loss cost, each run at its own T and peak coincidence.
+            "losscost": round(sum(s.loss_cost_per_year for s in d.segments), 2),
             "findings": p.findings,
             "worst": round(max(worst_lf), 4) if len(worst_lf) == len(d.segments) and worst_lf
             else round(d.worst_path_drop_pct(), 4),
