@@ -258,7 +258,9 @@ class _Page:
             '<a href="#scenario">Scenario</a>'
             '<a href="#assumptions">Assumptions</a><a href="#options">Options</a>'
             '<a href="#justification">Why upsize</a><a href="#schedule">Schedule</a>'
-            '<a href="#figures">Figures</a><a href="#verification">Verification</a></nav>',
+            '<a href="#figures">Figures</a>'
+            + ('<a href="#phases">Phases</a>' if self.has_phases() else "")
+            + '<a href="#verification">Verification</a></nav>',
             self.explore_section(),
             self.tree_section(),
             self.scenario_section(),
@@ -266,8 +268,8 @@ class _Page:
             self.options_section(),
             self.justification_section(),
             self.schedule_section(),
-            self.phase_section(),
             self.figures_section(),
+            self.phase_section(),
             self.verification_section(),
             *extra_sections,
             f'<footer><div class="caution" role="note"><strong>Caution</strong>'
@@ -578,6 +580,10 @@ class _Page:
         out.append("</section>")
         return "".join(out)
 
+    def has_phases(self) -> bool:
+        """True when some single-phase circuit sits on a three-phase panel."""
+        return any(p is not None for p in self.prep.phases.phase)
+
     def phase_section(self) -> str:
         """Each three-phase panel's phase balance: currents per phase, neutral, bars."""
         segs = self.prep.segments
@@ -682,19 +688,19 @@ class _Page:
                     '<span id="f-count" class="muted"></span>'
                     '<span class="muted">Click a column heading to sort.</span></div>')
         t = d.totals
-        out.append(controls)
-        out.append(f'<table class="schedule" id="schedule-table"><thead><tr>{head}</tr></thead>'
-                   f'<tbody>{"".join(body)}</tbody></table>')
-        out.append(f'<p class="note" id="schedule-totals">Totals: upfront {tb.money(t.capex)} '
-                   f"{cur}, loss PV {tb.money(t.loss_pv)} {cur}, "
-                   f"{tb.money(t.loss_kwh_per_year)} kWh lost in the first year.</p>")
         out.append('<p class="note">Use % is the design current over the ampacity (the '
                    "continuous-load factor is applied to the requirement, not shown here). "
                    "Drops are in % of each circuit's nominal voltage; path drops run from the "
                    "source to the run's far end, transformers included: the linear estimate "
                    "is what the optimiser holds to the limits, the AC load flow checks it. "
                    "Marked cells exceed their limit. EGC: equipment grounding conductor; "
-                   "Device: the overcurrent device rating.</p></section>")
+                   "Device: the overcurrent device rating.</p>")
+        out.append(controls)
+        out.append(f'<table class="schedule" id="schedule-table"><thead><tr>{head}</tr></thead>'
+                   f'<tbody>{"".join(body)}</tbody></table>')
+        out.append(f'<p class="note" id="schedule-totals">Totals: upfront {tb.money(t.capex)} '
+                   f"{cur}, loss PV {tb.money(t.loss_pv)} {cur}, "
+                   f"{tb.money(t.loss_kwh_per_year)} kWh lost in the first year.</p></section>")
         return "".join(out)
 
     def figures_section(self) -> str:
