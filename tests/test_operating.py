@@ -418,3 +418,31 @@ category = "lighting"
     # device, capped at the sizing current: 80 % of it (nec profile) = 16 A.
     assert prep.segments[i].current_a == pytest.approx(16.0)
     assert prep.runs.operating_a[i] == pytest.approx(16.0)
+
+
+def test_defaults_give_a_profile_that_nodes_override(tmp_path):
+    nodes = """
+[[node]]
+id = "A"
+parent = "SRC"
+length = "100 ft"
+load = "40 A"
+
+[[node]]
+id = "B"
+parent = "SRC"
+length = "100 ft"
+load = "40 A"
+category = "it"
+utilisation = 0.5
+"""
+    path = write_scenario(tmp_path, nodes)
+    path.write_text(path.read_text().replace(
+        "[defaults]\n", '[defaults]\ncategory = "hvac"\npeak_coincidence = 0.6\n'))
+    prep, ix = runs_of(path)
+    hvac = load_profiles()["hvac"]
+    a, b = ix["A"], ix["B"]
+    assert prep.runs.category[a] == "hvac" and prep.runs.category[b] == "it"
+    assert prep.runs.operating_a[a] == pytest.approx(40.0 * hvac.utilisation)
+    assert prep.runs.operating_a[b] == pytest.approx(20.0)
+    assert prep.runs.peak_coincidence[a] == prep.runs.peak_coincidence[b] == 0.6
