@@ -181,6 +181,7 @@ def measure(n_segments: int, repeats: int = 3, milp_limit_s: float = 60.0,
     from sizer.loads import design_segments
     from sizer.model import DesignStatus
     from sizer.optimize import Objective, build_problem, design_from_choice, prepare
+    from sizer.phases import loss_current_squared_by_phase, neutral_current_squared
     from sizer.report.export import design_document, json_text, schedule_csv
     from sizer.rules import load_profile
     from sizer.scenario import load_scenario
@@ -199,7 +200,12 @@ def measure(n_segments: int, repeats: int = 3, milp_limit_s: float = 60.0,
     catalogue = load_catalogue(profile.catalogue)
     res.stages_s["candidates"], _ = _time(
         lambda: build_candidates(segments, profile, catalogue, prep.prices,
-                                 prep.economics.loss_pv_per_w), repeats)
+                                 prep.runs.loss_pv_per_w(prep.economics),
+                                 loss_a2=loss_current_squared_by_phase(
+                                     prep.segments, prep.runs, prep.phases),
+                                 neutral_a=prep.phases.neutral_a,
+                                 neutral_a2=neutral_current_squared(
+                                     prep.segments, prep.phases)), repeats)
     res.candidates = len(prep.table)
     problem = build_problem(prep, Objective.LIFECYCLE)
     res.stages_s["engine"], sol = _time(lambda: solve(problem, engine="tree"), repeats)

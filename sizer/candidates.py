@@ -9,8 +9,11 @@ the only Python loops run over the few distinct (material, settings) groups.
 
 from __future__ import annotations
 
+import csv
 import math
 from dataclasses import dataclass, replace
+from functools import cache
+from pathlib import Path
 
 import numpy as np
 
@@ -69,6 +72,9 @@ class SegmentArrays:
     motor_overload: np.ndarray  # bool: motor branch, conductors protected by the overload relay
     secondary: np.ndarray       # bool: transformer secondary conductors
     service: np.ndarray         # bool: service conductors (bonding jumper, no EGC)
+    own_neutral: np.ndarray     # bool: a three-phase run with a neutral (sized on its own)
+    neutral_size: np.ndarray    # area over the phase's (1.0 full, 2.0 double); 0: reduced
+    triplen: np.ndarray         # declared third-harmonic share below the run
 
 
 def conductors_per_set(phases: np.ndarray, neutral: np.ndarray) -> np.ndarray:
@@ -78,14 +84,23 @@ def conductors_per_set(phases: np.ndarray, neutral: np.ndarray) -> np.ndarray:
 
 def installed_cost(prices: PriceList, length_m: np.ndarray, conductors: np.ndarray,
                    mat: np.ndarray, size: np.ndarray, sets: np.ndarray,
-                   egc: np.ndarray) -> np.ndarray:
-    """Upfront cost of each row: per set, its conductors and EGC bought and pulled."""
+                   egc: np.ndarray, *, neutral_size: np.ndarray | None = None) -> np.ndarray:
+    """Upfront cost of each row: per set, its conductors and EGC bought and pulled.
+
+    ``neutral_size`` (size index per row, −1: none of its own) prices a three-phase
+    run's neutral at its own size: one of the ``conductors`` is then that size.
+    """
     def pick(table_cu: np.ndarray, table_al: np.ndarray, k: np.ndarray) -> np.ndarray:
         return np.where(mat == 0, table_cu[k], table_al[k])
 
     cu, al = prices.conductor("Cu"), prices.conductor("Al")
-    per_set = (conductors * pick(cu, al, size) + pick(cu, al, egc)
+    phase_cost = pick(cu, al, size)
+    per_set = (conductors * phase_cost + pick(cu, al, egc)
                + pick(prices.labour("Cu"), prices.labour("Al"), size))
+    if neutral_size is not None:
+        own = neutral_size >= 0
+        per_set = per_set + np.where(
+            own, pick(cu, al, np.where(own, neutral_size, 0)) - phase_cost, 0.0)
     return length_m * sets * per_set
 
 
@@ -150,7 +165,78 @@ def segment_arrays(
         secondary=np.array([seg.secondary for seg in segments], dtype=bool),
         service=np.array([seg.service and profile.bonds_service() for seg in segments],
                          dtype=bool),
+        own_neutral=(phases == 3) & neutral,
+        neutral_size=np.array([seg.node.neutral_size for seg in segments], dtype=float),
+        triplen=_triplen_below(segments),
     )
+
+
+def _triplen_below(segments: tuple[Segment, ...]) -> np.ndarray:
+    """The largest declared triplen share at or below each segment."""
+    out = np.array([seg.node.triplen for seg in segments], dtype=float)
+    for s in range(len(segments) - 1, -1, -1):   # children come after their parents
+        p = segments[s].parent_index
+        if p >= 0:
+            out[p] = max(out[p], out[s])
+    return out
+
+
+@cache
+def neutral_rules() -> dict[str, dict[str, str]]:
+    """Rows of ``sizer/rules/neutral.csv`` by profile name."""
+    path = Path(__file__).with_name("rules") / "neutral.csv"
+    with path.open(encoding="utf-8") as fh:
+        rows = csv.DictReader(line for line in fh if not line.startswith("#"))
+        return {row["profile"]: row for row in rows}
+
+
+def neutral_size_index(profile_name: str, catalogue: Catalogue, sa: SegmentArrays,
+                       seg: np.ndarray, mat: np.ndarray, size: np.ndarray, sets: np.ndarray,
+                       egc: np.ndarray, neutral_a: np.ndarray, amp_group: np.ndarray,
+                       amp_tab: np.ndarray) -> np.ndarray:
+    """Size index of each row's neutral (−1: no catalogue size will do).
+
+    Full size by default; ``neutral_size`` above 1 asks for at least that multiple of
+    the phase area (200 %: double); 0 asks for a reduced neutral where the profile's
+    rules allow (``sizer/rules/neutral.csv``): the smallest size that carries the
+    neutral current per set, not below the EGC or the profile's floor, not above the
+    phase size. Where they do not allow it, the neutral stays full size.
+    """
+    area = np.asarray(catalogue.area_mm2, dtype=float)
+    want = sa.neutral_size[seg]
+    out = size.copy()
+    bigger = want > 1.0
+    if bigger.any():
+        need = want[bigger] * area[size[bigger]] * (1 - 1e-9)
+        k = np.searchsorted(area, need, side="left")
+        out[bigger] = np.where(k < len(area), k, -1)
+    rule = neutral_rules().get(profile_name)
+    reduce = (want == 0.0) & sa.own_neutral[seg]
+    if rule is None or rule["reduced_allowed"].strip().lower() != "true" or not reduce.any():
+        return out
+    min_phase = np.where(mat == 0, float(rule["min_phase_mm2_Cu"]),
+                         float(rule["min_phase_mm2_Al"]))
+    min_neutral = np.where(mat == 0, float(rule["min_neutral_mm2_Cu"]),
+                           float(rule["min_neutral_mm2_Al"]))
+    limit = rule["max_triplen"].strip()
+    reduce &= area[size] > min_phase
+    if limit:
+        reduce &= sa.triplen[seg] <= float(limit) + 1e-12
+    rows = np.flatnonzero(reduce)
+    if rows.size == 0:
+        return out
+    floor_area = np.searchsorted(area, min_neutral[rows] * (1 - 1e-9), side="left")
+    per_set = neutral_a[seg[rows]] / sets[rows]
+    k = np.zeros(rows.size, dtype=np.int64)
+    groups = amp_group[rows]
+    for g in np.unique(groups).tolist():
+        mask = groups == g
+        # Ampacity rises with size; sizes not made read 0 so they are never picked alone.
+        climb = np.maximum.accumulate(np.nan_to_num(amp_tab[g], nan=0.0))
+        k[mask] = np.searchsorted(climb, per_set[mask] * (1 - 1e-12), side="left")
+    k = np.maximum.reduce([k, egc[rows], floor_area])
+    out[rows] = np.minimum(k, size[rows])
+    return out
 
 
 @dataclass(frozen=True)
@@ -209,13 +295,20 @@ def build_candidates(
     profile: RuleProfile,
     catalogue: Catalogue,
     prices: PriceList,
-    loss_pv_per_w: float,
+    loss_pv_per_w: float | np.ndarray,
     *,
     keep_pins: bool = False,
+    loss_a2: np.ndarray | None = None,
+    neutral_a: np.ndarray | None = None,
+    neutral_a2: np.ndarray | None = None,
 ) -> tuple[CandidateTable, LocalDiagnosis]:
     """Every compliant candidate of every segment, and what the rejected rows could reach.
 
-    With ``keep_pins`` a pinned row stays in the table even when it breaks a
+    Ampacity, protection and drop use each segment's sizing current; the loss columns use
+    ``loss_a2`` (per segment: Σ I² of its current-carrying conductors at the operating
+    peak, A², from ``sizer.operating``) when given, else the sizing current on every
+    conductor. ``loss_pv_per_w`` is F (money per W of peak loss): one value, or one per
+    segment. With ``keep_pins`` a pinned row stays in the table even when it breaks a
     segment-local rule (``sizer check`` reports it as a violation).
     """
     sa = segment_arrays(segments, profile, catalogue)
@@ -227,7 +320,7 @@ def build_candidates(
     # --- ampacity per set (code) and the thermal rating behind the temperature ----------
     # Settings vary by segment, not by row: tabulate each distinct (settings, material,
     # terminal column) over all sizes once, then look rows up in the tables.
-    amp_set, before_set, thermal_set = _ampacity_lookup(
+    amp_set, before_set, thermal_set, amp_group, amp_tab = _ampacity_lookup(
         profile, sa, inst_names, inst_code, seg, mat, size, len(catalogue.sizes))
     ampacity = amp_set * sets
     ocpd = sa.ocpd_a[seg]
@@ -298,15 +391,37 @@ def build_candidates(
     egc_ok = egc >= 0
     egc = np.where(egc_ok, egc, 0)
 
+    # --- the neutral of a three-phase four-wire run: its own size -------------------------
+    neutral_size = neutral_size_index(
+        profile.name, catalogue, sa, seg, mat, size, sets, egc,
+        np.zeros(n) if neutral_a is None else np.asarray(neutral_a, dtype=float),
+        amp_group, amp_tab)
+    own_neutral = sa.own_neutral[seg]
+    keep &= ~own_neutral | (neutral_size >= 0)
+    neutral_size = np.where(own_neutral & (neutral_size >= 0), neutral_size, size)
+
     # --- money --------------------------------------------------------------------------
-    capex = installed_cost(prices, length, sa.conductors[seg], mat, size, sets, egc)
+    capex = installed_cost(prices, length, sa.conductors[seg], mat, size, sets, egc,
+                           neutral_size=np.where(own_neutral, neutral_size, -1))
     keep &= np.isfinite(capex) & egc_ok
 
     r_ohm = r_m * length / sets
     x_ohm = x_m * length / sets
-    loss_factor = np.where(sa.phases[seg] == 1, 2.0, 3.0)
-    loss_w = loss_factor * current**2 * r_ohm
-    loss_pv = loss_w * loss_pv_per_w
+    if loss_a2 is None:
+        loss_a2 = np.where(sa.phases == 1, 2.0, 3.0) * sa.current_a ** 2
+    loss_w = np.asarray(loss_a2, dtype=float)[seg] * r_ohm
+    if neutral_a2 is not None:
+        # The neutral's I²R at its own size (same temperature as the phases: a stated
+        # simplification; it carries less current and runs cooler).
+        r_n = r_ohm.copy()
+        other = own_neutral & (neutral_size != size)
+        for code in np.unique(imp_code[other]).tolist():
+            mask = other & (imp_code == code)
+            r_n[mask] = impedance_ohm_per_m(
+                catalogue, MATERIALS[code % 2], neutral_size[mask], temp_c[mask],
+                inst_names[code // 2], profile.frequency_hz)[0] * length[mask] / sets[mask]
+        loss_w = loss_w + np.where(own_neutral, np.asarray(neutral_a2, float)[seg] * r_n, 0.0)
+    loss_pv = loss_w * _per_row(loss_pv_per_w, seg)
 
     idx = np.flatnonzero(keep)
     counts = np.bincount(seg[idx], minlength=n)
@@ -327,8 +442,23 @@ def build_candidates(
         capex=capex[idx],
         loss_pv=loss_pv[idx],
         egc_size_index=egc[idx],
+        neutral_size_index=neutral_size[idx],
     )
     return table, diagnosis
+
+
+def _own_neutral(segments: tuple[Segment, ...], table: CandidateTable) -> np.ndarray | None:
+    """The rows' neutral size index where a three-phase run has its own (−1 elsewhere)."""
+    if table.neutral_size_index is None:
+        return None
+    own = np.array([seg.phases == 3 and seg.neutral for seg in segments], dtype=bool)
+    return np.where(own[table.segment], table.neutral_size_index, -1)
+
+
+def _per_row(per_segment: float | np.ndarray, seg: np.ndarray) -> np.ndarray | float:
+    """A per-segment value spread over rows (a single value stays as it is)."""
+    arr = np.asarray(per_segment, dtype=float)
+    return float(arr) if arr.ndim == 0 else arr[seg]
 
 
 def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes):
@@ -363,7 +493,8 @@ def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes
         thermal_tab[g] = (table_ampacity_a(profile, MATERIALS[m], all_sizes, float(ins), inst_name)
                           * ambient_factor(profile, float(ins), float(amb), inst_name)
                           * grouping_factor(profile, int(grp)))
-    return code_tab[group, size], before_tab[group, size], thermal_tab[group, size]
+    return (code_tab[group, size], before_tab[group, size], thermal_tab[group, size], group,
+            code_tab)
 
 
 def _smallest_compliant(seg, mat, size, sets, ok, area_mm2, n):
@@ -430,7 +561,7 @@ def reprice(
     segments: tuple[Segment, ...],
     catalogue: Catalogue,
     prices: PriceList,
-    loss_pv_per_w: float,
+    loss_pv_per_w: float | np.ndarray,
 ) -> CandidateTable:
     """The same rows with ``capex`` and ``loss_pv`` for new prices and a new F (money per W).
 
@@ -448,6 +579,7 @@ def reprice(
     seg = table.segment
     length = np.array([s.length_m for s in segments], dtype=float)[seg]
     capex = installed_cost(prices, length, conductors[seg], table.material, table.size_index,
-                           table.sets, table.egc_size_index)
-    loss_pv = table.loss_w * loss_pv_per_w
+                           table.sets, table.egc_size_index,
+                           neutral_size=_own_neutral(segments, table))
+    loss_pv = table.loss_w * _per_row(loss_pv_per_w, seg)
     return replace(table, capex=capex, loss_pv=loss_pv)

@@ -137,6 +137,10 @@ FIELDS: tuple[Field, ...] = (
     _F("economics", "emission_factor", "CO2 per kWh lost, for the report", r.read_emission,
        unit="kg/kWh", default=0.4, attr="emission_kg_per_kwh", sweep=True,
        example='"0.4 kg/kWh"'),
+    _F("economics", "loss_load_method", "how each run's loss-load factor is found: from the "
+       "mean and spread of the loads below it (moments), or 0.3 LF + 0.7 LF² on its own "
+       "load factor (buller-woodrow)", r.read_loss_load_method, default="moments",
+       bounds="moments | buller-woodrow", attr="loss_load_method", example='"moments"'),
     # --- [prices]
     _F("prices", "catalogue", "price list (CSV): beside the scenario, or a bundled one",
        r.read_text, default_text="the bundled demo list for the profile's sizes",
@@ -236,6 +240,53 @@ FIELDS: tuple[Field, ...] = (
     _F("node", "max_sets", "most parallel sets the optimiser may use", r.read_sets,
        default=4, bounds=f"1 to {MAX_SETS}", attr="max_sets", also_defaults=True,
        example="4"),
+    # How the load runs, for losses only (sizer.operating); sizing never reads these.
+    _F("node", "category", "load category for its operating profile: a row of "
+       "sizer/operating_profiles.csv", r.read_category,
+       default_text="motors for a motor, unknown with no load, else general",
+       bounds="general | lighting | receptacles | motors | hvac | process_heating | "
+       "ev_charging | it | unknown", attr="category", also_defaults=True,
+       example='"lighting"'),
+    _F("node", "utilisation", "peak operating current over the declared load (over the "
+       "device rating when no load is given), for losses", r.read_fraction,
+       default_text="the category's", bounds="(0, 1]", attr="utilisation",
+       also_defaults=True, example="0.6"),
+    _F("node", "load_factor", "mean over peak operating current of the load, for losses",
+       r.read_fraction, default_text="the category's", bounds="(0, 1]", attr="load_factor",
+       also_defaults=True, example="0.45"),
+    _F("node", "full_load_hours", "equivalent full-load hours a year (instead of "
+       "load_factor: hours / [economics] hours)", r.read_full_load_hours, unit="h",
+       default_text="from load_factor", bounds="above 0, at most 8784 h",
+       attr="full_load_hours", also_defaults=True, example='"3000 h"'),
+    _F("node", "loss_load_factor", "mean square over peak² of the operating current",
+       r.read_fraction, default_text="0.3 LF + 0.7 LF²", bounds="load_factor² to "
+       "load_factor", attr="loss_load_factor", example="0.3"),
+    _F("node", "peak_coincidence", "the load's current at the building's peak over its "
+       "own peak (its loss at that peak bears the demand charge)", r.read_fraction,
+       default_text="the category's", bounds="(0, 1]", attr="peak_coincidence",
+       also_defaults=True, example="0.8"),
+    _F("node", "coincidence", "a feeder's operating peak over the sum of the operating "
+       "peaks below it (diversity), for losses", r.read_fraction,
+       default_text="the demand_factor", bounds="(0, 1]", attr="coincidence",
+       example="0.7"),
+    _F("node", "load_growth", "yearly growth of the loads at and below this node, for "
+       "losses", r.read_percent, unit="%", default_text="[economics] load_growth",
+       attr="load_growth", example='"3 %"'),
+    _F("node", "phase", "the phase (line to neutral) or pair (line to line) a single-phase "
+       "circuit on a three-phase panel uses", r.read_phase,
+       default_text="assigned by sizer to balance the panel",
+       bounds="A | B | C | AB | BC | CA", attr="phase", example='"BC"'),
+    _F("node", "triplen", "third-harmonic current of the load as a share of its current "
+       "(adds up in the neutral)", r.read_percent, unit="%", default=0.0,
+       bounds="0 to 100 %", attr="triplen", example='"30 %"'),
+    _F("node", "spare", "spare capacity reserved on a feeder or panel: sizes its run "
+       "(ampacity, device, drop) but not its losses", r.read_percent, unit="%",
+       default=0.0, bounds="0 to 100 %", attr="spare", example='"25 %"'),
+    _F("node", "neutral_size", "a three-phase run's neutral over the phase size: up to "
+       "200 % (nonlinear loads), or \"reduced\" to its own current where the rule profile "
+       "allows (sizer/rules/neutral.csv)", r.read_neutral_size, unit="%", default=1.0,
+       default_text="100 % (full size)", bounds="\"reduced\" or 100 % to 200 %",
+       attr="neutral_size", also_defaults=True, example='"200 %"'),
     _F("node", "transformer", "the node is a transformer: a table of the keys below",
        attr="transformer", subtable=True, example='{ rating = "75 kVA", ... }'),
     _F("node", "motor", "the node's load is a motor: a table of the keys below",

@@ -43,6 +43,7 @@ class Economics:
     hours_per_year: float = 8760.0
     # Grid emission factor for the CO2 column; 0.4 kg/kWh is a round mid-range grid value.
     emission_kg_per_kwh: float = 0.4
+    loss_load_method: str = "moments"   # one of LOSS_LOAD_METHODS (sizer.operating)
 
     def __post_init__(self) -> None:
         _check(self.energy_price_per_kwh >= 0, "must not be negative", None, "energy_price")
@@ -62,6 +63,9 @@ class Economics:
                    "loss_load_factor")
         _check(0 < self.hours_per_year <= 8784, "must be between 0 and 8784 h", None, "hours")
         _check(self.emission_kg_per_kwh >= 0, "must not be negative", None, "emission_factor")
+        _check(self.loss_load_method in LOSS_LOAD_METHODS,
+               "must be one of " + ", ".join(f'"{m}"' for m in LOSS_LOAD_METHODS), None,
+               "loss_load_method")
 
 
 @dataclass(frozen=True)
@@ -153,6 +157,49 @@ class CableSettings:
         _check(self.max_sets >= 1, "must be at least 1", None, "max_sets")
 
 
+# How a run's loss-load factor is found (see sizer.operating): from the mean and spread of
+# the loads below it ("moments"), or Buller-Woodrow on the run's own load factor.
+LOSS_LOAD_METHODS = ("moments", "buller-woodrow")
+
+
+@dataclass(frozen=True)
+class Operating:
+    """How a node's load runs, for losses only (None: the category's or parent's default).
+
+    Sizing never reads these: ampacity, protection and drop use the code's sizing current.
+    """
+
+    category: str | None = None          # a row of sizer/operating_profiles.csv
+    utilisation: float | None = None     # peak operating current / the declared load
+    load_factor: float | None = None     # mean / peak operating current
+    full_load_hours: float | None = None   # instead of load_factor: h / hours per year
+    loss_load_factor: float | None = None  # mean square / peak² of the operating current
+    peak_coincidence: float | None = None  # current at the building's peak / own peak
+    coincidence: float | None = None     # feeders: operating peak / sum of the peaks below
+    load_growth: float | None = None     # fraction per year, for this node and below
+
+    def __post_init__(self) -> None:
+        for name in ("utilisation", "load_factor", "loss_load_factor", "peak_coincidence",
+                     "coincidence"):
+            value = getattr(self, name)
+            if value is not None:
+                _check(math.isfinite(value) and 0 < value <= 1, "must be in (0, 1]", None,
+                       name)
+        _check(self.load_factor is None or self.full_load_hours is None,
+               "give load_factor or full_load_hours, not both", None, "full_load_hours")
+        if self.full_load_hours is not None:
+            _check(math.isfinite(self.full_load_hours) and 0 < self.full_load_hours <= 8784,
+                   "must be above 0 h and at most 8784 h", None, "full_load_hours")
+        if self.load_factor is not None and self.loss_load_factor is not None:
+            lf = self.load_factor
+            _check(lf * lf * (1 - 1e-9) <= self.loss_load_factor <= lf * (1 + 1e-9),
+                   f"{self.loss_load_factor:g} is impossible with load_factor {lf:g}: any "
+                   f"load curve has LF² ≤ loss load factor ≤ LF", None, "loss_load_factor")
+        if self.load_growth is not None:
+            _check(math.isfinite(self.load_growth) and -0.5 < self.load_growth < 1.0,
+                   "must be between -50 % and 100 %", None, "load_growth")
+
+
 @dataclass(frozen=True)
 class Source:
     """The service or supply transformer secondary at the root of the tree."""
@@ -197,6 +244,13 @@ class Node:
     voltage_assumed: bool = False  # 1-phase with no voltage given: line to line was taken
     device_100_percent: bool = False  # device listed for 100 % continuous operation
     description: str = ""         # free text from the scenario, shown in reports
+    operating: Operating = field(default_factory=Operating)  # how the load runs (losses)
+    phase: str | None = None      # "A" | "B" | "C" | "AB" | "BC" | "CA"; None: assigned
+    triplen: float = 0.0          # third-harmonic current / the load's current (neutral)
+    spare: float = 0.0            # spare capacity reserved: sizes the run, not its losses
+    # Neutral of a three-phase run over the phase area: 1 full, up to 2; 0: reduced to
+    # its own current where the rule profile allows (sizer/rules/neutral.csv).
+    neutral_size: float = 1.0
 
     def __post_init__(self) -> None:
         # The dataclass checks its own fields; whole-tree checks live in sizer.validation.
@@ -217,6 +271,12 @@ class Node:
                    "clearing_time")
         _check(math.isfinite(self.nonlinear) and 0 <= self.nonlinear <= 1,
                "must be a share from 0 to 1", self.id, "nonlinear")
+        _check(math.isfinite(self.triplen) and 0 <= self.triplen <= 1,
+               "must be between 0 and 100 %", self.id, "triplen")
+        _check(math.isfinite(self.spare) and 0 <= self.spare <= 1,
+               "must be between 0 and 100 %", self.id, "spare")
+        _check(self.neutral_size == 0.0 or 1.0 <= self.neutral_size <= 2.0,
+               "must be \"reduced\" or between 100 % and 200 %", self.id, "neutral_size")
 
 
 @dataclass(frozen=True)
@@ -312,6 +372,7 @@ class CandidateTable:
     # table ampacity before adjustment (terminal-limited column, sets summed), for the
     # first ampacity test (NEC 210.19(A)(1)(a)); empty when not built
     ampacity_before_a: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    neutral_size_index: np.ndarray | None = None   # the neutral's own size (3-phase runs)
 
     def __len__(self) -> int:
         return int(self.segment.shape[0])
@@ -346,6 +407,13 @@ class SegmentResult:
     loadflow_drop_pct: float | None = None
     fault_ka: float | None = None
     bonding_jumper: str | None = None  # service conductors: supply-side bonding jumper
+    operating_a: float = 0.0          # peak operating current used for losses
+    phase: str | None = None          # single-phase runs on a three-phase system
+    phase_currents_a: tuple[float, float, float] | None = None  # three-phase runs (sizing)
+    neutral_a: float | None = None    # three-phase runs: phasor sum + triplens (sizing)
+    neutral_size: str | None = None   # three-phase runs with a neutral: its own size
+    loss_kwh_per_year: float = 0.0    # first year, from the run's own loss-load factor
+    loss_cost_per_year: float = 0.0   # first year: energy + demand charge at the building peak
 
 
 @dataclass(frozen=True)

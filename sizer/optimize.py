@@ -12,6 +12,7 @@ from collections.abc import Callable
 from dataclasses import dataclass, replace
 from enum import StrEnum
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -37,9 +38,18 @@ from sizer.model import (
     Totals,
     Violation,
 )
+from sizer.operating import RunProfiles, run_profiles
+from sizer.phases import (
+    PhaseState,
+    assign_phases,
+    loss_current_squared_by_phase,
+    neutral_current_squared,
+    sized_by_worst_phase,
+)
 from sizer.rules import REL_TOL, load_profile
 from sizer.rules.motors import branch_device_a
 from sizer.rules.profile import RuleProfile
+from sizer.spare import with_spare_capacity
 from sizer.topology import Topology
 from sizer.units import conductor_label
 
@@ -68,6 +78,8 @@ class Prepared:
     fixed_drop_pct: np.ndarray
     topology: Topology
     leaf_limit_pct: np.ndarray
+    runs: RunProfiles            # operating peaks and loss profiles (sizer.operating)
+    phases: PhaseState           # phase assignment, phase and neutral currents
 
     @property
     def parent(self) -> np.ndarray:
@@ -115,13 +127,21 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
     segments = design_segments(scenario, profile)
     price_list = prices if prices is not None else price_list_for(scenario, catalogue)
     econ = economic_params(scenario)
+    runs = run_profiles(scenario, segments, econ)
+    phase_state = assign_phases(scenario, segments, runs)
+    segments = with_spare_capacity(sized_by_worst_phase(segments, phase_state, profile),
+                                   profile)
     table, local = build_candidates(
-        segments, profile, catalogue, price_list, econ.loss_pv_per_w, keep_pins=keep_pins
+        segments, profile, catalogue, price_list, runs.loss_pv_per_w(econ),
+        keep_pins=keep_pins,
+        loss_a2=loss_current_squared_by_phase(segments, runs, phase_state),
+        neutral_a=phase_state.neutral_a,
+        neutral_a2=neutral_current_squared(segments, phase_state),
     )
     topology = Topology(np.array([s.parent_index for s in segments], dtype=np.int64))
     limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)
     return Prepared(scenario, profile, catalogue, price_list, econ, segments, table, local,
-                    transformer_drops_pct(segments), topology, limit)
+                    transformer_drops_pct(segments), topology, limit, runs, phase_state)
 
 
 def objective_costs(table: CandidateTable, objective: Objective,
@@ -166,6 +186,9 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
     vd = t.vd_pct[choice]
     path = path_drops_pct(prep.parent, vd, prep.fixed_drop_pct)
     service = [seg.service and prep.profile.bonds_service() for seg in prep.segments]
+    loss_w = t.loss_w[choice]
+    kwh = loss_w * prep.runs.kwh_per_w(prep.economics)
+    cost_year = loss_w * prep.runs.annual_cost_per_w(prep.economics)
     results = []
     for s, seg in enumerate(prep.segments):
         r = int(choice[s])
@@ -184,12 +207,13 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
             ocpd_a=seg.ocpd_a, capex=float(t.capex[r]), loss_kw=float(t.loss_w[r]) / 1e3,
             loss_pv=float(t.loss_pv[r]), temp_c=float(t.temp_c[r]),
             voltage_v=seg.voltage_v, phases=seg.phases, pinned=seg.node.pin is not None,
+            operating_a=float(prep.runs.operating_a[s]), loss_kwh_per_year=float(kwh[s]),
+            loss_cost_per_year=float(cost_year[s]), **_phase_fields(prep, s, r),
         ))
-    loss_w = float(t.loss_w[choice].sum())
     totals = Totals(
         capex=float(t.capex[choice].sum()),
         loss_pv=float(t.loss_pv[choice].sum()),
-        loss_kwh_per_year=float(prep.economics.annual_loss_kwh(loss_w)),
+        loss_kwh_per_year=float(kwh.sum()),
     )
     return Design(
         status=status, objective=objective, rules=prep.profile.name,
@@ -201,6 +225,20 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
         notes=(solution.message,) if solution and solution.message else (),
         choice=tuple(int(r) for r in choice),
     )
+
+
+def _phase_fields(prep: Prepared, s: int, row: int) -> dict[str, Any]:
+    """``phase`` of a single-phase run, phase and neutral currents of a three-phase one."""
+    seg = prep.segments[s]
+    if seg.phases == 1:
+        return {"phase": prep.phases.phase[s]}
+    a, b, c = (float(v) for v in prep.phases.sizing_a[s])
+    out: dict[str, Any] = {"phase_currents_a": (a, b, c),
+                           "neutral_a": float(prep.phases.neutral_a[s])}
+    t = prep.table
+    if seg.neutral and t.neutral_size_index is not None:
+        out["neutral_size"] = prep.catalogue.sizes[int(t.neutral_size_index[row])]
+    return out
 
 
 def empty_design(prep: Prepared, status: DesignStatus, objective: str,

@@ -374,3 +374,53 @@ def money_reader(currency: str, per: str, alt_per: str = "") -> Reader:
                                      f"{MAX_PRICE:g} (check the unit)")
         return _price_bound(x, value)
     return reader
+
+
+def read_category(value: Any, text: bool = False) -> str:
+    """A load category of ``sizer/operating_profiles.csv`` (how the load runs, for losses)."""
+    from sizer.operating import categories  # the data file's rows; imported late (data)
+
+    name = read_text(value, text)
+    known = categories()
+    if name not in known:
+        hint = suggest(name, known)
+        raise ScenarioError(f"unknown load category {show(value)}; use one of "
+                            + ", ".join(known) + hint)
+    return name
+
+
+def read_loss_load_method(value: Any, text: bool = False) -> str:
+    """How each run's loss-load factor is found: moments | buller-woodrow."""
+    from sizer.model import LOSS_LOAD_METHODS
+
+    name = read_text(value, text)
+    if name not in LOSS_LOAD_METHODS:
+        raise ScenarioError(f"must be one of {', '.join(LOSS_LOAD_METHODS)}, got {show(value)}")
+    return name
+
+
+def read_full_load_hours(value: Any, text: bool = False) -> float:
+    """Equivalent full-load hours a year (0 < h ≤ 8784)."""
+    h = read_hours(value, text)
+    if not 0 < h <= 8784:
+        raise ScenarioError(f"must be above 0 h and at most 8784 h a year, got {show(value)}")
+    return h
+
+
+def read_phase(value: Any, text: bool = False) -> str:
+    """The line(s) a single-phase circuit uses: A, B, C (to neutral) or AB, BC, CA."""
+    name = read_text(value, text).upper()
+    if name not in ("A", "B", "C", "AB", "BC", "CA"):
+        raise ScenarioError(f"must be A, B or C (line to neutral) or AB, BC or CA (line to "
+                            f"line), got {show(value)}")
+    return name
+
+
+def read_neutral_size(value: Any, text: bool = False) -> float:
+    """A three-phase neutral's size: "reduced" (0.0) or 100 % to 200 % of the phase area."""
+    if isinstance(value, str) and value.strip().lower() == "reduced":
+        return 0.0
+    pct = read_percent(value, text)
+    if not 1.0 - 1e-12 <= pct <= 2.0 + 1e-12:
+        raise ScenarioError(f'must be "reduced" or between 100 % and 200 %, got {show(value)}')
+    return pct

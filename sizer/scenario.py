@@ -57,6 +57,7 @@ from sizer.model import (
     Economics,
     Motor,
     Node,
+    Operating,
     Prices,
     Scenario,
     Source,
@@ -705,10 +706,20 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 nonlinear=v.get("nonlinear", 0.0),
                 voltage_assumed=v.get("voltage_assumed", False),
                 device_100_percent=v.get("device_100_percent", False),
+                phase=v.get("phase"), triplen=v.get("triplen", 0.0),
+                spare=v.get("spare", 0.0),
+                neutral_size=v.get("neutral_size", defaults["neutral_size"]),
+                operating=Operating(**{
+                    name: v.get(key, defaults.get(key)) for key, name in _OPERATING_KEYS}),
             ))
         except ScenarioError as exc:
             report.add_error(exc, node=d.id, file=d.file)
     return tuple(nodes)
+
+
+# Node keys of how the load runs (sizer.operating) → Operating attributes.
+_OPERATING_KEYS = tuple((f.name, f.attr) for f in fields.in_table("node")
+                        if f.attr in {x.name for x in dataclasses.fields(Operating)})
 
 
 # --- writing a schedule -----------------------------------------------------------------------
@@ -746,6 +757,17 @@ def _schedule_row(n: Node) -> dict[str, str]:
         "grouping": "auto" if c.grouping is None else str(c.grouping),
         "max_sets": str(c.max_sets),
     }
+    row["phase"] = n.phase or ""
+    row["triplen"] = "" if n.triplen == 0.0 else f"{_num(100 * n.triplen)} %"
+    row["spare"] = "" if n.spare == 0.0 else f"{_num(100 * n.spare)} %"
+    row["neutral_size"] = ("reduced" if n.neutral_size == 0.0
+                           else f"{_num(100 * n.neutral_size)} %")
+    op = n.operating
+    for key, name in _OPERATING_KEYS:
+        value = getattr(op, name)
+        row[key] = ("" if value is None else value if isinstance(value, str)
+                    else f"{_num(value)} h" if key == "full_load_hours"
+                    else f"{_num(100 * value)} %" if key == "load_growth" else _num(value))
     if (t := n.transformer) is not None:
         row |= {"transformer.rating": f"{_num(t.rating_va)} VA",
                 "transformer.secondary": f"{_num(t.secondary_v)} V",

@@ -26,6 +26,7 @@ from sizer.optimize import (
     optimise,
     prepare,
 )
+from sizer.spare import has_spare, without_spare
 from sizer.topology import Topology
 from sizer.verify import Network, fault_currents_a, load_flow, motor_start_dip_pct
 
@@ -314,7 +315,7 @@ def check_verified(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",
 class Option:
     """One way to build the job, for the side-by-side comparison."""
 
-    key: str              # "code_minimum" | "lifecycle" | "all_copper" | "as_pinned"
+    key: str  # "code_minimum" | "lifecycle" | "all_copper" | "without_spare" | "as_pinned"
     title: str
     design: Design
 
@@ -330,7 +331,10 @@ def all_copper(scenario: Scenario) -> Scenario:
 def compare_options(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",
                     time_limit_s: float | None = None, progress: Progress = quiet,
                     solved: Sequence[Design] = ()) -> list[Option]:
-    """Code-minimum, lifecycle optimum, all-copper and (when pins exist) the pinned design.
+    """Code minimum, lifecycle optimum, all copper, without spare and pinned options.
+
+    The option without the spare capacity is there when a node reserves some; the pinned
+    design when pins exist.
 
     Each is verified by load flow like a normal solve; an option that has no feasible
     design is still listed, with its status. ``solved`` designs of this scenario (by
@@ -357,6 +361,12 @@ def compare_options(prep: Prepared, *, engine: str = "auto", solver: str = "cbc"
         out.append(Option("all_copper", "All copper, lifecycle optimum",
                           solve_verified(cu, Objective.LIFECYCLE, engine=engine, solver=solver,
                                          time_limit_s=time_limit_s)[0]))
+    if has_spare(prep.scenario):
+        progress("option: without the spare capacity")
+        bare = prepare(without_spare(prep.scenario), prices=prep.prices)
+        out.append(Option("without_spare", "Lifecycle optimum without the spare capacity",
+                          solve_verified(bare, Objective.LIFECYCLE, engine=engine,
+                                         solver=solver, time_limit_s=time_limit_s)[0]))
     if any(n.pin is not None for n in prep.scenario.nodes):
         progress("option: the design as pinned")
         pinned = prepare(prep.scenario, keep_pins=True, prices=prep.prices)

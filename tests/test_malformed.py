@@ -247,6 +247,17 @@ CASES = [
      "not made in Al"),
     ("pin-more-sets-than-allowed", in_kiln('max_sets = 2\nconductor = "3x 250 kcmil Cu"'),
      "KILN", "conductor", "max_sets is 2"),
+    # --- how the load runs (losses only: sizer.operating)
+    ("category-misspelt", in_kiln('category = "lightning"'), "KILN", "category",
+     "did you mean 'lighting'?"),
+    ("utilisation-above-one", in_kiln("utilisation = 1.5"), "KILN", "utilisation",
+     "must be in (0, 1]"),
+    ("load-factor-and-hours", in_kiln('load_factor = 0.5\nfull_load_hours = "3000 h"'),
+     "KILN", "full_load_hours", "not both"),
+    ("loss-load-factor-impossible", in_kiln("load_factor = 0.5\nloss_load_factor = 0.6"),
+     "KILN", "loss_load_factor", "impossible with load_factor 0.5"),
+    ("full-load-hours-beyond-a-year", in_kiln('full_load_hours = "9000 h"'), "KILN",
+     "full_load_hours", "at most 8784 h"),
     # --- found when the currents are worked out (still exit code 2)
     ("device-below-current", edit('load = "180 kW"', 'load = "180 kW"\nocpd = "100 A"'),
      "KILN", "ocpd", "below the design current"),

@@ -34,7 +34,10 @@ def seg(id_: str, material: str, size: str, capex: float, loss_kw: float, *, set
         egc="6 AWG", length_m=length_m, current_a=current_a, ampacity_a=ampacity_a,
         vd_pct=0.5, path_vd_pct=path_vd_pct, r_ohm=0.01, x_ohm=0.005, ocpd_a=125.0,
         capex=capex, loss_kw=loss_kw, loss_pv=loss_kw * 1e3 * ECON.loss_pv_per_w,
-        temp_c=60.0, voltage_v=480.0, phases=3, loadflow_drop_pct=loadflow, fault_ka=10.0)
+        temp_c=60.0, voltage_v=480.0, phases=3, loadflow_drop_pct=loadflow, fault_ka=10.0,
+        # The run's own T and cost per W: here the scenario's (one profile for every run).
+        loss_kwh_per_year=float(ECON.annual_loss_kwh(loss_kw * 1e3)),
+        loss_cost_per_year=loss_kw * 1e3 * ECON.annual_cost_per_w)
 
 
 def design(objective: str, *segments: SegmentResult) -> Design:

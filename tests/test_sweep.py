@@ -230,7 +230,7 @@ def test_reprice_equals_a_rebuilt_table(tree, tmp_path):
                           materials='["Cu", "Al"]', energy_price="0.21 USD/kWh")
     rebuilt = prepare(load_scenario(path))
     again = reprice(base.table, base.segments, base.catalogue, rebuilt.prices,
-                    rebuilt.economics.loss_pv_per_w)
+                    rebuilt.runs.loss_pv_per_w(rebuilt.economics))
     np.testing.assert_array_equal(again.capex, rebuilt.table.capex)
     np.testing.assert_array_equal(again.loss_pv, rebuilt.table.loss_pv)
     moved = prepared_at(base, ("energy_price", "copper"), (0.21, 13.0))

@@ -22,7 +22,10 @@ def test_closed_loop_keeps_every_path_within_its_limit_by_load_flow(path, object
         assert res.loadflow_drop_pct is not None and res.fault_ka is not None
         if seg.is_leaf:
             assert res.loadflow_drop_pct <= total + 1e-6
-        # The linear estimate (kVA summed arithmetically, conservative) and the load flow
-        # (vector sums, voltage-dependent currents) agree within a fraction of a percent.
-        assert abs(res.loadflow_drop_pct - res.path_vd_pct) < 0.75
+        # The linear estimate (kVA summed arithmetically, each feeder at its most loaded
+        # phase: conservative) and the balanced load flow (vector sums, voltage-dependent
+        # currents) agree within a fraction of a percent; the estimate may sit a little
+        # higher where a panel's single-phase circuits cannot be balanced exactly.
+        assert res.loadflow_drop_pct - res.path_vd_pct < 0.75
+        assert res.path_vd_pct - res.loadflow_drop_pct < 1.0
         assert res.fault_ka > 0

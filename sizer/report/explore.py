@@ -141,6 +141,8 @@ def explorer_data(points: Sequence[DesignPoint], shown: int, reference: int,
             "label": p.label, "method": p.method,
             "capex": round(d.totals.capex, 2), "losspv": round(d.totals.loss_pv, 2),
             "lossw": round(loss_w, 3), "kwh": round(d.totals.loss_kwh_per_year, 1),
+            # First-year loss cost, each run at its own T and peak coincidence.
+            "losscost": round(sum(s.loss_cost_per_year for s in d.segments), 2),
             "findings": p.findings,
             "worst": round(max(worst_lf), 4) if len(worst_lf) == len(d.segments) and worst_lf
             else round(d.worst_path_drop_pct(), 4),
@@ -251,8 +253,14 @@ def frontier_svg(points: Sequence[DesignPoint], shown: int, reference: int,
                           if points[i].method)
     if path != "M":
         parts.append(f'<path class="front" d="{path}"/>')
+    # Each point's click target: 12 px, shrunk to under half the gap to its nearest
+    # neighbour so that close points never cover each other's centre.
+    where = [(px(xs[i]), py(ys[i])) for i in range(len(points))]
+    hit_r = [min([12.0] + [max(3.0, 0.45 * math.dist(a, b))
+                           for j, b in enumerate(where) if j != i])
+             for i, a in enumerate(where)]
     for i, p in enumerate(points):
-        x, y = px(xs[i]), py(ys[i])
+        x, y = where[i]
         title = (f"{p.label}: upfront {xs[i]:,.0f} {currency}, losses {ys[i]:,.0f} "
                  f"{currency} present value")
         if i == reference:
@@ -266,7 +274,7 @@ def frontier_svg(points: Sequence[DesignPoint], shown: int, reference: int,
         ring = " on" if i == shown else ""
         parts.append(f'<g class="pick{ring}" data-p="{i}" tabindex="0" role="button">'
                      f"<title>{esc(title)}</title>"
-                     f'<circle class="hit" cx="{x:.1f}" cy="{y:.1f}" r="12"/>{mark}'
+                     f'<circle class="hit" cx="{x:.1f}" cy="{y:.1f}" r="{hit_r[i]:.1f}"/>{mark}'
                      f'<circle class="ring" cx="{x:.1f}" cy="{y:.1f}" r="11"/></g>')
     parts.append("</svg>")
     return "".join(parts)

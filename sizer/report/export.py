@@ -54,6 +54,10 @@ def clean(value: Any) -> Any:
 
 
 _SEGMENT_FIELDS = tuple(f.name for f in fields(SegmentResult))
+# Keys written only on the runs they describe: ``phase`` on single-phase runs of a
+# three-phase system, ``phase_currents_a`` and ``neutral_a`` on three-phase runs,
+# ``neutral_size`` on three-phase runs with a neutral.
+_ONLY_WHERE_SET = frozenset({"phase", "phase_currents_a", "neutral_a", "neutral_size"})
 
 
 def design_document(design: Design, extra: Mapping[str, Any] | None = None) -> dict[str, Any]:
@@ -72,7 +76,9 @@ def design_document(design: Design, extra: Mapping[str, Any] | None = None) -> d
             "lifecycle": design.totals.lifecycle,
             "loss_kwh_per_year": design.totals.loss_kwh_per_year,
         },
-        "segments": [{k: getattr(s, k) for k in _SEGMENT_FIELDS} for s in design.segments],
+        "segments": [{k: getattr(s, k) for k in _SEGMENT_FIELDS
+                      if k not in _ONLY_WHERE_SET or getattr(s, k) is not None}
+                     for s in design.segments],
     }
     if design.diagnosis:
         doc["diagnosis"] = list(design.diagnosis)

@@ -258,7 +258,9 @@ class _Page:
             '<a href="#scenario">Scenario</a>'
             '<a href="#assumptions">Assumptions</a><a href="#options">Options</a>'
             '<a href="#justification">Why upsize</a><a href="#schedule">Schedule</a>'
-            '<a href="#figures">Figures</a><a href="#verification">Verification</a></nav>',
+            '<a href="#figures">Figures</a>'
+            + ('<a href="#phases">Phases</a>' if self.has_phases() else "")
+            + '<a href="#verification">Verification</a></nav>',
             self.explore_section(),
             self.tree_section(),
             self.scenario_section(),
@@ -267,6 +269,7 @@ class _Page:
             self.justification_section(),
             self.schedule_section(),
             self.figures_section(),
+            self.phase_section(),
             self.verification_section(),
             *extra_sections,
             f'<footer><div class="caution" role="note"><strong>Caution</strong>'
@@ -299,7 +302,7 @@ class _Page:
                  f"upfront + losses over {self.econ.years:g} years, today's money",
                  key="lifecycle"),
             card("Losses", f"{tb.money(t.loss_kwh_per_year)} kWh/yr",
-                 f"{tb.money(tb.peak_loss_w(d) * self.econ.annual_cost_per_w)} {self.cur} "
+                 f"{tb.money(tb.annual_loss_cost(d))} {self.cur} "
                  "in the first year", key="losses"),
             card("Worst voltage drop", pct(worst),
                  f"{'AC load flow' if worst_lf is not None else 'linear estimate'}, "
@@ -431,12 +434,14 @@ class _Page:
             ("Discount rate", f"{100 * e.discount:g} % a year"),
             ("Load growth", f"{100 * e.load_growth:g} % a year"),
             ("Lifetime", f"{e.years:g} years"),
-            ("Load factor", f"{se.load_factor:g}"),
+            ("Load factor", f"{se.load_factor:g} (loads with no category)"),
             ("Loss load factor", f"{e.theta:.3f} "
-                                 + ("(given)" if given_llf else "(0.3 LF + 0.7 LF²)")),
+                                 + ("(given)" if given_llf else "(0.3 LF + 0.7 LF²)")
+                                 + "; each run has its own, see below"),
             ("Hours per year", f"{e.hours_per_year:g} h"),
             ("Present value of 1 W of peak loss",
-             f"{e.loss_pv_per_w:.3f} {self.cur} (IEC 60287-3-2)"),
+             f"{e.loss_pv_per_w:.3f} {self.cur} (IEC 60287-3-2) for a run that peaks with "
+             "the building at the load factor above; each run's own below"),
             ("Grid emission factor", f"{se.emission_kg_per_kwh:g} kg CO₂/kWh "
                                      "([economics] emission_factor; 0.4 when not given)"),
         ]
@@ -451,7 +456,34 @@ class _Page:
                 f"<div><h3>Rules</h3>{facts(rules)}"
                 f"{f'<ul class=muted>{notes}</ul>' if notes else ''}</div>"
                 f"<div><h3>Economics</h3>{facts(econ)}</div>"
-                f"<div><h3>Prices</h3>{facts(prices)}</div></div></section>")
+                f"<div><h3>Prices</h3>{facts(prices)}</div></div>"
+                f"{self.operation_block()}</section>")
+
+    def operation_block(self) -> str:
+        """How the loads run: the operating profiles behind the losses."""
+        rows = tb.profiles_table(self.prep)
+        method = self.scenario.economics.loss_load_method
+        how = ("each run's loss-load factor from the mean and spread of the loads below it "
+               "(spreads added as fully correlated, the upper bound)" if method == "moments"
+               else "each run's loss-load factor from its own load factor, 0.3 LF + 0.7 LF² "
+                    "(Buller-Woodrow)")
+        body = table(
+            ["Load category", "Loads", "Overridden", "Utilisation", "Load factor",
+             "Full-load hours", "Loss-load factor", "Peak coincidence", "Source"],
+            [(r.category.replace("_", " "), r.loads, r.overridden,
+              f"{100 * r.utilisation:.0f} %", f"{r.load_factor:.2f}",
+              f"{r.full_load_hours:,.0f} h", f"{r.loss_load_factor:.3f}",
+              f"{r.peak_coincidence:.2f}", r.source) for r in rows],
+            numeric=[False, True, True, True, True, True, True, True, False])
+        return ("<h3>How the loads run (losses only)</h3>"
+                "<p class=muted>Ampacity, protection and voltage drop use the code's sizing "
+                "currents; losses use each load's operating peak (utilisation × its declared "
+                "load, or × the device rating when no load is given) and profile. Feeders: "
+                "the phasor sum of the operating peaks below × the coincidence factor (the "
+                f"demand factor unless given); {how}. The demand charge falls on each run's "
+                "loss at the building's peak (peak coincidence squared). Category defaults "
+                "are common practice or from memory, marked in the source column.</p>"
+                + body)
 
     def price_facts(self) -> list[tuple[str, str]]:
         """The price list, its currency, date and metal prices."""
@@ -495,7 +527,22 @@ class _Page:
                   f"{self.econ.years:g} years (energy and demand charge, escalated and "
                   f"discounted). Loss cost and CO₂ per year are first-year figures; CO₂ uses "
                   f"{ef:g} kg/kWh and grows with the load over the life. The highlighted row "
-                  "is the lifecycle optimum.</p></section>")
+                  "is the lifecycle optimum.</p>" + self.spare_note() + "</section>")
+
+    def spare_note(self) -> str:
+        """What the reserved spare capacity costs, against the same optimum without it."""
+        by_key = {r.key: r for r in self.option_rows}
+        with_, bare = by_key.get("lifecycle"), by_key.get("without_spare")
+        if with_ is None or bare is None or not (with_.feasible and bare.feasible):
+            return ""
+        runs = [n.id for n in self.scenario.nodes if n.spare > 0]
+        added = with_.capex - bare.capex
+        total = with_.lifecycle - bare.lifecycle
+        return (f'<p class="note">Spare capacity reserved on {_count(len(runs), "run")} '
+                f"({esc(', '.join(runs))}): it adds {tb.money(added)} {self.cur} upfront "
+                f"and {tb.money(total)} {self.cur} to the lifetime total against the same "
+                "optimum without it (its losses are priced at the operating load, not the "
+                "reserve).</p>")
 
     def justification_section(self) -> str:
         """Per-segment upsizing: the sentences, the table, the totals."""
@@ -539,6 +586,47 @@ class _Page:
                               "savings after; where a curve crosses zero it has paid back."))
         out.append("</section>")
         return "".join(out)
+
+    def has_phases(self) -> bool:
+        """True when some single-phase circuit sits on a three-phase panel."""
+        return any(p is not None for p in self.prep.phases.phase)
+
+    def phase_section(self) -> str:
+        """Each three-phase panel's phase balance: currents per phase, neutral, bars."""
+        segs = self.prep.segments
+        ph = self.prep.phases
+        panels = []
+        for i, seg in enumerate(segs):
+            kids = [k for k, g in enumerate(segs) if g.parent_index == i
+                    and ph.phase[k] is not None]
+            if seg.phases == 3 and kids:
+                panels.append((i, kids))
+        if not panels:
+            return ""
+        rows = []
+        for i, kids in panels:
+            cur = [float(v) for v in ph.sizing_a[i]]
+            top = max(cur) or 1.0
+            mean = sum(cur) / 3
+            bars = "".join(
+                f'<div><span class="muted">{name}</span> <span style="display:inline-block;'
+                f'height:0.7em;width:{120 * c / top:.0f}px;background:#4a78a8"></span> '
+                f"{c:,.1f} A</div>" for name, c in zip("ABC", cur, strict=True))
+            on = "; ".join(f"{p}: " + ", ".join(segs[k].id for k in kids if ph.phase[k] == p)
+                           for p in ("A", "B", "C", "AB", "BC", "CA")
+                           if any(ph.phase[k] == p for k in kids))
+            rows.append(f"<tr><th>{esc(segs[i].id)}</th><td>{bars}</td>"
+                        f"<td class=num>{ph.neutral_a[i]:,.1f} A</td>"
+                        f"<td class=num>{100 * (top - mean) / mean if mean else 0:.1f} %</td>"
+                        f"<td>{esc(on)}</td></tr>")
+        return ('<section id="phases"><h2>Phase balance</h2><p class=muted>Single-phase '
+                "circuits on each three-phase panel, as fixed in the scenario or assigned "
+                "by sizer to make the most loaded phase as light as possible (sizing "
+                "currents). Feeders are sized and their drop taken at their most loaded "
+                "phase; the neutral carries the phasor sum plus declared triplen harmonics."
+                '</p><div class="scroll"><table><thead><tr><th>Panel</th><th>Phase currents'
+                "</th><th>Neutral</th><th>Top phase over the mean</th><th>Circuits</th></tr>"
+                f"</thead><tbody>{''.join(rows)}</tbody></table></div></section>")
 
     def schedule_section(self) -> str:
         """The cable schedule of the design: one row per run, narrow enough for a page.
@@ -607,19 +695,19 @@ class _Page:
                     '<span id="f-count" class="muted"></span>'
                     '<span class="muted">Click a column heading to sort.</span></div>')
         t = d.totals
-        out.append(controls)
-        out.append(f'<table class="schedule" id="schedule-table"><thead><tr>{head}</tr></thead>'
-                   f'<tbody>{"".join(body)}</tbody></table>')
-        out.append(f'<p class="note" id="schedule-totals">Totals: upfront {tb.money(t.capex)} '
-                   f"{cur}, loss PV {tb.money(t.loss_pv)} {cur}, "
-                   f"{tb.money(t.loss_kwh_per_year)} kWh lost in the first year.</p>")
         out.append('<p class="note">Use % is the design current over the ampacity (the '
                    "continuous-load factor is applied to the requirement, not shown here). "
                    "Drops are in % of each circuit's nominal voltage; path drops run from the "
                    "source to the run's far end, transformers included: the linear estimate "
                    "is what the optimiser holds to the limits, the AC load flow checks it. "
                    "Marked cells exceed their limit. EGC: equipment grounding conductor; "
-                   "Device: the overcurrent device rating.</p></section>")
+                   "Device: the overcurrent device rating.</p>")
+        out.append(controls)
+        out.append(f'<table class="schedule" id="schedule-table"><thead><tr>{head}</tr></thead>'
+                   f'<tbody>{"".join(body)}</tbody></table>')
+        out.append(f'<p class="note" id="schedule-totals">Totals: upfront {tb.money(t.capex)} '
+                   f"{cur}, loss PV {tb.money(t.loss_pv)} {cur}, "
+                   f"{tb.money(t.loss_kwh_per_year)} kWh lost in the first year.</p></section>")
         return "".join(out)
 
     def figures_section(self) -> str:

@@ -34,6 +34,7 @@ OPTION_MARKS = {
     "code_minimum": ("v", BRICK, 10),
     "lifecycle": ("*", TEAL, 15),
     "all_copper": ("D", OCHRE, 9),
+    "without_spare": ("X", INK, 9),
     "as_pinned": ("P", PLUM, 10),
 }
 METHOD_MARKS = {

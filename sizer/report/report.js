@@ -34,7 +34,7 @@
     }
     card("capex", money(p.capex) + " " + cur);
     card("lifecycle", money(p.capex + p.losspv) + " " + cur);
-    card("losses", money(p.kwh) + " kWh/yr", money(p.lossw * data.costPerW) + " " + cur + " in the first year");
+    card("losses", money(p.kwh) + " kWh/yr", money(p.losscost) + " " + cur + " in the first year");
     var d = card("drop", fixed(p.worst, 2) + " %", (p.basis === "AC load flow" ? "AC load flow" : "linear estimate") + ", limit " + data.dropLimit + " %");
     if (d) { d.classList.toggle("warn", p.worst > data.dropLimit + 1e-9); }
     var f = card("findings", String(p.findings), !p.findings ? "none from the checks run" :
@@ -139,7 +139,7 @@
     var cm = data.codeMinimum === null ? null : data.points[data.codeMinimum];
     if (cm && index !== data.codeMinimum) {
       var extra = p.capex - cm.capex;
-      var firstYear = (cm.lossw - p.lossw) * data.costPerW;
+      var firstYear = cm.losscost - p.losscost;
       if (extra > 0.5) {
         words += firstYear > 0 ? " Against the code minimum it pays back in " + fixed(extra / firstYear, 1) +
           " years (simple payback: added cost over the first year's saving)." : " Against the code minimum it never pays back.";

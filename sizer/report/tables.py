@@ -17,6 +17,8 @@ from dataclasses import dataclass
 
 from sizer.economics import EconomicParams, npv, q_factor, simple_payback_years
 from sizer.model import Design, SegmentResult
+from sizer.operating import load_profiles
+from sizer.optimize import Prepared
 from sizer.units import conductor_label
 from sizer.workflow import FrontierPoint, Option
 
@@ -44,6 +46,11 @@ def money(value: float) -> str:
 def peak_loss_w(design: Design) -> float:
     """Total peak I²R loss of a design (W)."""
     return 1e3 * sum(s.loss_kw for s in design.segments)
+
+
+def annual_loss_cost(design: Design) -> float:
+    """First-year cost of the design's losses: each run's energy and demand charge."""
+    return sum(s.loss_cost_per_year for s in design.segments)
 
 
 # --- options side by side ---------------------------------------------------------------
@@ -84,8 +91,7 @@ def option_row(key: str, title: str, design: Design, economics: EconomicParams,
         nan = math.nan
         return OptionRow(key, title, design.status, nan, nan, nan, nan, nan, nan, None,
                          nan, nan)
-    loss_w = peak_loss_w(design)
-    kwh = float(economics.annual_loss_kwh(loss_w))
+    kwh = design.totals.loss_kwh_per_year
     flows = [s.loadflow_drop_pct for s in design.segments]
     lf = max(flows) if all(v is not None for v in flows) else None  # type: ignore[type-var]
     co2_year = kwh * emission_kg_per_kwh / 1e3
@@ -94,7 +100,7 @@ def option_row(key: str, title: str, design: Design, economics: EconomicParams,
         capex=design.totals.capex, loss_pv=design.totals.loss_pv,
         lifecycle=design.totals.lifecycle,
         loss_kwh_per_year=kwh,
-        loss_cost_per_year=loss_w * economics.annual_cost_per_w,
+        loss_cost_per_year=annual_loss_cost(design),
         worst_drop_pct=design.worst_path_drop_pct(),
         worst_loadflow_drop_pct=lf,
         co2_t_per_year=co2_year,
@@ -165,8 +171,9 @@ def justification_table(code_minimum: Design, lifecycle: Design,
     """Each segment where the lifecycle design differs and costs more upfront, by NPV (best first).
 
     added cost = capex(lifecycle) − capex(code minimum); ΔP = peak loss saved (W);
-    kWh/year = ΔP·T/1000; money/year = ΔP·(T·P + D); payback = added / money per year;
-    NPV = −added + ΔP·F (``EconomicParams.upsizing_npv``).
+    kWh/year = ΔP·T/1000; money/year = ΔP·(T·P + D·k²); payback = added / money per year;
+    NPV = −added + ΔP·F, with T, k and F the run's own (``sizer.operating``), so
+    NPV = −added + the loss present value saved.
     """
     base = {s.id: s for s in code_minimum.segments}
     rows = []
@@ -178,10 +185,10 @@ def justification_table(code_minimum: Design, lifecycle: Design,
         if added <= 0:
             continue
         saving_w = (b.loss_kw - s.loss_kw) * 1e3
-        kwh = float(economics.annual_loss_kwh(saving_w))
-        per_year = saving_w * economics.annual_cost_per_w
+        kwh = b.loss_kwh_per_year - s.loss_kwh_per_year
+        per_year = b.loss_cost_per_year - s.loss_cost_per_year
         payback = float(simple_payback_years(added, per_year))
-        value = float(economics.upsizing_npv(added, saving_w))
+        value = (b.loss_pv - s.loss_pv) - added
         before, after = segment_conductor(b), segment_conductor(s)
         rows.append(JustificationRow(
             segment=s.id, code_minimum=before, lifecycle=after, added_cost=added,
@@ -232,13 +239,13 @@ def upsizing_cash_flow(code_minimum: Design, lifecycle: Design,
                        economics: EconomicParams) -> CashFlow:
     """Cumulative cash flow of building the lifecycle design instead of the code minimum.
 
-    Year 0: −Δcapex. Year n ≥ 1: S·g^(n−1) with S = ΔP·(T·P + D) the first-year saving
+    Year 0: −Δcapex. Year n ≥ 1: S·g^(n−1) with S = Σ ΔP·(T·P + D·k²) the first-year saving
+    (each run its own T, k)
     and g = (1 + a)²·(1 + b); discounted by (1 + i)^n. Over whole years the discounted
     sum ends at the same NPV as ``sizer.economics.npv``.
     """
     added = lifecycle.totals.capex - code_minimum.totals.capex
-    saving_w = peak_loss_w(code_minimum) - peak_loss_w(lifecycle)
-    first = saving_w * economics.annual_cost_per_w
+    first = annual_loss_cost(code_minimum) - annual_loss_cost(lifecycle)
     growth = (1.0 + economics.load_growth) ** 2 * (1.0 + economics.escalation)
     years = max(math.ceil(economics.years - 1e-9), 1)
     rows = [CashFlowRow(0, -added, -added, -added)]
@@ -402,3 +409,48 @@ def cost_breakdown(design: Design, top: int | None = 15) -> tuple[CostRow, ...]:
     other = CostRow(f"other {len(rest)} runs", sum(r.capex for r in rest),
                     sum(r.loss_pv for r in rest), len(rest))
     return (*keep, other)
+
+
+# --- how the loads run (the operating profiles used for losses) -------------------------
+
+
+@dataclass(frozen=True)
+class ProfileRow:
+    """One load category as used for losses, with how many loads took it."""
+
+    category: str
+    loads: int
+    overridden: int            # loads that override one of the category's values
+    utilisation: float         # the category's (overrides aside)
+    load_factor: float
+    full_load_hours: float     # load factor × hours per year
+    loss_load_factor: float    # mean over the loads of the category
+    peak_coincidence: float
+    source: str
+
+
+def profiles_table(prep: Prepared) -> tuple[ProfileRow, ...]:
+    """The operating profiles of the design's loads, one row per category used."""
+    profiles = load_profiles()
+    runs = prep.runs
+    hours = prep.economics.hours_per_year
+    rows = []
+    for name in profiles:
+        idx = [i for i, c in enumerate(runs.category) if c == name]
+        if not idx:
+            continue
+        prof = profiles[name]
+        lf = prof.load_factor
+        if lf is None:
+            lf = (prep.economics.load_factor if prep.economics.load_factor is not None
+                  else prep.economics.theta)
+        op = [prep.segments[i].node.operating for i in idx]
+        overridden = sum(1 for o in op if any(
+            v is not None for v in (o.utilisation, o.load_factor, o.loss_load_factor,
+                                    o.peak_coincidence)))
+        rows.append(ProfileRow(
+            category=name, loads=len(idx), overridden=overridden,
+            utilisation=prof.utilisation, load_factor=lf, full_load_hours=lf * hours,
+            loss_load_factor=sum(float(runs.loss_load_factor[i]) for i in idx) / len(idx),
+            peak_coincidence=prof.peak_coincidence, source=prof.source))
+    return tuple(rows)

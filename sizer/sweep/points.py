@@ -8,6 +8,7 @@ from typing import Any
 
 from sizer.candidates import reprice
 from sizer.errors import ScenarioError
+from sizer.operating import run_profiles
 from sizer.optimize import Prepared, economic_params
 from sizer.sweep.vary import FIELDS, _field_error
 
@@ -28,7 +29,7 @@ def base_value(prep: Prepared, name: str) -> float:
 
 def prepared_at(base: Prepared, names: Sequence[str], values: Sequence[float]) -> Prepared:
     """The base problem at other field values: same rows, re-priced (no rebuild)."""
-    econ_changes: dict[str, float] = {}
+    econ_changes: dict[str, Any] = {}
     metal: dict[str, float] = {}
     price_changes: dict[str, Any] = {}
     for name, value in zip(names, values, strict=True):
@@ -56,8 +57,13 @@ def prepared_at(base: Prepared, names: Sequence[str], values: Sequence[float]) -
         name = next(f.name for f in FIELDS.values() if f.metal and exc.field in
                     (f.name, f"{f.name}_price_basis"))
         raise _field_error(name, exc.message) from None
-    table = reprice(base.table, base.segments, base.catalogue, prices, econ.loss_pv_per_w)
-    return replace(base, scenario=scenario, prices=prices, economics=econ, table=table)
+    # Each run prices its losses with its own profile (sizer.operating): recomputed when
+    # the economics move; the operating currents, and so the peak losses, stay.
+    runs = run_profiles(scenario, base.segments, econ) if econ_changes else base.runs
+    table = reprice(base.table, base.segments, base.catalogue, prices,
+                    runs.loss_pv_per_w(econ))
+    return replace(base, scenario=scenario, prices=prices, economics=econ, table=table,
+                   runs=runs)
 
 
 def _vary_name(model_field: str | None, names: Sequence[str]) -> str:
