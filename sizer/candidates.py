@@ -20,8 +20,17 @@ from sizer.conductors import impedance_ohm_per_m, operating_temperature_c
 from sizer.drop import drop_pct, transformer_regulation_pct
 from sizer.errors import ScenarioError
 from sizer.model import CandidateTable, Segment
-from sizer.rules.ampacity import ambient_factor, ampacity_a, grouping_factor, table_ampacity_a
+from sizer.rules.ampacity import ambient_factor, grouping_factor, table_ampacity_a
 from sizer.rules.profile import RuleProfile
+from sizer.rules.raceway import (
+    NO_RACEWAY,
+    NONE,
+    TRAY,
+    grouped_conductors,
+    raceway_size_index,
+    tray_width_index,
+)
+from sizer.rules.terminations import NO_TERMINAL, lands, splice_ends, terminal_range
 from sizer.rules.protection import (
     egc_size_index_of_sizes,
     min_parallel_ok,
@@ -134,6 +143,8 @@ class LocalDiagnosis:
     best_drop_pct: np.ndarray        # lowest own drop among rows that carry the current
     best_label: tuple[str, ...]      # the row that gives best_drop_pct, as the trade writes it
     pinned_fails: tuple[str, ...]    # per segment: the rules a pinned conductor breaks ("" none)
+    # per segment: the terminal or raceway limit that refused otherwise compliant rows ("" none)
+    build_limits: tuple[str, ...] = ()
 
 
 def _grid(sa: SegmentArrays, n_sizes: int) -> tuple[np.ndarray, ...]:
@@ -193,8 +204,10 @@ def build_candidates(
     # --- ampacity per set (code) and the thermal rating behind the temperature ----------
     # Settings vary by segment, not by row: tabulate each distinct (settings, material,
     # terminal column) over all sizes once, then look rows up in the tables.
+    together = _sets_together(profile, sa.installation)
+    row_grouping = grouped_conductors(sa.grouping[seg], sets, together[seg])
     amp_set, thermal_set = _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size,
-                                            len(catalogue.sizes))
+                                            len(catalogue.sizes), row_grouping)
     ampacity = amp_set * sets
     ocpd = sa.ocpd_a[seg]
 
@@ -246,8 +259,15 @@ def build_candidates(
     egc_ok = egc >= 0
     egc = np.where(egc_ok, egc, 0)
 
+    # --- what it takes to build: terminations and raceways ------------------------------
+    build = build_rows(profile, prices, sa, seg, mat, size, sets, egc)
+    diagnosis = replace(diagnosis, build_limits=_build_limits(
+        n, seg, mat, size, sets, keep & egc_ok, build, profile, catalogue, sa))
+    keep &= build.ok
+
     # --- money --------------------------------------------------------------------------
-    capex = installed_cost(prices, length, sa.conductors[seg], mat, size, sets, egc)
+    capex = (installed_cost(prices, length, sa.conductors[seg], mat, size, sets, egc)
+             + build.termination_capex + build.raceway_capex)
     keep &= np.isfinite(capex) & egc_ok
 
     r_ohm = r_m * length / sets
@@ -274,12 +294,137 @@ def build_candidates(
         capex=capex[idx],
         loss_pv=loss_pv[idx],
         egc_size_index=egc[idx],
+        terminal_max=build.terminal_max[idx],
+        splice_ends=build.splice_ends[idx],
+        termination_capex=build.termination_capex[idx],
+        raceway_size=build.raceway_size[idx],
+        raceway_capex=build.raceway_capex[idx],
     )
     return table, diagnosis
 
 
-def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes):
-    """Per-set code ampacity and thermal ampacity of every row, from per-group tables."""
+@dataclass(frozen=True)
+class BuildRows:
+    """Per candidate row: how its conductors land and what raceway carries them."""
+
+    ok: np.ndarray                 # it can be built (terminals and raceway)
+    terminal_ok: np.ndarray        # its conductors land, directly or by splice
+    raceway_ok: np.ndarray         # a listed raceway size holds it
+    terminal_max: np.ndarray       # largest size the device terminal takes (-1: any)
+    splice_ends: np.ndarray        # 0, 1 or 2 ends landed by a reducing splice
+    termination_capex: np.ndarray  # splices: ends × conductors × sets × price of one
+    raceway_size: np.ndarray       # trade size or tray width index (-1: none)
+    raceway_capex: np.ndarray      # raceways per set (tray per run) and trench, installed
+
+
+def build_rows(profile: RuleProfile, prices: PriceList, sa: SegmentArrays, seg: np.ndarray,
+               mat: np.ndarray, size: np.ndarray, sets: np.ndarray,
+               egc: np.ndarray) -> BuildRows:
+    """Terminations and raceways of every row, with their installed cost.
+
+    Terminations: the device's terminal range (``sizer.rules.terminations``) at the
+    supply end and, as common practice, the same range at the load end; a conductor above
+    it lands by a reducing splice priced per conductor, or is refused (profile choice).
+    Raceways: one per parallel set holding the set's phase and neutral conductors and its
+    EGC, trade size by the fill rule; a tray (one per run) by summed diameters; a trench
+    per metre of route for the profile's trench installations.
+    """
+    rows = seg.shape[0]
+    conductors = sa.conductors[seg]
+    length = sa.length_m[seg]
+    sold_splice = np.where(mat == 0, prices.splice("Cu")[size], prices.splice("Al")[size])
+    if profile.terminals is None:
+        term_max = np.full(rows, NO_TERMINAL, dtype=np.int64)
+        ends = np.zeros(rows, dtype=np.int64)
+        term_ok = np.ones(rows, dtype=bool)
+    else:
+        low, term_max = terminal_range(profile.terminals, sa.ocpd_a[seg], sets)
+        term_ok = lands(size, low, term_max, profile.terminals.oversize)
+        ends = np.where(term_ok, splice_ends(size, term_max, term_max), 0)
+        term_ok &= (ends == 0) | np.isfinite(sold_splice)
+    term_capex = np.where(ends > 0, ends * conductors * sets * sold_splice, 0.0)
+
+    race_size = np.full(rows, NO_RACEWAY, dtype=np.int64)
+    race_capex = np.zeros(rows)
+    race_ok = np.ones(rows, dtype=bool)
+    rules = profile.raceway
+    if rules is not None:
+        priced = prices.raceways
+        kinds = np.array([rules.installation_type[inst] for inst in sa.installation])[seg]
+        area = np.where(mat == 0, rules.conductor_area_mm2["Cu"][size],
+                        rules.conductor_area_mm2["Al"][size])
+        egc_area = np.where(mat == 0, rules.conductor_area_mm2["Cu"][egc],
+                            rules.conductor_area_mm2["Al"][egc])
+        for kind in np.unique(kinds).tolist():
+            m = kinds == kind
+            if kind == NONE:
+                continue
+            if kind == TRAY:
+                d = np.sqrt(4.0 / np.pi) * (conductors[m] * np.sqrt(area[m])
+                                            + np.sqrt(egc_area[m]))
+                k = tray_width_index(rules.tray_widths_mm, sets[m] * d)
+                names = [f"{w:g}" for w in rules.tray_widths_mm]
+                per_run = 1
+            else:
+                rtype = rules.types[kind]
+                k = raceway_size_index(rtype.area_mm2, rules.fill,
+                                       conductors[m] * area[m] + egc_area[m], conductors[m] + 1)
+                names = list(rtype.designators)
+                per_run = 0
+            race_size[m] = k
+            race_ok[m] = k >= 0
+            if priced is not None:
+                price = np.array([priced.price_per_m(kind, name) for name in names])
+                each = np.where(k >= 0, price[np.maximum(k, 0)], np.nan)
+                count = np.where(per_run == 1, 1, sets[m])
+                race_capex[m] = length[m] * count * each
+        if priced is not None:
+            trench = np.array([inst in rules.trench for inst in sa.installation])[seg]
+            race_capex = race_capex + np.where(trench, length * priced.trench_per_m, 0.0)
+    return BuildRows(term_ok & race_ok, term_ok, race_ok, term_max, ends, term_capex,
+                     race_size, race_capex)
+
+
+def _build_limits(n, seg, mat, size, sets, compliant, build: BuildRows, profile: RuleProfile,
+                  catalogue: Catalogue, sa: SegmentArrays) -> tuple[str, ...]:
+    """Per segment, the terminal or raceway limit that refused compliant rows ("" none)."""
+    out = [""] * n
+    refused = compliant & ~build.ok
+    for s in np.unique(seg[refused]).tolist():
+        rows = np.flatnonzero(refused & (seg == s))
+        r = int(rows[np.argmin(size[rows] * 100 + sets[rows])])
+        label = conductor_label(catalogue, int(mat[r]), int(size[r]), int(sets[r]))
+        if not build.terminal_ok[r]:
+            top = int(build.terminal_max[r])
+            takes = (f"takes at most {catalogue.sizes[top]} per terminal" if top >= 0
+                     else f"takes no {int(sets[r])} conductors per terminal")
+            out[s] = f"terminal limit: the {sa.ocpd_a[s]:g} A device {takes} ({label} refused)"
+        else:
+            kind = (profile.raceway.installation_type[sa.installation[s]]
+                    if profile.raceway is not None else "")
+            out[s] = f"raceway limit: {label} fits no listed {kind} size (refused)"
+    return tuple(out)
+
+
+def _sets_together(profile: RuleProfile, installation: tuple[str, ...]) -> np.ndarray:
+    """Per segment: do its parallel sets lie together and derate as one group?
+
+    Sets laid in one trench (the profile's trench installations, e.g. "buried") heat one
+    another, so all their conductors count as one group (NEC 310.15(C)(1) counts every
+    conductor of a parallel set; IEC 60364-5-52 Table B.52.17 counts circuits). Sets in
+    their own raceways in air do not.
+    """
+    trench = profile.raceway.trench if profile.raceway is not None else ("buried",)
+    return np.array([inst in trench for inst in installation], dtype=bool)
+
+
+def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes, row_grouping):
+    """Per-set code ampacity and thermal ampacity of every row, from per-group tables.
+
+    The tables hold the insulation column corrected for ambient, and the terminal limit;
+    the grouping factor of each row (it depends on the row's sets) is applied after, in
+    the order of ``sizer.rules.ampacity.ampacity_a``: min(table × ambient × group, limit).
+    """
     # Terminal column: given per segment, or the profile's rule (device rating and size).
     terminal_c = sa.terminal_c[seg]
     auto = np.isnan(terminal_c)
@@ -287,27 +432,28 @@ def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes
         terminal_c = terminal_c.copy()
         terminal_c[auto] = terminal_temperature_c(profile, sa.ocpd_a[seg[auto]], size[auto])
     terminal_c = np.where(np.isnan(terminal_c), -1.0, terminal_c)  # -1: no terminal limit
-    settings = np.column_stack([sa.insulation_c, sa.ambient_c, sa.grouping, inst_code])
+    settings = np.column_stack([sa.insulation_c, sa.ambient_c, inst_code])
     uniq_settings, seg_group = np.unique(settings, axis=0, return_inverse=True)
     terms, term_code = np.unique(terminal_c, return_inverse=True)
     group = (seg_group.ravel()[seg] * 2 + mat) * len(terms) + term_code.ravel()
     all_sizes = np.arange(n_sizes)
-    code_tab = np.full((uniq_settings.shape[0] * 2 * len(terms), n_sizes), np.nan)
-    thermal_tab = np.full_like(code_tab, np.nan)
+    limit_tab = np.full((uniq_settings.shape[0] * 2 * len(terms), n_sizes), np.inf)
+    corrected_tab = np.full_like(limit_tab, np.nan)
     for g in np.unique(group).tolist():
         t = g % len(terms)
         m = (g // len(terms)) % 2
-        ins, amb, grp, inst = uniq_settings[g // len(terms) // 2]
+        ins, amb, inst = uniq_settings[g // len(terms) // 2]
         inst_name = inst_names[int(inst)]
-        term = None if terms[t] < 0 else float(terms[t])
-        code_tab[g] = ampacity_a(profile, MATERIALS[m], all_sizes, float(ins), term, float(amb),
-                                 int(grp), inst_name)
-        # The insulation column corrected for ambient and grouping: the current at which
-        # the conductor reaches its rated temperature (terminals do not heat it).
-        thermal_tab[g] = (table_ampacity_a(profile, MATERIALS[m], all_sizes, float(ins), inst_name)
-                          * ambient_factor(profile, float(ins), float(amb), inst_name)
-                          * grouping_factor(profile, int(grp)))
-    return code_tab[group, size], thermal_tab[group, size]
+        # The insulation column corrected for ambient: with the grouping factor, the current
+        # at which the conductor reaches its rated temperature (terminals do not heat it).
+        corrected_tab[g] = (table_ampacity_a(profile, MATERIALS[m], all_sizes, float(ins),
+                                             inst_name)
+                            * ambient_factor(profile, float(ins), float(amb), inst_name))
+        if terms[t] >= 0:
+            limit_tab[g] = table_ampacity_a(profile, MATERIALS[m], all_sizes, float(terms[t]),
+                                            inst_name)
+    thermal = corrected_tab[group, size] * grouping_factor(profile, row_grouping)
+    return np.minimum(thermal, limit_tab[group, size]), thermal
 
 
 def _smallest_compliant(seg, mat, size, sets, ok, area_mm2, n):
@@ -391,5 +537,9 @@ def reprice(
     length = np.array([s.length_m for s in segments], dtype=float)[seg]
     capex = installed_cost(prices, length, conductors[seg], table.material, table.size_index,
                            table.sets, table.egc_size_index)
+    # Splices and raceways are not metal-indexed: they stay as built.
+    for extra in (table.termination_capex, table.raceway_capex):
+        if extra is not None:
+            capex = capex + extra
     loss_pv = table.loss_w * loss_pv_per_w
     return replace(table, capex=capex, loss_pv=loss_pv)

@@ -294,6 +294,12 @@ class CandidateTable:
     loss_pv: np.ndarray
     egc_size_index: np.ndarray
     rejected: tuple[str, ...] = field(default=())
+    # What it takes to build each row (zeros/-1 when the profile has no such rules):
+    terminal_max: np.ndarray | None = None      # largest size the device terminal takes, -1 any
+    splice_ends: np.ndarray | None = None       # ends (0-2) landed by a reducing splice
+    termination_capex: np.ndarray | None = None  # the splices, priced
+    raceway_size: np.ndarray | None = None      # trade size or tray width index, -1 none
+    raceway_capex: np.ndarray | None = None     # raceways (and trench), installed
 
     def __len__(self) -> int:
         return int(self.segment.shape[0])
@@ -327,6 +333,12 @@ class SegmentResult:
     pinned: bool = False
     loadflow_drop_pct: float | None = None
     fault_ka: float | None = None
+    terminal_max: str = ""        # largest conductor the device terminal takes, per set
+    termination: str = ""         # "direct" | "reducing splice"
+    raceway: str = ""             # e.g. "2 x 53 mm (2 in) EMT", or the tray width
+    conductor_capex: float = 0.0  # conductors, EGC and pulling them
+    termination_capex: float = 0.0
+    raceway_capex: float = 0.0
 
 
 @dataclass(frozen=True)

@@ -165,8 +165,14 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
     vd = t.vd_pct[choice]
     path = path_drops_pct(prep.parent, vd, prep.fixed_drop_pct)
     results = []
+    race = prep.profile.raceway
     for s, seg in enumerate(prep.segments):
         r = int(choice[s])
+        top = -1 if t.terminal_max is None else int(t.terminal_max[r])
+        ends = 0 if t.splice_ends is None else int(t.splice_ends[r])
+        term_capex = 0.0 if t.termination_capex is None else float(t.termination_capex[r])
+        race_capex = 0.0 if t.raceway_capex is None else float(t.raceway_capex[r])
+        race_k = -1 if t.raceway_size is None else int(t.raceway_size[r])
         parent_id = (prep.scenario.nodes[seg.parent_index].id if seg.parent_index >= 0
                      else prep.scenario.source.id)
         results.append(SegmentResult(
@@ -181,6 +187,12 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
             ocpd_a=seg.ocpd_a, capex=float(t.capex[r]), loss_kw=float(t.loss_w[r]) / 1e3,
             loss_pv=float(t.loss_pv[r]), temp_c=float(t.temp_c[r]),
             voltage_v=seg.voltage_v, phases=seg.phases, pinned=seg.node.pin is not None,
+            terminal_max=cat.sizes[top] if top >= 0 else "",
+            termination="reducing splice" if ends > 0 else "direct",
+            raceway=(race.label(seg.node.cable.installation, int(t.sets[r]), race_k)
+                     if race is not None else ""),
+            conductor_capex=float(t.capex[r]) - term_capex - race_capex,
+            termination_capex=term_capex, raceway_capex=race_capex,
         ))
     loss_w = float(t.loss_w[choice].sum())
     totals = Totals(

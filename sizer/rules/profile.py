@@ -21,6 +21,14 @@ from typing import Any
 import numpy as np
 
 from sizer.errors import ScenarioError, UnitError
+from sizer.rules.raceway import (
+    NONE,
+    TRAY,
+    RacewayRules,
+    read_conductor_areas,
+    read_raceway_types,
+)
+from sizer.rules.terminations import TerminalTable, read_terminal_table
 from sizer.units import MATERIALS, MM2_PER_CMIL, parse_size
 
 PROFILES: tuple[str, ...] = ("nec", "cec", "iec")
@@ -103,6 +111,8 @@ class RuleProfile:
     default_clearing_time_s: float
     short_circuit_final_c: tuple[tuple[float, float], ...]  # (insulation rating, final temp)
     motor_start_dip_pct: float
+    terminals: TerminalTable | None = None   # terminal ranges by device rating; None: any size
+    raceway: RacewayRules | None = None      # raceway practice; None: raceways not sized
     _size_lookup: Mapping[str, int] = field(init=False, repr=False)
 
     def __post_init__(self) -> None:
@@ -552,6 +562,20 @@ def read_profile(path: str | Path) -> RuleProfile:
     sources["short_circuit"] = sc.take("source", str)
     sc.finish()
 
+    terminals = None
+    if (tm := top.optional_sub("terminations")) is not None:
+        header, rows, table_source = _read_csv(here / tm.take("table", str))
+        terminals = read_terminal_table(
+            header, rows, {sz: i for i, sz in enumerate(sizes)}, tm.take("oversize", str),
+            f"{tm.take('source', str)}; table: {table_source}", str(here / "terminals"))
+        sources["terminations"] = terminals.source
+        tm.finish()
+
+    raceway = None
+    if (rw := top.optional_sub("raceway")) is not None:
+        raceway = _read_raceway(rw, here, sizes, file)
+        sources["raceway"] = raceway.source
+
     ms = top.sub("motor_start")
     dip = ms.take("max_dip_pct", float)
     sources["motor_start"] = ms.take("source", str)
@@ -580,8 +604,45 @@ def read_profile(path: str | Path) -> RuleProfile:
         egc_phase_bands=tuple((b[0], b[1], b[2]) for b in phase_bands),
         min_parallel_size=min_parallel, default_clearing_time_s=clearing,
         short_circuit_final_c=tuple((b[0], b[1]) for b in finals),
-        motor_start_dip_pct=dip,
+        motor_start_dip_pct=dip, terminals=terminals, raceway=raceway,
     )
+
+
+def _read_raceway(rw: _Section, here: Path, sizes: tuple[str, ...], file: str) -> RacewayRules:
+    """The ``[raceway]`` section and the raceway and conductor tables it names."""
+    header, rows, race_source = _read_csv(here / rw.take("raceways", str))
+    types = read_raceway_types(header, rows, str(here / "raceways"))
+    c_header, c_rows, cond_source = _read_csv(here / rw.take("conductors", str))
+    insulation = rw.sub("insulation")
+    lookup = {sz: i for i, sz in enumerate(sizes)}
+    areas = {m: read_conductor_areas(c_header, c_rows, lookup, insulation.take(m, str), file)
+             for m in MATERIALS}
+    insulation.finish()
+    fill = _bands(rw.take("fill", list), 2, "raceway fill bands", file)
+    widths = rw.floats("tray_widths_mm")
+    trench = tuple(str(x) for x in rw.take("trench", list))
+    inch_labels = rw.take("inch_labels", bool)
+    kinds = rw.sub("types")
+    installation_type = {k: kinds.take(k, str) for k in list(kinds.data)}
+    kinds.finish()
+    source = rw.take("source", str)
+    rw.finish()
+    for inst, kind in installation_type.items():
+        if kind not in types and kind not in (TRAY, NONE):
+            raise ScenarioError(f"[raceway.types] {inst} = {kind!r} is not a raceway type of "
+                                f"the table ({', '.join(types)}), {TRAY!r} or {NONE!r}",
+                                file=file)
+    if set(installation_type) != set(INSTALLATIONS):
+        raise ScenarioError(f"[raceway.types] must map exactly the installations "
+                            f"{INSTALLATIONS}", file=file)
+    if not fill or fill[-1][0] != math.inf:
+        raise ScenarioError("raceway fill bands must end with inf", file=file)
+    return RacewayRules(
+        types=MappingProxyType(types), installation_type=MappingProxyType(installation_type),
+        conductor_area_mm2=MappingProxyType(areas),
+        fill=tuple((b[0], b[1]) for b in fill), tray_widths_mm=widths, trench=trench,
+        inch_labels=inch_labels,
+        source=f"{source}; raceways: {race_source}; conductors: {cond_source}")
 
 
 @cache
