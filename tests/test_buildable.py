@@ -1,0 +1,273 @@
+"""Buildable designs: terminal ranges, reducing splices, raceway fill and price, grouping.
+
+Fill checks use NEC Chapter 9 Tables 1, 4 and 5 and the Annex C conduit-fill tables that
+follow from them (values from memory, marked [M]); terminal ranges are common practice.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import itertools
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from builders import write_scenario
+from sizer.candidates import build_candidates
+from sizer.engines import solve
+from sizer.optimize import Objective, build_problem, prepare
+from sizer.rules import load_profile
+from sizer.rules.raceway import (
+    MM2_PER_IN2,
+    fill_fraction,
+    grouped_conductors,
+    raceway_size_index,
+    tray_width_index,
+)
+from sizer.rules.terminations import NO_TERMINAL, lands, splice_ends, terminal_range
+from sizer.scenario import load_scenario
+
+NEC = load_profile("nec")
+SCENARIOS = Path(__file__).parents[1] / "scenarios"
+
+
+def thhn_in2(size: str) -> float:
+    return float(NEC.raceway.conductor_area_mm2["Cu"][NEC.size_index(size)]) / MM2_PER_IN2
+
+
+def emt(trade: str) -> int:
+    labels = NEC.raceway.types["EMT"].labels
+    return next(k for k, lab in enumerate(labels) if f"({trade} in)" in lab)
+
+
+# --- fill: NEC Chapter 9 ------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(("conductors", "fraction"), [
+    (1, 0.53), (2, 0.31), (3, 0.40), (4, 0.40), (40, 0.40),   # NEC Chapter 9 Table 1
+])
+def test_fill_fraction_of_table_1(conductors: int, fraction: float) -> None:
+    assert fill_fraction(NEC.raceway.fill, conductors) == pytest.approx(fraction)
+
+
+@pytest.mark.parametrize(("kind", "trade", "forty_pct_in2"), [
+    # NEC Chapter 9 Table 4, "Over 2 Wires 40%" column [M]
+    ("EMT", "1/2", 0.122), ("EMT", "2", 1.342), ("EMT", "4", 5.901),
+    ("PVC", "2", 1.316), ("RMC", "2", 1.363),
+])
+def test_forty_percent_column_of_table_4(kind: str, trade: str, forty_pct_in2: float) -> None:
+    rtype = NEC.raceway.types[kind]
+    k = next(i for i, lab in enumerate(rtype.labels) if f"({trade} in)" in lab)
+    assert 0.4 * rtype.area_mm2[k] / MM2_PER_IN2 == pytest.approx(forty_pct_in2, abs=0.0015)
+
+
+@pytest.mark.parametrize(("size", "most"), [
+    # NEC Annex C Table C.1 (EMT), THHN in 1/2 in (16) [M]: 14 AWG 12, 12 AWG 9, 10 AWG 5,
+    # 8 AWG 3 — the counts that follow from Table 4 at 40 % and Table 5 areas
+    ("14 AWG", 12), ("12 AWG", 9), ("10 AWG", 5), ("8 AWG", 3),
+])
+def test_half_inch_emt_holds_the_annex_c_count(size: str, most: int) -> None:
+    area = NEC.raceway.conductor_area_mm2["Cu"][NEC.size_index(size)]
+    areas = NEC.raceway.types["EMT"].area_mm2
+    assert raceway_size_index(areas, NEC.raceway.fill, most * area, most) == emt("1/2")
+    assert raceway_size_index(areas, NEC.raceway.fill, (most + 1) * area, most + 1) > emt("1/2")
+
+
+def test_four_500_kcmil_with_their_egc_need_3_in_emt() -> None:
+    # 4 x 500 kcmil THHN (0.7073 in2 each, Table 5 [M]) + 3 AWG EGC (0.0973 in2) = 2.926 in2:
+    # over the 2.343 in2 of 2-1/2 in EMT at 40 %, within the 3.538 in2 of 3 in (Table 4 [M])
+    total_mm2 = (4 * thhn_in2("500 kcmil") + thhn_in2("3 AWG")) * MM2_PER_IN2
+    k = raceway_size_index(NEC.raceway.types["EMT"].area_mm2, NEC.raceway.fill, total_mm2, 5)
+    assert k == emt("3")
+
+
+def test_nothing_fits_gives_no_raceway() -> None:
+    areas = NEC.raceway.types["EMT"].area_mm2
+    assert raceway_size_index(areas, NEC.raceway.fill, 1e6, 4) == -1
+    assert tray_width_index(NEC.raceway.tray_widths_mm, 1e5) == -1
+    # one layer, summed diameters within the width (NEC 392.22(B)(1) [M])
+    assert tray_width_index(NEC.raceway.tray_widths_mm, 152.4) == 0
+
+
+@pytest.mark.parametrize(("per_set", "sets", "together", "expected"), [
+    (3, 1, True, 3), (3, 2, False, 3), (3, 2, True, 6), (4, 3, True, 12),
+])
+def test_sets_together_count_as_one_group(per_set, sets, together, expected) -> None:
+    # NEC 310.15(C)(1): each conductor of a parallel set counts toward the adjustment
+    assert grouped_conductors(per_set, sets, together) == expected
+
+
+# --- terminal ranges (common practice, from memory) ------------------------------------
+
+
+@pytest.mark.parametrize(("ocpd", "sets", "low", "high"), [
+    (20, 1, "14 AWG", "8 AWG"),          # small branch breaker: up to 8 AWG
+    (225, 1, "4 AWG", "300 kcmil"),      # 225 A frame: 4 AWG - 300 kcmil
+    (400, 1, "1/0 AWG", "600 kcmil"),    # 400 A frame: one up to 600 kcmil ...
+    (400, 2, "1/0 AWG", "250 kcmil"),    # ... or two up to 250 kcmil
+])
+def test_nec_terminal_ranges(ocpd: float, sets: int, low: str, high: str) -> None:
+    lo, hi = terminal_range(NEC.terminals, ocpd, sets)
+    assert (NEC.sizes[int(lo)], NEC.sizes[int(hi)]) == (low, high)
+
+
+def test_too_many_sets_for_the_terminal_has_no_range() -> None:
+    lo, hi = terminal_range(NEC.terminals, 400.0, 3)
+    assert int(lo) == int(hi) == NO_TERMINAL
+    assert not lands(NEC.size_index("4/0 AWG"), lo, hi, "splice")
+
+
+def test_oversize_lands_by_splice_or_is_refused() -> None:
+    lo, hi = terminal_range(NEC.terminals, 20.0, 1)
+    big, fits, small = (NEC.size_index(s) for s in ("4 AWG", "8 AWG", "14 AWG"))
+    assert lands(big, lo, hi, "splice") and not lands(big, lo, hi, "refuse")
+    assert lands(fits, lo, hi, "refuse") and lands(small, lo, hi, "refuse")
+    assert splice_ends(big, hi, hi) == 2 and splice_ends(fits, hi, hi) == 0
+
+
+# --- the candidate table and the designs ------------------------------------------------
+
+
+LONG_BRANCH = """
+[[node]]
+id = "PNL"
+parent = "SRC"
+length = "30 ft"
+ocpd = "100 A"
+
+[[node]]
+id = "REC"
+parent = "PNL"
+length = "260 ft"
+phases = 1
+voltage = "120 V"
+load = "1.9 kVA"
+ocpd = "20 A"
+"""
+
+
+def test_upsized_branch_lands_by_priced_splice(tmp_path: Path) -> None:
+    prep = prepare(load_scenario(write_scenario(tmp_path, LONG_BRANCH, max_sets=1, voltage="208 V")))
+    design = next(iter([_solve(prep, Objective.CAPEX)]))
+    rec = next(s for s in design.segments if s.id == "REC")
+    # 260 ft at 15.8 A and 120 V needs more than 8 AWG for 3 %: spliced at both ends
+    assert NEC.size_index(rec.size) > NEC.size_index("8 AWG")
+    assert (rec.terminal_max, rec.termination) == ("8 AWG", "reducing splice")
+    price = prep.prices.splice("Cu")[NEC.size_index(rec.size)]
+    assert rec.termination_capex == pytest.approx(2 * 2 * price)   # 2 ends x 2 conductors
+    assert rec.capex == pytest.approx(rec.conductor_capex + rec.termination_capex
+                                      + rec.raceway_capex)
+    assert rec.raceway.startswith("1 x ") and rec.raceway.endswith(" EMT")
+
+
+def test_refuse_keeps_only_sizes_the_terminal_takes(tmp_path: Path) -> None:
+    prep = prepare(load_scenario(write_scenario(tmp_path, LONG_BRANCH, max_sets=1, voltage="208 V")))
+    refuse = dataclasses.replace(NEC, terminals=dataclasses.replace(NEC.terminals,
+                                                                    oversize="refuse"))
+    table, local = build_candidates(prep.segments, refuse, prep.catalogue, prep.prices,
+                                    prep.economics.loss_pv_per_w)
+    rec = 1
+    rows = slice(table.offsets[rec], table.offsets[rec + 1])
+    assert np.all(table.size_index[rows] <= NEC.size_index("8 AWG"))
+    assert local.build_limits[rec].startswith("terminal limit: the 20 A device takes at most "
+                                              "8 AWG")
+
+
+def test_buried_parallel_sets_derate_together(tmp_path: Path) -> None:
+    nodes = """
+[[node]]
+id = "FAR"
+parent = "SRC"
+length = "100 ft"
+ocpd = "300 A"
+installation = "buried"
+"""
+    prep = prepare(load_scenario(write_scenario(tmp_path, nodes, materials='["Al"]')))
+    t = prep.table
+    two = t.ampacity_a[(t.size_index == NEC.size_index("3/0 AWG")) & (t.sets == 2)]
+    # NEC Table 310.16, 3/0 AWG Al: 175 A at 90 degC, 155 A at 75 degC. Two sets in one
+    # trench are 6 current-carrying conductors: 310.15(C)(1) factor 0.80 -> 140 A per set
+    # (below the 155 A terminal limit), 280 A in all — not the 2 x 155 A of separate runs.
+    assert two.size == 1 and float(two[0]) == pytest.approx(2 * 0.8 * 175)
+
+
+def test_iec_never_parallels_small_cables() -> None:
+    prep = prepare(load_scenario(SCENARIOS / "hollinmoor-campus.toml"))
+    small = prep.catalogue.sizes.index("50 mm2")
+    t = prep.table
+    # common practice: parallel sets from 50 mm2 (IEC 60364-5-52 523.7 sets no minimum [M])
+    assert not np.any((t.sets > 1) & (t.size_index < small))
+
+
+# --- both engines against brute force with terminations and raceways --------------------
+
+
+SMALL_TREE = """
+[[node]]
+id = "P1"
+parent = "SRC"
+length = "120 ft"
+ocpd = "100 A"
+
+[[node]]
+id = "L1"
+parent = "P1"
+length = "240 ft"
+phases = 1
+voltage = "277 V"
+load = "3.6 kW"
+ocpd = "20 A"
+
+[[node]]
+id = "L2"
+parent = "P1"
+length = "150 ft"
+load = "20 kW"
+ocpd = "40 A"
+installation = "buried"
+"""
+
+
+def _solve(prep, objective):
+    from sizer.optimize import optimise
+    return optimise(prep, objective, engine="tree")
+
+
+@pytest.mark.parametrize("objective", [Objective.CAPEX, Objective.LIFECYCLE])
+def test_engines_agree_with_brute_force_on_buildable_costs(tmp_path: Path,
+                                                           objective: Objective) -> None:
+    prep = prepare(load_scenario(write_scenario(tmp_path, SMALL_TREE, max_sets=1,
+                                                materials='["Cu", "Al"]')))
+    assert prep.table.termination_capex is not None and np.any(prep.table.splice_ends > 0)
+    p = build_problem(prep, objective)
+    ranges = [range(p.offsets[s], p.offsets[s + 1]) for s in range(p.n_segments)]
+    best = math.inf
+    for combo in itertools.product(*ranges):
+        choice = np.array(combo)
+        if not p.violations(choice):
+            best = min(best, float(p.cost[choice].sum()))
+    for engine in ("tree", "milp"):
+        got = solve(p, engine=engine)
+        assert got.objective == pytest.approx(best, rel=1e-7), engine
+
+
+# --- the demos: every conductor lands, every run has a raceway ---------------------------
+
+
+@pytest.mark.parametrize("demo", sorted(p.stem for p in SCENARIOS.glob("*.toml")))
+def test_demo_optima_land_on_their_terminals(demo: str) -> None:
+    prep = prepare(load_scenario(SCENARIOS / f"{demo}.toml"))
+    for objective in (Objective.CAPEX, Objective.LIFECYCLE):
+        design = _solve(prep, objective)
+        assert design.segments
+        for s in design.segments:
+            top = prep.catalogue.sizes.index(s.terminal_max)
+            here = prep.catalogue.sizes.index(s.size)
+            assert s.termination == ("direct" if here <= top else "reducing splice"), s.id
+            if s.termination == "reducing splice":
+                assert s.termination_capex > 0, s.id
+            assert s.raceway and s.raceway_capex > 0, s.id
+            assert s.capex == pytest.approx(s.conductor_capex + s.termination_capex
+                                            + s.raceway_capex)
