@@ -22,6 +22,13 @@ from sizer.errors import ScenarioError
 from sizer.model import CandidateTable, Segment
 from sizer.rules.ampacity import ambient_factor, grouping_factor, table_ampacity_a
 from sizer.rules.profile import RuleProfile
+from sizer.rules.protection import (
+    egc_size_index_of_sizes,
+    min_parallel_ok,
+    protects,
+    small_conductor_ok,
+    terminal_temperature_c,
+)
 from sizer.rules.raceway import (
     NO_RACEWAY,
     NONE,
@@ -31,13 +38,6 @@ from sizer.rules.raceway import (
     tray_width_index,
 )
 from sizer.rules.terminations import NO_TERMINAL, lands, splice_ends, terminal_range
-from sizer.rules.protection import (
-    egc_size_index_of_sizes,
-    min_parallel_ok,
-    protects,
-    small_conductor_ok,
-    terminal_temperature_c,
-)
 from sizer.units import MATERIALS
 
 
@@ -407,7 +407,7 @@ def _build_limits(n, seg, mat, size, sets, compliant, build: BuildRows, profile:
 
 
 def _sets_together(profile: RuleProfile, installation: tuple[str, ...]) -> np.ndarray:
-    """Per segment: do its parallel sets lie together and derate as one group?
+    """Per segment: whether its parallel sets lie together and derate as one group.
 
     Sets laid in one trench (the profile's trench installations, e.g. "buried") heat one
     another, so all their conductors count as one group (NEC 310.15(C)(1) counts every

@@ -13,8 +13,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-
 from builders import write_scenario
+
 from sizer.candidates import build_candidates
 from sizer.engines import solve
 from sizer.optimize import Objective, build_problem, prepare
@@ -149,8 +149,9 @@ ocpd = "20 A"
 
 
 def test_upsized_branch_lands_by_priced_splice(tmp_path: Path) -> None:
-    prep = prepare(load_scenario(write_scenario(tmp_path, LONG_BRANCH, max_sets=1, voltage="208 V")))
-    design = next(iter([_solve(prep, Objective.CAPEX)]))
+    prep = prepare(load_scenario(write_scenario(tmp_path, LONG_BRANCH, max_sets=1,
+                                                voltage="208 V")))
+    design = _solve(prep, Objective.CAPEX)
     rec = next(s for s in design.segments if s.id == "REC")
     # 260 ft at 15.8 A and 120 V needs more than 8 AWG for 3 %: spliced at both ends
     assert NEC.size_index(rec.size) > NEC.size_index("8 AWG")
@@ -163,7 +164,8 @@ def test_upsized_branch_lands_by_priced_splice(tmp_path: Path) -> None:
 
 
 def test_refuse_keeps_only_sizes_the_terminal_takes(tmp_path: Path) -> None:
-    prep = prepare(load_scenario(write_scenario(tmp_path, LONG_BRANCH, max_sets=1, voltage="208 V")))
+    prep = prepare(load_scenario(write_scenario(tmp_path, LONG_BRANCH, max_sets=1,
+                                                voltage="208 V")))
     refuse = dataclasses.replace(NEC, terminals=dataclasses.replace(NEC.terminals,
                                                                     oversize="refuse"))
     table, local = build_candidates(prep.segments, refuse, prep.catalogue, prep.prices,

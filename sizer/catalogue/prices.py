@@ -154,8 +154,10 @@ def raceway_list_path(price_list: str | Path) -> Path:
 
 
 def load_raceway_prices(path: str | Path, currency: str) -> RacewayPrices:
-    """Read a raceway price CSV (columns type,size,price,labour; price and labour per
-    length unit of one raceway), in the project's currency."""
+    """Read a raceway price CSV, in the project's currency.
+
+    Columns type,size,price,labour: price and labour per length unit of one raceway.
+    """
     file = str(path)
     try:
         text = Path(path).read_text(encoding="utf-8")

@@ -615,8 +615,9 @@ def _read_raceway(rw: _Section, here: Path, sizes: tuple[str, ...], file: str) -
     c_header, c_rows, cond_source = _read_csv(here / rw.take("conductors", str))
     insulation = rw.sub("insulation")
     lookup = {sz: i for i, sz in enumerate(sizes)}
-    areas = {m: read_conductor_areas(c_header, c_rows, lookup, insulation.take(m, str), file)
-             for m in MATERIALS}
+    areas: dict[str, np.ndarray] = {
+        m: read_conductor_areas(c_header, c_rows, lookup, insulation.take(m, str), file)
+        for m in MATERIALS}
     insulation.finish()
     fill = _bands(rw.take("fill", list), 2, "raceway fill bands", file)
     widths = rw.floats("tray_widths_mm")

@@ -131,8 +131,11 @@ def grouped_conductors(per_set: object, sets: object, together: object) -> np.nd
 
 def read_raceway_types(header: list[str], rows: list[list[str]],
                        file: str) -> dict[str, RacewayType]:
-    """Raceway areas from CSV: ``type,trade_size_in,designator_mm,area_in2`` (NEC Table 4)
-    or ``type,designator_mm,inner_diameter_mm`` (a bore, for metric conduit and duct)."""
+    """Raceway areas from a CSV table, grouped by raceway type.
+
+    Columns ``type,trade_size_in,designator_mm,area_in2`` (NEC Chapter 9 Table 4) or
+    ``type,designator_mm,inner_diameter_mm`` (a bore, for metric conduit and duct).
+    """
     nec = ["type", "trade_size_in", "designator_mm", "area_in2"]
     bore = ["type", "designator_mm", "inner_diameter_mm"]
     grouped: dict[str, list[tuple[str, str, float]]] = {}
@@ -154,21 +157,23 @@ def read_raceway_types(header: list[str], rows: list[list[str]],
         raise ScenarioError(f"raceway table: {exc}", file=file) from None
     out = {}
     for name, items in grouped.items():
-        area = np.array([a for _, _, a in items])
-        if np.any(np.diff(area) <= 0) or np.any(area <= 0):
+        areas = np.array([a for _, _, a in items])
+        if np.any(np.diff(areas) <= 0) or np.any(areas <= 0):
             raise ScenarioError(f"raceway type {name!r}: areas must be positive and "
                                 "ascending", file=file)
-        area.flags.writeable = False
+        areas.flags.writeable = False
         out[name] = RacewayType(name, tuple(d for d, _, _ in items),
-                                tuple(lab for _, lab, _ in items), area)
+                                tuple(lab for _, lab, _ in items), areas)
     return out
 
 
 def read_conductor_areas(header: list[str], rows: list[list[str]],
                          size_index: dict[str, int], insulation: str,
                          file: str) -> np.ndarray:
-    """Area (mm²) over the profile sizes of one insulation from a ``size,NAME:area_in2``
-    or ``size,NAME:diameter_mm`` table; NaN for sizes the table does not list."""
+    """Area (mm²) over the profile sizes of one insulation; NaN where not listed.
+
+    The table has columns ``size,NAME:area_in2`` or ``size,NAME:diameter_mm``.
+    """
     out = np.full(len(size_index), np.nan)
     for unit in ("area_in2", "diameter_mm"):
         column = f"{insulation}:{unit}"
