@@ -33,6 +33,7 @@ from sizer.rules.raceway import (
     NO_RACEWAY,
     NONE,
     TRAY,
+    band_tops_conductors,
     grouped_conductors,
     raceway_size_index,
     tray_width_index,
@@ -64,6 +65,8 @@ class SegmentArrays:
     pin_size: np.ndarray        # -1 none
     pin_sets: np.ndarray        # -1 none
     own_limit_pct: np.ndarray
+    route: np.ndarray | None = None        # shared route index per segment, -1 none
+    per_set_ccc: np.ndarray | None = None  # current-carrying conductors of one set
 
 
 def conductors_per_set(phases: np.ndarray, neutral: np.ndarray) -> np.ndarray:
@@ -132,7 +135,19 @@ def segment_arrays(
         pin_size=pin_k,
         pin_sets=pin_s,
         own_limit_pct=np.array([kind_limit[seg.kind] for seg in segments], dtype=float),
+        route=route_indices(segments),
+        per_set_ccc=default_grouping,
     )
+
+
+def route_indices(segments: tuple[Segment, ...]) -> np.ndarray:
+    """Index of each segment's shared route (routes numbered by first appearance), -1 none."""
+    names: dict[str, int] = {}
+    out = np.full(len(segments), -1, dtype=np.int64)
+    for s, seg in enumerate(segments):
+        if seg.node.route:
+            out[s] = names.setdefault(seg.node.route, len(names))
+    return out
 
 
 @dataclass(frozen=True)
@@ -198,6 +213,14 @@ def build_candidates(
     sa = segment_arrays(segments, profile, catalogue)
     n = len(segments)
     seg, mat, size, sets = _grid(sa, len(catalogue.sizes))
+    # Shared routes: one copy of each row per grouping band, its derating at that band.
+    tops = band_tops_conductors(profile.grouping_bands, profile.grouping_conductors_per_group)
+    seg, mat, size, sets, band = _route_bands(sa, seg, mat, size, sets, len(tops))
+    route = sa.route[seg] if sa.route is not None else np.full(seg.shape, -1)
+    ccc = sa.per_set_ccc if sa.per_set_ccc is not None else np.where(sa.phases == 1, 2, 3)
+    in_route = route >= 0
+    route_count = np.where(in_route, sets * ccc[seg], 0)
+    route_top = np.where(in_route, tops[np.maximum(band, 0)], np.inf)
     inst_names = sorted(set(sa.installation))
     inst_code = np.array([inst_names.index(name) for name in sa.installation], dtype=np.int64)
 
@@ -205,7 +228,8 @@ def build_candidates(
     # Settings vary by segment, not by row: tabulate each distinct (settings, material,
     # terminal column) over all sizes once, then look rows up in the tables.
     together = _sets_together(profile, sa.installation)
-    row_grouping = grouped_conductors(sa.grouping[seg], sets, together[seg])
+    row_grouping = np.where(in_route, np.minimum(route_top, _MANY).astype(np.int64),
+                            grouped_conductors(sa.grouping[seg], sets, together[seg]))
     amp_set, thermal_set = _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size,
                                             len(catalogue.sizes), row_grouping)
     ampacity = amp_set * sets
@@ -240,7 +264,7 @@ def build_candidates(
     drop_ok = vd <= sa.own_limit_pct[seg] + 1e-12
 
     pinned = sa.pin_material[seg] >= 0
-    keep = code_ok & drop_ok
+    keep = code_ok & drop_ok & (route_count <= route_top)
     if keep_pins:
         keep |= pinned & valid
 
@@ -299,8 +323,25 @@ def build_candidates(
         termination_capex=build.termination_capex[idx],
         raceway_size=build.raceway_size[idx],
         raceway_capex=build.raceway_capex[idx],
+        route_count=route_count[idx],
+        route_top=route_top[idx],
     )
     return table, diagnosis
+
+
+_MANY = 10**6  # a conductor count in the last grouping band (its top is inf)
+
+
+def _route_bands(sa: SegmentArrays, seg, mat, size, sets, n_bands: int):
+    """Rows of segments in a shared route repeated once per grouping band (band -1 else)."""
+    if sa.route is None or not np.any(sa.route >= 0):
+        return seg, mat, size, sets, np.full(seg.shape, -1, dtype=np.int64)
+    inside = sa.route[seg] >= 0
+    rep = np.where(inside, n_bands, 1)
+    band = np.concatenate([np.arange(k) if k > 1 else np.array([-1]) for k in rep.tolist()])
+    out = [np.repeat(a, rep) for a in (seg, mat, size, sets)]
+    band = np.where(np.repeat(inside, rep), band, -1).astype(np.int64)
+    return (*out, band)
 
 
 @dataclass(frozen=True)

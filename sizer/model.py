@@ -193,6 +193,8 @@ class Node:
     motor: Motor | None = None
     clearing_time_s: float | None = None
     neutral: bool | None = None   # None: decided from the loads below (see loads.py)
+    route: str = ""               # a shared route: runs in it derate from its whole content
+    load_terminal_max: str = ""   # largest conductor the load end takes ("": as the device)
     description: str = ""         # free text from the scenario, shown in reports
 
     def __post_init__(self) -> None:
@@ -300,6 +302,8 @@ class CandidateTable:
     termination_capex: np.ndarray | None = None  # the splices, priced
     raceway_size: np.ndarray | None = None      # trade size or tray width index, -1 none
     raceway_capex: np.ndarray | None = None     # raceways (and trench), installed
+    route_count: np.ndarray | None = None       # conductors the row adds to its shared route
+    route_top: np.ndarray | None = None         # most conductors its derating allows there
 
     def __len__(self) -> int:
         return int(self.segment.shape[0])
@@ -339,6 +343,8 @@ class SegmentResult:
     conductor_capex: float = 0.0  # conductors, EGC and pulling them
     termination_capex: float = 0.0
     raceway_capex: float = 0.0
+    route: str = ""               # the shared route, if any
+    route_conductors: int = 0     # current-carrying conductors its derating counts
 
 
 @dataclass(frozen=True)

@@ -19,6 +19,7 @@ from sizer.candidates import (
     MATERIALS,
     LocalDiagnosis,
     build_candidates,
+    route_indices,
     transformer_drops_pct,
 )
 from sizer.catalogue import Catalogue, load_catalogue
@@ -146,8 +147,48 @@ def build_problem(prep: Prepared, objective: Objective, *, loss_weight: float | 
         limit_pct=prep.leaf_limit_pct if limit_pct is None else limit_pct,
         capex=t.capex,
         loss_pv=t.loss_pv,
+        **_route_terms(prep),  # type: ignore[arg-type]
         **side,  # type: ignore[arg-type]
     )
+
+
+def _route_terms(prep: Prepared) -> dict[str, np.ndarray]:
+    """The shared-route arrays of the problem, when some runs share a route."""
+    t = prep.table
+    if t.route_count is None or t.route_top is None or not np.any(t.route_count > 0):
+        return {}
+    return {"route_of": route_indices(prep.segments), "route_count": t.route_count,
+            "route_top": t.route_top}
+
+
+def exact_route_rows(prep: Prepared, choice: np.ndarray) -> np.ndarray:
+    """The same conductors, each route's rows derated for the route's actual content.
+
+    A row may assume a more severe band than its route's total needs (still safe); its
+    twin at the actual band has the same conductors, as much or more ampacity, a cooler
+    conductor and no more loss, so the design stays feasible and costs no more — and its
+    derating matches its route exactly.
+    """
+    t = prep.table
+    terms = _route_terms(prep)
+    if not terms or t.route_count is None or t.route_top is None:
+        return choice
+    route_of = terms["route_of"]
+    out = np.array(choice, dtype=np.int64)
+    n_routes = int(route_of.max()) + 1
+    inside = route_of >= 0
+    totals = np.bincount(route_of[inside], weights=t.route_count[out[inside]],
+                         minlength=n_routes)
+    tops = np.unique(t.route_top[t.route_count > 0])
+    for s in np.flatnonzero(inside).tolist():
+        want = tops[np.searchsorted(tops, totals[route_of[s]] - 1e-9, side="left")]
+        r = int(out[s])
+        rows = np.arange(t.offsets[s], t.offsets[s + 1])
+        twin = rows[(t.material[rows] == t.material[r]) & (t.size_index[rows] == t.size_index[r])
+                    & (t.sets[rows] == t.sets[r]) & (t.route_top[rows] == want)]
+        if twin.size:
+            out[s] = int(twin[0])
+    return out
 
 
 def path_drops_pct(parent: np.ndarray, own_pct: np.ndarray, fixed_pct: np.ndarray) -> np.ndarray:
@@ -193,6 +234,9 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
                      if race is not None else ""),
             conductor_capex=float(t.capex[r]) - term_capex - race_capex,
             termination_capex=term_capex, raceway_capex=race_capex,
+            route=seg.node.route,
+            route_conductors=(int(min(t.route_top[r], 10**6))
+                              if seg.node.route and t.route_top is not None else 0),
         ))
     loss_w = float(t.loss_w[choice].sum())
     totals = Totals(
@@ -235,8 +279,8 @@ def design_from_solution(prep: Prepared, solution: Solution, objective: str, *,
         if status is None:
             status = (DesignStatus.OPTIMAL if solution.status is SolveStatus.OPTIMAL
                       else DesignStatus.TIME_LIMIT)
-        return design_from_choice(prep, solution.choice, status=status, objective=objective,
-                                  solution=solution)
+        return design_from_choice(prep, exact_route_rows(prep, solution.choice),
+                                  status=status, objective=objective, solution=solution)
     if solution.status is SolveStatus.INFEASIBLE:
         lines = diagnosis() if diagnosis is not None else [solution.message]
         return empty_design(prep, DesignStatus.INFEASIBLE, objective, tuple(lines))

@@ -14,6 +14,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 from builders import write_scenario
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from sizer.candidates import build_candidates
 from sizer.engines import solve
@@ -273,3 +275,127 @@ def test_demo_optima_land_on_their_terminals(demo: str) -> None:
             assert s.raceway and s.raceway_capex > 0, s.id
             assert s.capex == pytest.approx(s.conductor_capex + s.termination_capex
                                             + s.raceway_capex)
+
+
+# --- shared routes: derating from the route's own content --------------------------------
+
+
+ROUTE_TREE = """
+[[node]]
+id = "PNL"
+parent = "SRC"
+length = "40 ft"
+ocpd = "400 A"
+conductor = "2x 250 kcmil Cu"
+
+[[node]]
+id = "M1"
+parent = "PNL"
+length = "{l1} ft"
+load = "{a1} A"
+ocpd = "{o1} A"
+
+[[node]]
+id = "M2"
+parent = "PNL"
+length = "{l2} ft"
+load = "{a2} A"
+ocpd = "{o2} A"
+
+[[node]]
+id = "M3"
+parent = "PNL"
+length = "{l3} ft"
+load = "{a3} A"
+ocpd = "{o3} A"
+"""
+
+
+def _route_prep(tmp_path: Path, loads=((60, 70, 250), (45, 50, 180), (30, 35, 320)),
+                name: str = "site.toml"):
+    values = {}
+    for k, (amps, ocpd, length) in enumerate(loads, start=1):
+        values |= {f"a{k}": amps, f"o{k}": ocpd, f"l{k}": length}
+    scenario = load_scenario(write_scenario(tmp_path, ROUTE_TREE.format(**values), name=name,
+                                            max_sets=2))
+    nodes = tuple(dataclasses.replace(n, route="TRAY-NORTH") if n.id.startswith("M") else n
+                  for n in scenario.nodes)
+    return prepare(dataclasses.replace(scenario, nodes=nodes))
+
+
+def _route_brute_force(p) -> float:
+    """Least cost over every combination of rows, route content checked row by row."""
+    ranges = [np.arange(p.offsets[s], p.offsets[s + 1]) for s in range(p.n_segments)]
+    grid = np.array(np.meshgrid(*ranges, indexing="ij")).reshape(p.n_segments, -1).T
+    ok = np.ones(len(grid), dtype=bool)
+    cum = p.drop_pct[grid] + p.fixed_drop_pct
+    for s in range(p.n_segments):
+        if p.parent[s] >= 0:
+            cum[:, s] += cum[:, p.parent[s]]
+    ok &= np.all(cum <= p.limit_pct + 1e-9, axis=1)
+    members = np.flatnonzero(p.route_of >= 0)
+    total = p.route_count[grid[:, members]].sum(axis=1)
+    ok &= np.all(p.route_top[grid[:, members]] >= total[:, None], axis=1)
+    cost = p.cost[grid].sum(axis=1)
+    return float(cost[ok].min()) if ok.any() else math.inf
+
+
+@pytest.mark.parametrize("objective", [Objective.CAPEX, Objective.LIFECYCLE])
+def test_route_coupled_tree_brute_force_and_both_engines_agree(tmp_path: Path,
+                                                               objective: Objective) -> None:
+    prep = _route_prep(tmp_path)
+    p = build_problem(prep, objective)
+    assert p.has_routes
+    best = _route_brute_force(p)
+    assert math.isfinite(best)
+    for engine in ("milp", "tree"):
+        got = solve(p, engine=engine)
+        assert got.proven_optimal, engine
+        assert got.objective == pytest.approx(best, rel=1e-7), engine
+        assert not p.violations(got.choice), engine
+
+
+def _assert_route_derating_matches(prep, design) -> None:
+    from sizer.rules.ampacity import ampacity_a
+    routes: dict[str, int] = {}
+    for s in design.segments:
+        if s.route:
+            per_set = 2 if s.phases == 1 else 3
+            routes[s.route] = routes.get(s.route, 0) + s.sets * per_set
+    for s in design.segments:
+        if not s.route:
+            continue
+        total = routes[s.route]
+        # the band the derating uses holds the route's content, and no less severe band does
+        tops = np.asarray([b[0] for b in prep.profile.grouping_bands])   # NEC: conductors
+        band = int(np.searchsorted(tops, total, side="left"))
+        assert s.route_conductors == min(tops[band], 10**6), s.id
+        k = prep.catalogue.sizes.index(s.size)
+        expected = s.sets * float(ampacity_a(prep.profile, s.material, k, 90.0, 75.0, 30.0,
+                                             total, "conduit"))
+        assert s.ampacity_a == pytest.approx(expected), s.id
+
+
+def test_reported_route_derating_matches_its_content(tmp_path: Path) -> None:
+    from sizer.optimize import optimise
+    prep = _route_prep(tmp_path)
+    for engine in ("auto", "tree", "milp"):
+        for objective in (Objective.CAPEX, Objective.LIFECYCLE):
+            design = optimise(prep, objective, engine=engine)
+            assert design.segments
+            _assert_route_derating_matches(prep, design)
+
+
+@settings(max_examples=12, deadline=None, derandomize=True,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(st.lists(st.tuples(st.integers(8, 90), st.integers(60, 400)), min_size=3, max_size=3))
+def test_every_solved_route_design_derates_from_its_content(tmp_path: Path, runs) -> None:
+    from sizer.optimize import optimise
+    from sizer.rules.protection import next_standard_rating_a
+    loads = tuple((amps, int(next_standard_rating_a(NEC, amps * 1.25)), length)
+                  for amps, length in runs)
+    prep = _route_prep(tmp_path, loads, name="r" + "-".join(f"{a}_{b}" for a, b in runs) + ".toml")
+    for engine in ("tree", "milp"):
+        design = optimise(prep, Objective.LIFECYCLE, engine=engine)
+        if design.segments:
+            _assert_route_derating_matches(prep, design)

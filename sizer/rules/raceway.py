@@ -126,6 +126,16 @@ def grouped_conductors(per_set: object, sets: object, together: object) -> np.nd
     return np.where(np.asarray(together, dtype=bool), n * np.asarray(sets, dtype=np.int64), n)
 
 
+def band_tops_conductors(bands: tuple[tuple[float, float], ...],
+                         conductors_per_group: int) -> np.ndarray:
+    """Upper ends of the grouping bands in conductors (inf for the last band).
+
+    NEC 310.15(C)(1) counts conductors (3, 6, 9, 20, ...); IEC 60364-5-52 Table B.52.17
+    counts circuits, three conductors each.
+    """
+    return np.asarray([b[0] * conductors_per_group for b in bands], dtype=float)
+
+
 # --- reading the tables ---------------------------------------------------------------
 
 
