@@ -67,6 +67,9 @@ class SegmentArrays:
     own_limit_pct: np.ndarray
     route: np.ndarray | None = None        # shared route index per segment, -1 none
     per_set_ccc: np.ndarray | None = None  # current-carrying conductors of one set
+    refuse_oversize: np.ndarray | None = None  # bool: no reducing splice allowed
+    load_terminal_max: np.ndarray | None = None  # size index the load end takes, -1: as device
+    min_parallel: np.ndarray | None = None   # smallest size index for parallel sets, -1 none
 
 
 def conductors_per_set(phases: np.ndarray, neutral: np.ndarray) -> np.ndarray:
@@ -137,7 +140,27 @@ def segment_arrays(
         own_limit_pct=np.array([kind_limit[seg.kind] for seg in segments], dtype=float),
         route=route_indices(segments),
         per_set_ccc=default_grouping,
+        refuse_oversize=np.array([
+            (seg.node.cable.oversize_termination
+             or (profile.terminals.oversize if profile.terminals is not None else "splice"))
+            == "refuse" for seg in segments], dtype=bool),
+        load_terminal_max=np.array([
+            profile.size_index(seg.node.load_terminal_max) if seg.node.load_terminal_max
+            else -1 for seg in segments], dtype=np.int64),
+        min_parallel=np.array([_min_parallel(profile, seg.node.cable.min_parallel_size)
+                               for seg in segments], dtype=np.int64),
     )
+
+
+def _min_parallel(profile: RuleProfile, given: str | None) -> int:
+    """Smallest size index for parallel sets: the scenario's, never below a code minimum."""
+    own = -1 if profile.min_parallel_size is None else profile.size_index(
+        profile.min_parallel_size)
+    if given is None:
+        return own
+    wanted = profile.size_index(given)
+    # A practice minimum (iec) may be lowered; a code minimum (NEC 310.10(G)) may not.
+    return wanted if profile.min_parallel_overridable else max(wanted, own)
 
 
 def route_indices(segments: tuple[Segment, ...]) -> np.ndarray:
@@ -240,7 +263,8 @@ def build_candidates(
     protected = protects(profile, np.where(valid, ampacity, 0.0), ocpd)
     small_ok = _by_material(mat, lambda m, mask: small_conductor_ok(
         profile, MATERIALS[m], size[mask], ocpd[mask]), dtype=bool)
-    parallel_ok = min_parallel_ok(profile, size, sets)
+    parallel_ok = (min_parallel_ok(profile, size, sets) if sa.min_parallel is None
+                   else (sets == 1) | (size >= sa.min_parallel[seg]))
     code_ok = carries & protected & small_ok & parallel_ok
 
     # --- temperature, impedance, drop ---------------------------------------------------
@@ -380,8 +404,14 @@ def build_rows(profile: RuleProfile, prices: PriceList, sa: SegmentArrays, seg: 
         term_ok = np.ones(rows, dtype=bool)
     else:
         low, term_max = terminal_range(profile.terminals, sa.ocpd_a[seg], sets)
-        term_ok = lands(size, low, term_max, profile.terminals.oversize)
-        ends = np.where(term_ok, splice_ends(size, term_max, term_max), 0)
+        load_max = term_max
+        if sa.load_terminal_max is not None:
+            own = sa.load_terminal_max[seg]
+            load_max = np.where((own >= 0) & (term_max >= 0), own, term_max)
+        term_ok = lands(size, low, term_max, "splice")
+        ends = np.where(term_ok, splice_ends(size, term_max, load_max), 0)
+        if sa.refuse_oversize is not None:
+            term_ok &= ~sa.refuse_oversize[seg] | (ends == 0)
         term_ok &= (ends == 0) | np.isfinite(sold_splice)
     term_capex = np.where(ends > 0, ends * conductors * sets * sold_splice, 0.0)
 

@@ -226,6 +226,22 @@ FIELDS: tuple[Field, ...] = (
     _F("node", "max_sets", "most parallel sets the optimiser may use", r.read_sets,
        default=4, bounds=f"1 to {MAX_SETS}", attr="max_sets", also_defaults=True,
        example="4"),
+    _F("node", "route", "a shared route (tray, duct bank, trench) by name: every run with "
+       "the same route derates from the conductors the route actually holds",
+       r.read_text, default_text="none: the run's own raceway", attr="route",
+       example='"TRAY-NORTH"'),
+    _F("node", "load_terminal_max", "largest conductor the load-end equipment's terminals "
+       "take (motor starter, receptacle, panel main lugs)", r.read_size,
+       default_text="as the device at the supply end (the profile's terminal table)",
+       bounds="a size of the profile", attr="load_terminal_max", example='"250 kcmil"'),
+    _F("node", "oversize_termination", "a conductor larger than its terminal takes: land it "
+       "with a priced reducing splice, or refuse it", r.auto(r.read_oversize),
+       default_text="auto: the profile's (splice)", bounds="splice | refuse | \"auto\"",
+       attr="oversize_termination", also_defaults=True, example='"refuse"'),
+    _F("node", "min_parallel_size", "smallest conductor the optimiser may run in parallel "
+       "sets", r.auto(r.read_size), default_text="auto: the profile's (NEC 1/0 AWG; iec "
+       "50 mm2, common practice)", bounds="a size of the profile; never below a code "
+       "minimum", attr="min_parallel_size", also_defaults=True, example='"4/0 AWG"'),
     _F("node", "transformer", "the node is a transformer: a table of the keys below",
        attr="transformer", subtable=True, example='{ rating = "75 kVA", ... }'),
     _F("node", "motor", "the node's load is a motor: a table of the keys below",

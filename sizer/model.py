@@ -137,6 +137,8 @@ class CableSettings:
     installation: str = "conduit"
     grouping: int | None = None        # current-carrying conductors in the raceway
     max_sets: int = 4
+    oversize_termination: str | None = None  # "splice" | "refuse"; None: the profile's
+    min_parallel_size: str | None = None     # None: the profile's minimum for parallel sets
 
     def __post_init__(self) -> None:
         _check(len(self.materials) > 0 and all(m in MATERIALS for m in self.materials),

@@ -39,7 +39,7 @@ from sizer.model import (
     Violation,
 )
 from sizer.rules import load_profile
-from sizer.rules.profile import RuleProfile
+from sizer.rules.profile import RuleProfile, with_terminal_table
 from sizer.topology import Topology
 from sizer.units import conductor_label
 
@@ -114,6 +114,9 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
     catalogue = load_catalogue(profile.catalogue)
     segments = design_segments(scenario, profile)
     price_list = prices if prices is not None else price_list_for(scenario, catalogue)
+    if price_list.terminals_path is not None:
+        # The price list's own terminal ranges (its supplier's devices) replace the profile's.
+        profile = with_terminal_table(profile, price_list.terminals_path)
     econ = economic_params(scenario)
     table, local = build_candidates(
         segments, profile, catalogue, price_list, econ.loss_pv_per_w, keep_pins=keep_pins

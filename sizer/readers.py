@@ -269,6 +269,28 @@ def read_materials(value: Any, text: bool = False) -> tuple[str, ...]:
     return materials
 
 
+OVERSIZE_WORDS = ("splice", "refuse")
+
+
+def read_oversize(value: Any, text: bool = False) -> str:
+    """What to do with a conductor larger than its terminal takes: splice or refuse."""
+    word = read_text(value).lower()
+    if word not in OVERSIZE_WORDS:
+        raise ScenarioError(f"must be one of {', '.join(OVERSIZE_WORDS)} or \"auto\", "
+                            f"got {show(value)}")
+    return word
+
+
+def read_size(value: Any, text: bool = False) -> str:
+    """A conductor size as the trade writes it ("250 kcmil", "4/0 AWG", "95 mm2")."""
+    from sizer.units import parse_size
+
+    try:
+        return parse_size(read_text(value))
+    except UnitError as exc:
+        raise ScenarioError(exc.message) from None
+
+
 def read_installation(value: Any, text: bool = False) -> str:
     """An installation word the conductor catalogue knows."""
     from sizer.catalogue import installation

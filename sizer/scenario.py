@@ -661,7 +661,9 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 materials=cable_kw["materials"], insulation_c=cable_kw["insulation"],
                 terminals_c=cable_kw["terminals"], ambient_c=cable_kw["ambient"],
                 installation=cable_kw["installation"], grouping=cable_kw["grouping"],
-                max_sets=cable_kw["max_sets"])
+                max_sets=cable_kw["max_sets"],
+                oversize_termination=cable_kw["oversize_termination"],
+                min_parallel_size=cable_kw["min_parallel_size"])
             settings_cache[key] = cable
         if profile is not None:
             if "insulation" in v:
@@ -672,6 +674,13 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 message = check_terminals(v["terminals"], profile)
                 if message:
                     report.add(message, node=d.id, field="terminals", file=d.file)
+            for size_key in ("load_terminal_max", "min_parallel_size"):
+                size = v.get(size_key, defaults.get(size_key))
+                if size is not None and size not in profile.sizes:
+                    report.add(f"{size} is not a size of rule profile '{profile.name}' "
+                               f"({profile.sizes[0]} … {profile.sizes[-1]})", node=d.id,
+                               field=size_key, file=d.file)
+                    d.bad.add(size_key)
             pin = v.get("conductor")
             if pin is not None and not {"materials", "max_sets"} & d.bad:
                 message = check_pin(pin, cable.materials, cable.max_sets, profile)
@@ -692,6 +701,7 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 pin=v.get("conductor"), transformer=v.get("transformer"), motor=motor,
                 clearing_time_s=v.get("clearing_time", defaults["clearing_time"]),
                 neutral=v.get("neutral"), description=v.get("description", ""),
+                route=v.get("route", ""), load_terminal_max=v.get("load_terminal_max", ""),
             ))
         except ScenarioError as exc:
             report.add_error(exc, node=d.id, file=d.file)
@@ -730,6 +740,10 @@ def _schedule_row(n: Node) -> dict[str, str]:
         "ambient": f"{_num(c.ambient_c)} degC", "installation": c.installation,
         "grouping": "auto" if c.grouping is None else str(c.grouping),
         "max_sets": str(c.max_sets),
+        "route": n.route,
+        "load_terminal_max": n.load_terminal_max,
+        "oversize_termination": c.oversize_termination or "auto",
+        "min_parallel_size": c.min_parallel_size or "auto",
     }
     if (t := n.transformer) is not None:
         row |= {"transformer.rating": f"{_num(t.rating_va)} VA",

@@ -399,3 +399,88 @@ def test_every_solved_route_design_derates_from_its_content(tmp_path: Path, runs
         design = optimise(prep, Objective.LIFECYCLE, engine=engine)
         if design.segments:
             _assert_route_derating_matches(prep, design)
+
+
+# --- the scenario's own choices --------------------------------------------------------
+
+
+def test_scenario_refuses_oversize_and_names_load_end_terminals(tmp_path: Path) -> None:
+    refused = LONG_BRANCH.replace('ocpd = "20 A"\n', 'ocpd = "20 A"\noversize_termination = '
+                                  '"refuse"\n')
+    prep = prepare(load_scenario(write_scenario(tmp_path, refused, max_sets=1,
+                                                voltage="208 V")))
+    rows = slice(prep.table.offsets[1], prep.table.offsets[2])
+    assert np.all(prep.table.size_index[rows] <= NEC.size_index("8 AWG"))
+    # a receptacle that takes 10 AWG at most, on a breaker that takes 8 AWG
+    own = LONG_BRANCH.replace('ocpd = "20 A"\n', 'ocpd = "20 A"\nload_terminal_max = '
+                              '"10 AWG"\n')
+    prep = prepare(load_scenario(write_scenario(tmp_path, own, name="own.toml", max_sets=1,
+                                                voltage="208 V")))
+    t = prep.table
+    rows = np.flatnonzero(t.segment == 1)
+    k = t.size_index[rows]
+    # one splice at each end whose terminal is smaller than the conductor
+    assert np.array_equal(t.splice_ends[rows], (k > NEC.size_index("8 AWG")).astype(int)
+                          + (k > NEC.size_index("10 AWG")))
+
+
+def test_bad_terminal_size_is_one_clear_line(tmp_path: Path) -> None:
+    from sizer.errors import ScenarioError
+    bad = LONG_BRANCH.replace('ocpd = "20 A"\n', 'ocpd = "20 A"\nload_terminal_max = '
+                              '"95 mm2"\n')
+    with pytest.raises(ScenarioError, match="node 'REC', field 'load_terminal_max'"):
+        load_scenario(write_scenario(tmp_path, bad, voltage="208 V"))
+
+
+def test_route_field_reads_and_couples(tmp_path: Path) -> None:
+    text = ROUTE_TREE.format(a1=60, o1=70, l1=250, a2=45, o2=50, l2=180, a3=30, o3=35, l3=320)
+    text = text.replace('load = "60 A"', 'load = "60 A"\nroute = "TRAY-NORTH"').replace(
+        'load = "45 A"', 'load = "45 A"\nroute = "TRAY-NORTH"')
+    scenario = load_scenario(write_scenario(tmp_path, text, max_sets=2))
+    assert [n.route for n in scenario.nodes] == ["", "TRAY-NORTH", "TRAY-NORTH", ""]
+    p = build_problem(prepare(scenario), Objective.CAPEX)
+    assert p.has_routes and set(p.route_of.tolist()) == {-1, 0}
+
+
+@pytest.mark.parametrize(("rules", "given", "smallest"), [
+    ("iec", None, "50 mm2"),         # common practice: parallel sets from 50 mm2
+    ("iec", "16 mm2", "16 mm2"),     # a practice minimum may be lowered
+    ("nec", None, "1/0 AWG"),        # NEC 310.10(G)(1): 1/0 AWG and larger
+    ("nec", "4 AWG", "1/0 AWG"),     # never below the code's minimum
+    ("nec", "4/0 AWG", "4/0 AWG"),   # but raised
+])
+def test_min_parallel_size_override(rules: str, given: str | None, smallest: str) -> None:
+    from sizer.candidates import _min_parallel
+    profile = load_profile(rules)
+    assert profile.sizes[_min_parallel(profile, given)] == smallest
+
+
+def test_min_parallel_size_reaches_the_table(tmp_path: Path) -> None:
+    nodes = """
+[[node]]
+id = "FEED"
+parent = "SRC"
+length = "100 ft"
+ocpd = "400 A"
+min_parallel_size = "300 kcmil"
+"""
+    t = prepare(load_scenario(write_scenario(tmp_path, nodes))).table
+    assert t.sets.max() > 1 and t.size_index[t.sets > 1].min() == NEC.size_index("300 kcmil")
+
+
+def test_terminal_table_beside_the_price_list_replaces_the_profiles(tmp_path: Path) -> None:
+    import shutil
+    from sizer.catalogue.prices import bundled_price_list_path
+    src = bundled_price_list_path("demo-us.csv")
+    for suffix in (".csv", ".raceways.csv"):
+        shutil.copy(src.with_name(f"demo-us{suffix}"), tmp_path / f"mine{suffix}")
+    (tmp_path / "mine.terminals.csv").write_text(
+        "# source: test table: every device takes 14 AWG - 12 AWG\n"
+        "ocpd_max_a,conductors_per_terminal,min_size,max_size\n"
+        "6000,4,14 AWG,12 AWG\n", encoding="utf-8")
+    path = write_scenario(tmp_path, LONG_BRANCH, max_sets=1, voltage="208 V")
+    path.write_text(path.read_text(encoding="utf-8").replace(
+        "[defaults]", '[prices]\ncatalogue = "mine.csv"\n\n[defaults]'), encoding="utf-8")
+    prep = prepare(load_scenario(path))
+    t = prep.table
+    assert np.all(t.terminal_max == NEC.size_index("12 AWG"))

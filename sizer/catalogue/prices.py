@@ -70,6 +70,8 @@ class PriceList:
     # where the list has no ``splice`` column or no price: such a conductor is not spliced.
     splice_each: Mapping[str, FloatArray] = _field(default_factory=lambda: MappingProxyType({}))
     raceways: RacewayPrices | None = None  # the ``<list>.raceways.csv`` beside the list
+    # ``<list>.terminals.csv`` beside the list: terminal ranges replacing the profile's
+    terminals_path: Path | None = None
 
     def splice(self, material: str) -> FloatArray:
         """Price of one reducing splice on one conductor, over the catalogue's sizes."""
@@ -297,6 +299,7 @@ def load_price_list(
         splice_each[mat] = arr
     race_path = raceway_list_path(path)
     raceways = load_raceway_prices(race_path, currency) if race_path.is_file() else None
+    term_path = Path(path).with_name(f"{Path(path).stem}.terminals.csv")
     as_listed = PriceList(
         currency=currency,
         source=f"{Path(path).name}: {described}" if described else Path(path).name,
@@ -308,6 +311,7 @@ def load_price_list(
         metal_per_kg=MappingProxyType(metal_per_kg),
         splice_each=MappingProxyType(splice_each),
         raceways=raceways,
+        terminals_path=term_path if term_path.is_file() else None,
     )
     new = {mat: value for mat, value in (("Cu", copper_per_kg), ("Al", aluminium_per_kg))
            if value is not None}
@@ -431,7 +435,7 @@ def bundled_price_list_path(name: str) -> Path:
     if rel.name and candidate.is_file():
         return candidate
     shipped = (sorted(p.name for p in COSTDATA_DIR.glob("*.csv")
-                      if not p.name.endswith(".raceways.csv"))  # those price raceways
+                      if not p.name.endswith((".raceways.csv", ".terminals.csv")))
                if COSTDATA_DIR.is_dir() else [])
     listing = ", ".join(shipped) if shipped else f"none found in {COSTDATA_DIR}"
     raise ScenarioError(f"no bundled price list {name!r} (bundled: {listing})", field="catalogue")

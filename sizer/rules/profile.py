@@ -8,6 +8,7 @@ Every CSV opens with ``#`` lines naming its standard, table, edition and status.
 from __future__ import annotations
 
 import csv
+import dataclasses
 import math
 import tomllib
 from collections.abc import Mapping
@@ -111,6 +112,7 @@ class RuleProfile:
     default_clearing_time_s: float
     short_circuit_final_c: tuple[tuple[float, float], ...]  # (insulation rating, final temp)
     motor_start_dip_pct: float
+    min_parallel_overridable: bool = False   # the minimum is practice, not code: may be lowered
     terminals: TerminalTable | None = None   # terminal ranges by device rating; None: any size
     raceway: RacewayRules | None = None      # raceway practice; None: raceways not sized
     _size_lookup: Mapping[str, int] = field(init=False, repr=False)
@@ -551,8 +553,10 @@ def read_profile(path: str | Path) -> RuleProfile:
     egc.finish()
 
     min_parallel = None
+    overridable = False
     if (par := top.optional_sub("parallel")) is not None:
         min_parallel = par.take("min_size", str)
+        overridable = par.take("practice", bool, False)
         sources["parallel"] = par.take("source", str)
         par.finish()
 
@@ -605,7 +609,21 @@ def read_profile(path: str | Path) -> RuleProfile:
         min_parallel_size=min_parallel, default_clearing_time_s=clearing,
         short_circuit_final_c=tuple((b[0], b[1]) for b in finals),
         motor_start_dip_pct=dip, terminals=terminals, raceway=raceway,
+        min_parallel_overridable=overridable,
     )
+
+
+def with_terminal_table(profile: RuleProfile, path: str | Path) -> RuleProfile:
+    """The profile with its terminal ranges replaced by a table file.
+
+    The file has the columns of the profile's own table (e.g. one beside a price list);
+    the oversize practice stays the profile's.
+    """
+    header, rows, source = _read_csv(Path(path))
+    oversize = profile.terminals.oversize if profile.terminals is not None else "splice"
+    table = read_terminal_table(header, rows, {sz: i for i, sz in enumerate(profile.sizes)},
+                                oversize, f"{Path(path).name}: {source}", str(path))
+    return dataclasses.replace(profile, terminals=table)
 
 
 def _read_raceway(rw: _Section, here: Path, sizes: tuple[str, ...], file: str) -> RacewayRules:
