@@ -470,6 +470,7 @@ min_parallel_size = "300 kcmil"
 
 def test_terminal_table_beside_the_price_list_replaces_the_profiles(tmp_path: Path) -> None:
     import shutil
+
     from sizer.catalogue.prices import bundled_price_list_path
     src = bundled_price_list_path("demo-us.csv")
     for suffix in (".csv", ".raceways.csv"):

@@ -26,8 +26,9 @@ def solve(problem: Problem, engine: str = "auto", solver: str = "cbc",
           time_limit_s: float | None = None) -> Solution:
     """Solve ``problem`` with the named engine.
 
-    ``auto`` runs the tree engine when the problem has no side constraints, else the
-    MILP; when the tree engine's front bound is hit it falls back to the MILP and says
+    ``auto`` runs the tree engine when the problem has no side constraints (shared
+    routes aside: the tree engine bounds them and hands what it cannot prove to the
+    MILP), else the MILP; when the tree engine's front bound is hit it falls back to the MILP and says
     so in the message. ``solver`` ("cbc" | "highs") and ``time_limit_s`` (wall clock,
     seconds) apply to the MILP; the tree engine has no time limit.
     """
@@ -37,7 +38,8 @@ def solve(problem: Problem, engine: str = "auto", solver: str = "cbc",
     if solver not in SOLVERS:
         raise ScenarioError(f"unknown solver {solver!r}; choose one of {', '.join(SOLVERS)}",
                             field="solver")
-    if engine == "tree" and problem.has_routes and not _other_side_constraints(problem):
+    if (engine in ("tree", "auto") and problem.has_routes
+            and not _other_side_constraints(problem)):
         return _tree_with_routes(problem, solver, time_limit_s)
     if engine == "tree" and problem.has_side_constraints:
         raise ScenarioError("the tree engine takes no side constraints (motor start, budget "
