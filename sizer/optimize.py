@@ -339,6 +339,12 @@ def diagnose(prep: Prepared, limit_pct: np.ndarray | None = None) -> list[str]:
         if local.pinned_fails[s]:
             lines.append(f"segment '{seg.id}': the pinned conductor {seg.node.pin} breaks the "
                          f"{local.pinned_fails[s]} rule; unpin it or pin a larger one")
+        elif local.build_limits and local.build_limits[s]:
+            lines.append(
+                f"segment '{seg.id}': every conductor that meets the rules was refused by a "
+                f"{local.build_limits[s]}; fix: allow reducing splices (oversize_termination "
+                f"= \"splice\"), equipment with larger terminals (load_terminal_max), more "
+                f"parallel sets, or another installation")
         elif not math.isfinite(local.best_drop_pct[s]):
             lines.append(
                 f"segment '{seg.id}': no allowed conductor carries {seg.required_ampacity_a:.0f} A "

@@ -485,3 +485,38 @@ def test_terminal_table_beside_the_price_list_replaces_the_profiles(tmp_path: Pa
     prep = prepare(load_scenario(path))
     t = prep.table
     assert np.all(t.terminal_max == NEC.size_index("12 AWG"))
+
+
+# --- the report: installed cost, its breakdown, and the limits that refused upsizing ----
+
+
+def test_report_prices_the_whole_installation_and_names_refusals(tmp_path: Path) -> None:
+    from sizer.report.html import render_report
+    from sizer.report.tables import option_row
+    from sizer.results import solve_results
+    refused = LONG_BRANCH.replace('ocpd = "20 A"\n', 'ocpd = "20 A"\noversize_termination = '
+                                  '"refuse"\n').replace('"260 ft"', '"130 ft"')
+    prep = prepare(load_scenario(write_scenario(tmp_path, refused, max_sets=1,
+                                                voltage="208 V")))
+    results = solve_results(prep, Objective.LIFECYCLE, compare=True)
+    text = render_report(results)
+    for header in ("Conductors USD", "Splices USD", "Raceways USD", "Terminal takes", "Lands",
+                   "Raceway"):
+        assert header in text, header
+    assert "REC: terminal limit: the 20 A device takes at most 8 AWG per terminal" in text
+    row = option_row("lifecycle", "x", results.design, prep.economics, 0.4)
+    assert row.capex == pytest.approx(row.conductor_capex + row.termination_capex
+                                      + row.raceway_capex)
+    assert row.raceway_capex > 0
+
+
+def test_refused_everywhere_is_diagnosed_with_the_limit(tmp_path: Path) -> None:
+    from sizer.optimize import optimise
+    refused = LONG_BRANCH.replace('ocpd = "20 A"\n', 'ocpd = "20 A"\noversize_termination = '
+                                  '"refuse"\n')
+    prep = prepare(load_scenario(write_scenario(tmp_path, refused, max_sets=1,
+                                                voltage="208 V")))
+    design = optimise(prep, Objective.CAPEX)
+    assert design.status == "infeasible"
+    assert any("refused by a terminal limit: the 20 A device takes at most 8 AWG" in line
+               for line in design.diagnosis), design.diagnosis

@@ -28,8 +28,8 @@ def solve(problem: Problem, engine: str = "auto", solver: str = "cbc",
 
     ``auto`` runs the tree engine when the problem has no side constraints (shared
     routes aside: the tree engine bounds them and hands what it cannot prove to the
-    MILP), else the MILP; when the tree engine's front bound is hit it falls back to the MILP and says
-    so in the message. ``solver`` ("cbc" | "highs") and ``time_limit_s`` (wall clock,
+    MILP), else the MILP; when the tree engine's front bound is hit it falls back to the
+    MILP and says so in the message. ``solver`` ("cbc" | "highs") and ``time_limit_s`` (wall clock,
     seconds) apply to the MILP; the tree engine has no time limit.
     """
     if engine not in ENGINES:

@@ -503,6 +503,7 @@ class _Page:
             out.append("<p>The code-minimum or lifecycle option has no design; nothing to "
                        "compare.</p></section>")
             return "".join(out)
+        out.append(self._limits())
         if not self.justify:
             out.append("<p>The lifecycle optimum buys no run larger than the code minimum.</p>"
                        "</section>")
@@ -531,14 +532,6 @@ class _Page:
                    f"{self.econ.years:g} years at {100 * self.econ.discount:g} % with "
                    f"{100 * self.econ.escalation:g} % escalation. Added cost is the full "
                    "installed cost: conductors, splices, raceways and labour.</p>")
-        limits = [(seg.id, text) for seg, text in zip(self.prep.segments,
-                                                      self.prep.local.build_limits, strict=False)
-                  if text]
-        if limits:
-            out.append("<p>Runs that could not be upsized further because of a terminal or "
-                       "raceway limit:</p><ul class=\"limits\">"
-                       + "".join(f"<li>{esc(sid)}: {esc(text)}</li>" for sid, text in limits)
-                       + "</ul>")
         if self.cash is not None and self.cash.added_cost > 0.5:
             fig = plots.cash_flow_figure(self.cash, cur, self.econ.discount)
             out.append(figure(plots.png_bytes(fig), "Cumulative cash flow of upsizing",
@@ -546,6 +539,18 @@ class _Page:
                               "savings after; where a curve crosses zero it has paid back."))
         out.append("</section>")
         return "".join(out)
+
+    def _limits(self) -> str:
+        """The runs a terminal or raceway limit kept from a larger conductor, named."""
+        limits = [(seg.id, text) for seg, text in zip(self.prep.segments,
+                                                      self.prep.local.build_limits, strict=False)
+                  if text]
+        if not limits:
+            return ""
+        return ("<p>Runs that could not be upsized further because of a terminal or raceway "
+                "limit:</p><ul class=\"limits\">"
+                + "".join(f"<li>{esc(sid)}: {esc(text)}</li>" for sid, text in limits)
+                + "</ul>")
 
     def schedule_section(self) -> str:
         """The cable schedule of the design: one row per run, narrow enough for a page.
