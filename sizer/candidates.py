@@ -20,7 +20,12 @@ from sizer.conductors import impedance_ohm_per_m, operating_temperature_c
 from sizer.drop import drop_pct, transformer_regulation_pct
 from sizer.errors import ScenarioError
 from sizer.model import CandidateTable, Segment
-from sizer.rules.ampacity import ambient_factor, grouping_factor, table_ampacity_a
+from sizer.rules.ampacity import (
+    ambient_factor,
+    grouping_factor,
+    soil_factor,
+    table_ampacity_a,
+)
 from sizer.rules.profile import RuleProfile
 from sizer.rules.protection import (
     egc_size_index_of_sizes,
@@ -30,6 +35,7 @@ from sizer.rules.protection import (
     terminal_temperature_c,
 )
 from sizer.rules.raceway import (
+    DIRECT,
     NO_RACEWAY,
     NONE,
     TRAY,
@@ -38,7 +44,13 @@ from sizer.rules.raceway import (
     raceway_size_index,
     tray_width_index,
 )
-from sizer.rules.terminations import NO_TERMINAL, lands, splice_ends, terminal_range
+from sizer.rules.terminations import (
+    NO_TERMINAL,
+    lands,
+    most_per_terminal,
+    splice_ends,
+    terminal_range,
+)
 from sizer.units import MATERIALS
 
 
@@ -70,6 +82,7 @@ class SegmentArrays:
     refuse_oversize: np.ndarray | None = None  # bool: no reducing splice allowed
     load_terminal_max: np.ndarray | None = None  # size index the load end takes, -1: as device
     min_parallel: np.ndarray | None = None   # smallest size index for parallel sets, -1 none
+    soil_factor: np.ndarray | None = None    # soil resistivity and depth correction, buried
 
 
 def conductors_per_set(phases: np.ndarray, neutral: np.ndarray) -> np.ndarray:
@@ -149,7 +162,17 @@ def segment_arrays(
             else -1 for seg in segments], dtype=np.int64),
         min_parallel=np.array([_min_parallel(profile, seg.node.cable.min_parallel_size)
                                for seg in segments], dtype=np.int64),
+        soil_factor=np.array([_soil(profile, seg) for seg in segments], dtype=float),
     )
+
+
+def _soil(profile: RuleProfile, seg: Segment) -> float:
+    """The soil correction of one segment, its node named in any error."""
+    c = seg.node.cable
+    try:
+        return soil_factor(profile, c.installation, c.soil_resistivity_k_m_per_w, c.depth_m)
+    except ScenarioError as exc:
+        raise exc.located(node=seg.id) from None
 
 
 def _min_parallel(profile: RuleProfile, given: str | None) -> int:
@@ -403,13 +426,21 @@ def build_rows(profile: RuleProfile, prices: PriceList, sa: SegmentArrays, seg: 
         ends = np.zeros(rows, dtype=np.int64)
         term_ok = np.ones(rows, dtype=bool)
     else:
-        low, term_max = terminal_range(profile.terminals, sa.ocpd_a[seg], sets)
+        # More sets than the terminal takes land through a splice box: each conductor is
+        # spliced to the terminal's own number of sets (common practice on long runs
+        # upsized for voltage drop), priced like a reducing splice.
+        most = most_per_terminal(profile.terminals, sa.ocpd_a[seg])
+        crowded = sets > most
+        # (above the table ``most`` is 0 and terminal_range gives NO_TERMINAL: refused)
+        low, term_max = terminal_range(profile.terminals, sa.ocpd_a[seg],
+                                       np.where(crowded, np.maximum(most, 1), sets))
         load_max = term_max
         if sa.load_terminal_max is not None:
             own = sa.load_terminal_max[seg]
             load_max = np.where((own >= 0) & (term_max >= 0), own, term_max)
         term_ok = lands(size, low, term_max, "splice")
-        ends = np.where(term_ok, splice_ends(size, term_max, load_max), 0)
+        ends = np.where(term_ok, np.where(crowded, 2, splice_ends(size, term_max, load_max)),
+                        0)
         if sa.refuse_oversize is not None:
             term_ok &= ~sa.refuse_oversize[seg] | (ends == 0)
         term_ok &= (ends == 0) | np.isfinite(sold_splice)
@@ -428,8 +459,8 @@ def build_rows(profile: RuleProfile, prices: PriceList, sa: SegmentArrays, seg: 
                             rules.conductor_area_mm2["Al"][egc])
         for kind in np.unique(kinds).tolist():
             m = kinds == kind
-            if kind == NONE:
-                continue
+            if kind in (NONE, DIRECT):
+                continue  # no raceway (a direct-buried run pays its trench below)
             if kind == TRAY:
                 d = np.sqrt(4.0 / np.pi) * (conductors[m] * np.sqrt(area[m])
                                             + np.sqrt(egc_area[m]))
@@ -503,7 +534,8 @@ def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes
         terminal_c = terminal_c.copy()
         terminal_c[auto] = terminal_temperature_c(profile, sa.ocpd_a[seg[auto]], size[auto])
     terminal_c = np.where(np.isnan(terminal_c), -1.0, terminal_c)  # -1: no terminal limit
-    settings = np.column_stack([sa.insulation_c, sa.ambient_c, inst_code])
+    soil = sa.soil_factor if sa.soil_factor is not None else np.ones(len(inst_code))
+    settings = np.column_stack([sa.insulation_c, sa.ambient_c, inst_code, soil])
     uniq_settings, seg_group = np.unique(settings, axis=0, return_inverse=True)
     terms, term_code = np.unique(terminal_c, return_inverse=True)
     group = (seg_group.ravel()[seg] * 2 + mat) * len(terms) + term_code.ravel()
@@ -513,13 +545,14 @@ def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes
     for g in np.unique(group).tolist():
         t = g % len(terms)
         m = (g // len(terms)) % 2
-        ins, amb, inst = uniq_settings[g // len(terms) // 2]
+        ins, amb, inst, ground = uniq_settings[g // len(terms) // 2]
         inst_name = inst_names[int(inst)]
         # The insulation column corrected for ambient: with the grouping factor, the current
         # at which the conductor reaches its rated temperature (terminals do not heat it).
         corrected_tab[g] = (table_ampacity_a(profile, MATERIALS[m], all_sizes, float(ins),
                                              inst_name)
-                            * ambient_factor(profile, float(ins), float(amb), inst_name))
+                            * ambient_factor(profile, float(ins), float(amb), inst_name)
+                            * float(ground))
         if terms[t] >= 0:
             limit_tab[g] = table_ampacity_a(profile, MATERIALS[m], all_sizes, float(terms[t]),
                                             inst_name)

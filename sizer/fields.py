@@ -242,6 +242,14 @@ FIELDS: tuple[Field, ...] = (
        "sets", r.auto(r.read_size), default_text="auto: the profile's (NEC 1/0 AWG; iec "
        "50 mm2, common practice)", bounds="a size of the profile; never below a code "
        "minimum", attr="min_parallel_size", also_defaults=True, example='"4/0 AWG"'),
+    _F("node", "soil_resistivity", "soil thermal resistivity of a buried run", r.auto(
+       r.read_soil_resistivity), unit="K*m/W", default_text="auto: the profile's reference "
+       "(iec 2.5 K*m/W; nec and cec do not correct)", bounds="0.2 to 10 K*m/W, or \"auto\"",
+       attr="soil_resistivity_k_m_per_w", also_defaults=True, example='"1.5 K*m/W"'),
+    _F("node", "depth", "laying depth of a buried run", r.auto(r.read_depth), unit="m",
+       default_text="auto: the profile's reference (iec 0.7 m; nec and cec do not correct)",
+       bounds="0.2 to 5 m, or \"auto\"", attr="depth_m", also_defaults=True,
+       example='"0.9 m"'),
     _F("node", "transformer", "the node is a transformer: a table of the keys below",
        attr="transformer", subtable=True, example='{ rating = "75 kVA", ... }'),
     _F("node", "motor", "the node's load is a motor: a table of the keys below",

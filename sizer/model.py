@@ -139,6 +139,8 @@ class CableSettings:
     max_sets: int = 4
     oversize_termination: str | None = None  # "splice" | "refuse"; None: the profile's
     min_parallel_size: str | None = None     # None: the profile's minimum for parallel sets
+    soil_resistivity_k_m_per_w: float | None = None  # buried runs; None: the reference
+    depth_m: float | None = None                     # buried runs; None: the reference
 
     def __post_init__(self) -> None:
         _check(len(self.materials) > 0 and all(m in MATERIALS for m in self.materials),

@@ -663,7 +663,9 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 installation=cable_kw["installation"], grouping=cable_kw["grouping"],
                 max_sets=cable_kw["max_sets"],
                 oversize_termination=cable_kw["oversize_termination"],
-                min_parallel_size=cable_kw["min_parallel_size"])
+                min_parallel_size=cable_kw["min_parallel_size"],
+                soil_resistivity_k_m_per_w=cable_kw["soil_resistivity"],
+                depth_m=cable_kw["depth"])
             settings_cache[key] = cable
         if profile is not None:
             if "insulation" in v:
@@ -744,6 +746,9 @@ def _schedule_row(n: Node) -> dict[str, str]:
         "load_terminal_max": n.load_terminal_max,
         "oversize_termination": c.oversize_termination or "auto",
         "min_parallel_size": c.min_parallel_size or "auto",
+        "soil_resistivity": ("auto" if c.soil_resistivity_k_m_per_w is None
+                             else f"{_num(c.soil_resistivity_k_m_per_w)} K*m/W"),
+        "depth": "auto" if c.depth_m is None else f"{_num(c.depth_m)} m",
     }
     if (t := n.transformer) is not None:
         row |= {"transformer.rating": f"{_num(t.rating_va)} VA",

@@ -28,7 +28,13 @@ from sizer.rules.raceway import (
     raceway_size_index,
     tray_width_index,
 )
-from sizer.rules.terminations import NO_TERMINAL, lands, splice_ends, terminal_range
+from sizer.rules.terminations import (
+    NO_TERMINAL,
+    lands,
+    most_per_terminal,
+    splice_ends,
+    terminal_range,
+)
 from sizer.scenario import load_scenario
 
 NEC = load_profile("nec")
@@ -119,6 +125,20 @@ def test_too_many_sets_for_the_terminal_has_no_range() -> None:
     lo, hi = terminal_range(NEC.terminals, 400.0, 3)
     assert int(lo) == int(hi) == NO_TERMINAL
     assert not lands(NEC.size_index("4/0 AWG"), lo, hi, "splice")
+
+
+def test_more_sets_than_the_terminal_takes_land_through_splices(tmp_path: Path) -> None:
+    nodes = """
+[[node]]
+id = "FEED"
+parent = "SRC"
+length = "100 ft"
+ocpd = "400 A"
+"""
+    t = prepare(load_scenario(write_scenario(tmp_path, nodes))).table
+    three = t.sets == 3          # a 400 A frame takes one or two conductors per terminal
+    assert three.any() and np.all(t.splice_ends[three] == 2)
+    assert np.all(t.terminal_max[three] == NEC.size_index("250 kcmil"))
 
 
 def test_oversize_lands_by_splice_or_is_refused() -> None:
@@ -269,9 +289,12 @@ def test_demo_optima_land_on_their_terminals(demo: str) -> None:
         for s in design.segments:
             top = prep.catalogue.sizes.index(s.terminal_max)
             here = prep.catalogue.sizes.index(s.size)
-            assert s.termination == ("direct" if here <= top else "reducing splice"), s.id
-            if s.termination == "reducing splice":
-                assert s.termination_capex > 0, s.id
+            most = int(most_per_terminal(prep.profile.terminals, s.ocpd_a))
+            # direct on the terminal, or through priced splices: larger than the terminal
+            # takes, or more sets than it has room for
+            spliced = here > top or s.sets > most
+            assert s.termination == ("reducing splice" if spliced else "direct"), s.id
+            assert (s.termination_capex > 0) == spliced, s.id
             assert s.raceway and s.raceway_capex > 0, s.id
             assert s.capex == pytest.approx(s.conductor_capex + s.termination_capex
                                             + s.raceway_capex)
@@ -520,3 +543,58 @@ def test_refused_everywhere_is_diagnosed_with_the_limit(tmp_path: Path) -> None:
     assert design.status == "infeasible"
     assert any("refused by a terminal limit: the 20 A device takes at most 8 AWG" in line
                for line in design.diagnosis), design.diagnosis
+
+
+# --- direct burial: soil and depth -------------------------------------------------------
+
+
+@pytest.mark.parametrize(("installation", "rho", "depth", "factor"), [
+    # IEC 60364-5-52 Table B.52.16 [M] (reference 2.5 K.m/W), depth 0.7 m reference
+    ("direct_buried", 2.5, 0.7, 1.00),
+    ("direct_buried", 1.0, None, 1.50),
+    ("direct_buried", 1.2, None, 1.28),      # between rows: the more severe row (1.5)
+    ("buried", 1.0, None, 1.18),             # in ducts (D1)
+    ("direct_buried", None, 1.0, 0.97),      # depth, common practice [M]
+    ("conduit", 1.0, 1.0, 1.00),             # not in the ground
+])
+def test_iec_soil_and_depth_factors(installation, rho, depth, factor) -> None:
+    from sizer.rules.ampacity import soil_factor
+    assert soil_factor(load_profile("iec"), installation, rho, depth) == pytest.approx(factor)
+
+
+def test_nec_does_not_correct_for_soil() -> None:
+    from sizer.rules.ampacity import soil_factor
+    assert soil_factor(NEC, "direct_buried", 0.6, 1.5) == 1.0
+    assert any("soil thermal resistivity" in note for note in NEC.notes)
+
+
+def test_direct_burial_pays_its_trench_and_derates_with_the_soil(tmp_path: Path) -> None:
+    base = """
+[[node]]
+id = "FAR"
+parent = "SRC"
+length = "200 m"
+ocpd = "160 A"
+installation = "direct_buried"
+"""
+    head = {"rules": "iec", "currency": "EUR", "voltage": "400 V",
+            "energy_price": "0.2 EUR/kWh"}
+
+    def table(extra: str, name: str):
+        path = write_scenario(tmp_path, base + extra, name=name, **head)
+        path.write_text(path.read_text(encoding="utf-8").replace('terminals = "75 degC"',
+                                                                 'terminals = "auto"'),
+                        encoding="utf-8")
+        return prepare(load_scenario(path))
+
+    reference = table("", "a.toml")
+    moist = table('soil_resistivity = "1 K*m/W"\n', "b.toml")
+    t, u = reference.table, moist.table
+    one = (t.sets == 1) & (t.size_index == reference.catalogue.sizes.index("120 mm2"))
+    two = (u.sets == 1) & (u.size_index == moist.catalogue.sizes.index("120 mm2"))
+    assert float(u.ampacity_a[two][0]) == pytest.approx(1.5 * float(t.ampacity_a[one][0]))
+    design = _solve(reference, Objective.CAPEX)
+    far = design.segments[0]
+    assert far.raceway == "direct buried in trench"
+    trench = reference.prices.raceways.trench_per_m * 200
+    assert far.raceway_capex == pytest.approx(trench)

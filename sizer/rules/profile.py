@@ -23,6 +23,7 @@ import numpy as np
 
 from sizer.errors import ScenarioError, UnitError
 from sizer.rules.raceway import (
+    DIRECT,
     NONE,
     TRAY,
     RacewayRules,
@@ -33,7 +34,8 @@ from sizer.rules.terminations import TerminalTable, read_terminal_table
 from sizer.units import MATERIALS, MM2_PER_CMIL, parse_size
 
 PROFILES: tuple[str, ...] = ("nec", "cec", "iec")
-INSTALLATIONS: tuple[str, ...] = ("conduit", "steel_conduit", "tray", "buried", "free_air")
+INSTALLATIONS: tuple[str, ...] = ("conduit", "steel_conduit", "tray", "buried", "direct_buried",
+                                  "free_air")
 CATALOGUES: tuple[str, ...] = ("awg", "metric")
 EGC_RULES: tuple[str, ...] = ("device_rating", "phase_area")
 DROP_KINDS: tuple[str, ...] = ("branch", "feeder", "total")
@@ -53,6 +55,21 @@ class TerminalRule:
     high_c: float
     low_max_ocpd_a: float
     low_max_size: str
+    source: str
+
+
+@dataclass(frozen=True)
+class SoilCorrection:
+    """Correction of buried ampacities for soil thermal resistivity and laying depth.
+
+    ``resistivity``: installation -> ((K·m/W, factor), ...) ascending; ``depth``:
+    ((m, factor), ...) ascending; a value between rows takes the next more severe row.
+    """
+
+    reference_k_m_per_w: float
+    reference_depth_m: float
+    resistivity: Mapping[str, tuple[tuple[float, float], ...]]
+    depth: tuple[tuple[float, float], ...]
     source: str
 
 
@@ -113,6 +130,7 @@ class RuleProfile:
     short_circuit_final_c: tuple[tuple[float, float], ...]  # (insulation rating, final temp)
     motor_start_dip_pct: float
     min_parallel_overridable: bool = False   # the minimum is practice, not code: may be lowered
+    soil: SoilCorrection | None = None       # soil resistivity and depth factors; None: none
     terminals: TerminalTable | None = None   # terminal ranges by device rating; None: any size
     raceway: RacewayRules | None = None      # raceway practice; None: raceways not sized
     _size_lookup: Mapping[str, int] = field(init=False, repr=False)
@@ -575,6 +593,23 @@ def read_profile(path: str | Path) -> RuleProfile:
         sources["terminations"] = terminals.source
         tm.finish()
 
+    soil = None
+    if (so := top.optional_sub("soil")) is not None:
+        by_inst = so.sub("resistivity")
+        soil = SoilCorrection(
+            reference_k_m_per_w=so.take("reference_k_m_per_w", float),
+            reference_depth_m=so.take("reference_depth_m", float),
+            resistivity=MappingProxyType({
+                k: tuple((b[0], b[1]) for b in _bands(by_inst.take(k, list), 2,
+                                                      "soil resistivity factors", file))
+                for k in list(by_inst.data)}),
+            depth=tuple((b[0], b[1]) for b in _bands(so.take("depth", list), 2,
+                                                     "depth factors", file)),
+            source=so.take("source", str))
+        by_inst.finish()
+        so.finish()
+        sources["soil"] = soil.source
+
     raceway = None
     if (rw := top.optional_sub("raceway")) is not None:
         raceway = _read_raceway(rw, here, sizes, file)
@@ -609,7 +644,7 @@ def read_profile(path: str | Path) -> RuleProfile:
         min_parallel_size=min_parallel, default_clearing_time_s=clearing,
         short_circuit_final_c=tuple((b[0], b[1]) for b in finals),
         motor_start_dip_pct=dip, terminals=terminals, raceway=raceway,
-        min_parallel_overridable=overridable,
+        min_parallel_overridable=overridable, soil=soil,
     )
 
 
@@ -647,7 +682,7 @@ def _read_raceway(rw: _Section, here: Path, sizes: tuple[str, ...], file: str) -
     source = rw.take("source", str)
     rw.finish()
     for inst, kind in installation_type.items():
-        if kind not in types and kind not in (TRAY, NONE):
+        if kind not in types and kind not in (TRAY, NONE, DIRECT):
             raise ScenarioError(f"[raceway.types] {inst} = {kind!r} is not a raceway type of "
                                 f"the table ({', '.join(types)}), {TRAY!r} or {NONE!r}",
                                 file=file)

@@ -20,6 +20,7 @@ MM2_PER_IN2 = 25.4**2
 NO_RACEWAY = -1    # raceway_size_index: no listed size is large enough
 TRAY = "tray"      # the raceway type word that means a cable tray priced by width
 NONE = "none"      # no raceway (free air on cleats)
+DIRECT = "direct"  # no raceway: laid directly in the ground of the trench
 
 
 @dataclass(frozen=True, eq=False)
@@ -64,6 +65,8 @@ class RacewayRules:
         kind = self.installation_type[installation]
         if kind == NONE:
             return "none (free air)"
+        if kind == DIRECT:
+            return "direct buried in trench"
         if k < 0:
             return ""
         if kind == TRAY:

@@ -94,6 +94,18 @@ def terminal_range(table: TerminalTable, ocpd_a: object,
     return low, high
 
 
+def most_per_terminal(table: TerminalTable, ocpd_a: object) -> np.ndarray:
+    """Most conductors per terminal any row of the device's band takes (0 above the table)."""
+    ocpd = np.asarray(ocpd_a, dtype=float)
+    bands = np.unique(table.ocpd_max_a)
+    band = np.searchsorted(bands, ocpd * (1 - _REL_TOL), side="left")
+    row_band = np.searchsorted(bands, table.ocpd_max_a, side="left")
+    most = np.zeros(ocpd.shape, dtype=np.int64)
+    for r in range(table.ocpd_max_a.shape[0]):
+        most = np.where(band == row_band[r], np.maximum(most, table.per_terminal[r]), most)
+    return most
+
+
 def splice_ends(size_index: object, supply_max: object, load_max: object) -> np.ndarray:
     """Ends of the run (0, 1 or 2) where the conductor is larger than the terminal takes."""
     size = np.asarray(size_index)
