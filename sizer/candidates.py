@@ -83,6 +83,7 @@ class SegmentArrays:
     load_terminal_max: np.ndarray | None = None  # size index the load end takes, -1: as device
     min_parallel: np.ndarray | None = None   # smallest size index for parallel sets, -1 none
     soil_factor: np.ndarray | None = None    # soil resistivity and depth correction, buried
+    one_raceway: np.ndarray | None = None    # bool: all parallel sets in one raceway
 
 
 def conductors_per_set(phases: np.ndarray, neutral: np.ndarray) -> np.ndarray:
@@ -163,6 +164,8 @@ def segment_arrays(
         min_parallel=np.array([_min_parallel(profile, seg.node.cable.min_parallel_size)
                                for seg in segments], dtype=np.int64),
         soil_factor=np.array([_soil(profile, seg) for seg in segments], dtype=float),
+        one_raceway=np.array([seg.node.cable.sets_in_one_raceway for seg in segments],
+                             dtype=bool),
     )
 
 
@@ -274,6 +277,8 @@ def build_candidates(
     # Settings vary by segment, not by row: tabulate each distinct (settings, material,
     # terminal column) over all sizes once, then look rows up in the tables.
     together = _sets_together(profile, sa.installation)
+    if sa.one_raceway is not None:
+        together = together | sa.one_raceway
     row_grouping = np.where(in_route, np.minimum(route_top, _MANY).astype(np.int64),
                             grouped_conductors(sa.grouping[seg], sets, together[seg]))
     amp_set, thermal_set = _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size,
@@ -466,13 +471,19 @@ def build_rows(profile: RuleProfile, prices: PriceList, sa: SegmentArrays, seg: 
                                             + np.sqrt(egc_area[m]))
                 k = tray_width_index(rules.tray_widths_mm, sets[m] * d)
                 names = [f"{w:g}" for w in rules.tray_widths_mm]
-                per_run = 1
+                per_run: np.ndarray | int = 1
             else:
                 rtype = rules.types[kind]
+                # one raceway per set with its EGC, or (the scenario's choice) all sets in one
+                # raceway with one EGC (NEC 250.122(F): one EGC in a common raceway)
+                shared = (sa.one_raceway[seg[m]] if sa.one_raceway is not None
+                          else np.zeros(m.sum(), dtype=bool))
+                per_raceway = np.where(shared, sets[m], 1)
                 k = raceway_size_index(rtype.area_mm2, rules.fill,
-                                       conductors[m] * area[m] + egc_area[m], conductors[m] + 1)
+                                       per_raceway * conductors[m] * area[m] + egc_area[m],
+                                       per_raceway * conductors[m] + 1)
                 names = list(rtype.designators)
-                per_run = 0
+                per_run = np.where(shared, 1, 0)
             race_size[m] = k
             race_ok[m] = k >= 0
             if priced is not None:

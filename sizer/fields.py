@@ -242,6 +242,9 @@ FIELDS: tuple[Field, ...] = (
        "sets", r.auto(r.read_size), default_text="auto: the profile's (NEC 1/0 AWG; iec "
        "50 mm2, common practice)", bounds="a size of the profile; never below a code "
        "minimum", attr="min_parallel_size", also_defaults=True, example='"4/0 AWG"'),
+    _F("node", "sets_in_one_raceway", "run all parallel sets in one raceway (one EGC; "
+       "they derate together) instead of one raceway per set", r.read_bool, default=False,
+       attr="sets_in_one_raceway", also_defaults=True, example="true"),
     _F("node", "soil_resistivity", "soil thermal resistivity of a buried run", r.auto(
        r.read_soil_resistivity), unit="K*m/W", default_text="auto: the profile's reference "
        "(iec 2.5 K*m/W; nec and cec do not correct)", bounds="0.2 to 10 K*m/W, or \"auto\"",

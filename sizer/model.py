@@ -141,6 +141,7 @@ class CableSettings:
     min_parallel_size: str | None = None     # None: the profile's minimum for parallel sets
     soil_resistivity_k_m_per_w: float | None = None  # buried runs; None: the reference
     depth_m: float | None = None                     # buried runs; None: the reference
+    sets_in_one_raceway: bool = False  # all parallel sets in one raceway (they derate together)
 
     def __post_init__(self) -> None:
         _check(len(self.materials) > 0 and all(m in MATERIALS for m in self.materials),

@@ -233,7 +233,9 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
             voltage_v=seg.voltage_v, phases=seg.phases, pinned=seg.node.pin is not None,
             terminal_max=cat.sizes[top] if top >= 0 else "",
             termination="reducing splice" if ends > 0 else "direct",
-            raceway=(race.label(seg.node.cable.installation, int(t.sets[r]), race_k)
+            raceway=(race.label(seg.node.cable.installation,
+                                1 if seg.node.cable.sets_in_one_raceway else int(t.sets[r]),
+                                race_k)
                      if race is not None else ""),
             conductor_capex=float(t.capex[r]) - term_capex - race_capex,
             termination_capex=term_capex, raceway_capex=race_capex,

@@ -665,7 +665,8 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 oversize_termination=cable_kw["oversize_termination"],
                 min_parallel_size=cable_kw["min_parallel_size"],
                 soil_resistivity_k_m_per_w=cable_kw["soil_resistivity"],
-                depth_m=cable_kw["depth"])
+                depth_m=cable_kw["depth"],
+                sets_in_one_raceway=cable_kw["sets_in_one_raceway"])
             settings_cache[key] = cable
         if profile is not None:
             if "insulation" in v:
@@ -749,6 +750,7 @@ def _schedule_row(n: Node) -> dict[str, str]:
         "soil_resistivity": ("auto" if c.soil_resistivity_k_m_per_w is None
                              else f"{_num(c.soil_resistivity_k_m_per_w)} K*m/W"),
         "depth": "auto" if c.depth_m is None else f"{_num(c.depth_m)} m",
+        "sets_in_one_raceway": "true" if c.sets_in_one_raceway else "false",
     }
     if (t := n.transformer) is not None:
         row |= {"transformer.rating": f"{_num(t.rating_va)} VA",

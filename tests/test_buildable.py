@@ -598,3 +598,27 @@ installation = "direct_buried"
     assert far.raceway == "direct buried in trench"
     trench = reference.prices.raceways.trench_per_m * 200
     assert far.raceway_capex == pytest.approx(trench)
+
+
+def test_sets_in_one_raceway_share_it_and_derate_together(tmp_path: Path) -> None:
+    nodes = """
+[[node]]
+id = "FEED"
+parent = "SRC"
+length = "100 ft"
+ocpd = "400 A"
+sets_in_one_raceway = true
+"""
+    prep = prepare(load_scenario(write_scenario(tmp_path, nodes)))
+    t = prep.table
+    two = (t.sets == 2) & (t.size_index == NEC.size_index("250 kcmil"))
+    # 250 kcmil Cu: 290 A at 90 degC, 255 A at 75 degC (NEC Table 310.16). Two sets in one
+    # raceway are 6 current-carrying conductors: factor 0.80 -> 232 A per set, 464 A.
+    assert two.any() and float(t.ampacity_a[two][0]) == pytest.approx(2 * 0.8 * 290)
+    design = _solve(prep, Objective.CAPEX)
+    assert design.segments[0].raceway.startswith("1 x ")
+    # one raceway holds 2 x 3 phase conductors and one EGC (NEC 250.122(F) [M]) at 40 %
+    k = raceway_size_index(NEC.raceway.types["EMT"].area_mm2, NEC.raceway.fill,
+                           6 * NEC.raceway.conductor_area_mm2["Cu"][NEC.size_index("250 kcmil")]
+                           + NEC.raceway.conductor_area_mm2["Cu"][NEC.size_index("3 AWG")], 7)
+    assert k >= 0

@@ -57,10 +57,11 @@ class RacewayRules:
         """Overall diameter of one conductor or cable, from its area: d = √(4A/π)."""
         return np.sqrt(4.0 * self.conductor_area_mm2[material] / math.pi)
 
-    def label(self, installation: str, sets: int, k: int) -> str:
+    def label(self, installation: str, raceways: int, k: int) -> str:
         """The raceway of a run as the trade writes it: "2 x 53 mm (2 in) EMT".
 
-        One raceway per parallel set; a tray is one per run; buried ducts say "in trench".
+        ``raceways`` of size ``k`` (one per parallel set, or one for all); a tray is one
+        per run; buried ducts say "in trench".
         """
         kind = self.installation_type[installation]
         if kind == NONE:
@@ -72,7 +73,7 @@ class RacewayRules:
         if kind == TRAY:
             return self.tray_label(k)
         trench = " in trench" if installation in self.trench else ""
-        return f"{sets} x {self.types[kind].labels[k]}{trench}"
+        return f"{raceways} x {self.types[kind].labels[k]}{trench}"
 
     def tray_label(self, k: int) -> str:
         """A tray width as the trade writes it: "300 mm (12 in) tray"."""
