@@ -457,13 +457,15 @@ def build_rows(profile: RuleProfile, prices: PriceList, sa: SegmentArrays, seg: 
     rules = profile.raceway
     if rules is not None:
         priced = prices.raceways
-        kinds = np.array([rules.installation_type[inst] for inst in sa.installation])[seg]
+        kind_of_seg = [rules.installation_type[inst] for inst in sa.installation]
+        kind_names = sorted(set(kind_of_seg))
+        kind_code = np.array([kind_names.index(k) for k in kind_of_seg], dtype=np.int64)[seg]
         area = np.where(mat == 0, rules.conductor_area_mm2["Cu"][size],
                         rules.conductor_area_mm2["Al"][size])
         egc_area = np.where(mat == 0, rules.conductor_area_mm2["Cu"][egc],
                             rules.conductor_area_mm2["Al"][egc])
-        for kind in np.unique(kinds).tolist():
-            m = kinds == kind
+        for code, kind in enumerate(kind_names):
+            m = kind_code == code
             if kind in (NONE, DIRECT):
                 continue  # no raceway (a direct-buried run pays its trench below)
             if kind == TRAY:
