@@ -339,11 +339,14 @@ def build_candidates(
     build = build_rows(profile, prices, sa, seg, mat, size, sets, egc)
     diagnosis = replace(diagnosis, build_limits=_build_limits(
         n, seg, mat, size, sets, keep & egc_ok, build, profile, catalogue, sa))
-    keep &= build.ok
+    # A pinned conductor stays for ``sizer check`` even when it cannot be landed or drawn
+    # in: check reports it as a violation.
+    keep &= build.ok | (pinned & keep_pins)
 
     # --- money --------------------------------------------------------------------------
     capex = (installed_cost(prices, length, sa.conductors[seg], mat, size, sets, egc)
-             + build.termination_capex + build.raceway_capex)
+             + np.where(build.ok, build.termination_capex, 0.0)
+             + np.where(build.ok, build.raceway_capex, 0.0))
     keep &= np.isfinite(capex) & egc_ok
 
     r_ohm = r_m * length / sets
@@ -372,9 +375,10 @@ def build_candidates(
         egc_size_index=egc[idx],
         terminal_max=build.terminal_max[idx],
         splice_ends=build.splice_ends[idx],
-        termination_capex=build.termination_capex[idx],
+        termination_capex=np.where(build.ok, build.termination_capex, 0.0)[idx],
         raceway_size=build.raceway_size[idx],
-        raceway_capex=build.raceway_capex[idx],
+        raceway_capex=np.where(build.ok, build.raceway_capex, 0.0)[idx],
+        build_fail=np.where(build.terminal_ok, np.where(build.raceway_ok, 0, 2), 1)[idx],
         route_count=route_count[idx],
         route_top=route_top[idx],
     )

@@ -307,6 +307,7 @@ class CandidateTable:
     termination_capex: np.ndarray | None = None  # the splices, priced
     raceway_size: np.ndarray | None = None      # trade size or tray width index, -1 none
     raceway_capex: np.ndarray | None = None     # raceways (and trench), installed
+    build_fail: np.ndarray | None = None        # 0 buildable; 1 terminal, 2 raceway (pins only)
     route_count: np.ndarray | None = None       # conductors the row adds to its shared route
     route_top: np.ndarray | None = None         # most conductors its derating allows there
 

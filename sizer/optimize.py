@@ -467,6 +467,15 @@ def violations(prep: Prepared, choice: np.ndarray, design: Design) -> list[Viola
                                  float(prep.leaf_limit_pct[s]),
                                  f"drop from the source {res.path_vd_pct:.2f} % over "
                                  f"{prep.leaf_limit_pct[s]:g} %"))
+        fail = 0 if t.build_fail is None else int(t.build_fail[r])
+        if fail:
+            what = "termination" if fail == 1 else "raceway"
+            why = (f"the {seg.ocpd_a:g} A device's terminals do not take it (larger than "
+                   f"{res.terminal_max or 'its range'}, or more sets than it has room for) and "
+                   f"no reducing splice is allowed or priced" if fail == 1
+                   else "no listed raceway size holds it")
+            out.append(Violation(seg.id, what, float(res.sets), 0.0,
+                                 f"{conductor_label(res.sets, res.size, res.material)}: {why}"))
     return out
 
 

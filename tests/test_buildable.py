@@ -622,3 +622,14 @@ sets_in_one_raceway = true
                            6 * NEC.raceway.conductor_area_mm2["Cu"][NEC.size_index("250 kcmil")]
                            + NEC.raceway.conductor_area_mm2["Cu"][NEC.size_index("3 AWG")], 7)
     assert k >= 0
+
+
+def test_check_reports_a_pinned_conductor_that_cannot_land(tmp_path: Path) -> None:
+    from sizer.optimize import check
+    pinned = LONG_BRANCH.replace('ocpd = "20 A"\n', 'ocpd = "20 A"\noversize_termination = '
+                                 '"refuse"\nconductor = "4 AWG Cu"\n')
+    prep = prepare(load_scenario(write_scenario(tmp_path, pinned, voltage="208 V")),
+                   keep_pins=True)
+    design = check(prep)
+    assert design.status == "violations"
+    assert any(v.segment == "REC" and v.rule == "termination" for v in design.violations)
