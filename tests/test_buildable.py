@@ -298,6 +298,19 @@ def test_demo_optima_land_on_their_terminals(demo: str) -> None:
             assert s.raceway and s.raceway_capex > 0, s.id
             assert s.capex == pytest.approx(s.conductor_capex + s.termination_capex
                                             + s.raceway_capex)
+        # every shared route derates from what it holds: the band of its actual content
+        content: dict[str, int] = {}
+        for s in design.segments:
+            if s.route:
+                content[s.route] = content.get(s.route, 0) + s.sets * (2 if s.phases == 1
+                                                                      else 3)
+        assert content, demo
+        tops = np.asarray([b[0] * prep.profile.grouping_conductors_per_group
+                           for b in prep.profile.grouping_bands])
+        for s in design.segments:
+            if s.route:
+                band = tops[np.searchsorted(tops, content[s.route], side="left")]
+                assert s.route_conductors == min(band, 10**6), s.id
 
 
 # --- shared routes: derating from the route's own content --------------------------------
