@@ -503,7 +503,7 @@ class _Page:
             out.append("<p>The code-minimum or lifecycle option has no design; nothing to "
                        "compare.</p></section>")
             return "".join(out)
-        out.append(self._limits())
+        out.append(self._refused_upsizing())
         if not self.justify:
             out.append("<p>The lifecycle optimum buys no run larger than the code minimum.</p>"
                        "</section>")
@@ -540,7 +540,7 @@ class _Page:
         out.append("</section>")
         return "".join(out)
 
-    def _limits(self) -> str:
+    def _refused_upsizing(self) -> str:
         """The runs a terminal or raceway limit kept from a larger conductor, named."""
         limits = [(seg.id, text) for seg, text in zip(self.prep.segments,
                                                       self.prep.local.build_limits, strict=False)
