@@ -203,9 +203,14 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
                        objective: str,
                        solution: Solution | None = None,
                        diagnosis: tuple[str, ...] = ()) -> Design:
-    """Re-evaluate the chosen rows from the table and assemble the Design."""
+    """Re-evaluate the chosen rows from the table and assemble the Design.
+
+    Runs in shared routes are reported at the derating of their route's actual content
+    (``exact_route_rows``), whatever band the solver's rows assumed.
+    """
     t = prep.table
     cat = prep.catalogue
+    choice = exact_route_rows(prep, np.asarray(choice, dtype=np.int64))
     vd = t.vd_pct[choice]
     path = path_drops_pct(prep.parent, vd, prep.fixed_drop_pct)
     results = []
@@ -284,8 +289,8 @@ def design_from_solution(prep: Prepared, solution: Solution, objective: str, *,
         if status is None:
             status = (DesignStatus.OPTIMAL if solution.status is SolveStatus.OPTIMAL
                       else DesignStatus.TIME_LIMIT)
-        return design_from_choice(prep, exact_route_rows(prep, solution.choice),
-                                  status=status, objective=objective, solution=solution)
+        return design_from_choice(prep, solution.choice, status=status, objective=objective,
+                                  solution=solution)
     if solution.status is SolveStatus.INFEASIBLE:
         lines = diagnosis() if diagnosis is not None else [solution.message]
         return empty_design(prep, DesignStatus.INFEASIBLE, objective, tuple(lines))

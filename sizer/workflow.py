@@ -108,6 +108,7 @@ def frontier_designs(prep: Prepared, points: Sequence[FrontierPoint]) -> list[De
         d = design_from_choice(prep, choice, objective="frontier",
                                status=DesignStatus.OPTIMAL if p.proven_optimal
                                else DesignStatus.TIME_LIMIT)
+        choice = np.asarray(d.choice, dtype=np.int64)  # routes at their actual derating
         out.append(with_verification(prep, d, choice, verify_design(prep, choice)))
     return out
 
