@@ -498,10 +498,28 @@ def build_rows(profile: RuleProfile, prices: PriceList, sa: SegmentArrays, seg: 
                 count = np.where(per_run == 1, 1, sets[m])
                 race_capex[m] = length[m] * count * each
         if priced is not None:
-            trench = np.array([inst in rules.trench for inst in sa.installation])[seg]
-            race_capex = race_capex + np.where(trench, length * priced.trench_per_m, 0.0)
+            in_trench = np.array([inst in rules.trench for inst in sa.installation])
+            share = _trench_share(sa.route, in_trench)
+            race_capex = race_capex + np.where(in_trench[seg], length * priced.trench_per_m
+                                               * share[seg], 0.0)
     return BuildRows(term_ok & race_ok, term_ok, race_ok, term_max, ends, term_capex,
                      race_size, race_capex)
+
+
+def _trench_share(route: np.ndarray | None, in_trench: np.ndarray) -> np.ndarray:
+    """Share of its trench each segment pays: buried runs of one route share one trench.
+
+    Common practice for the price: the k buried runs of a route each pay 1/k of the
+    trench along their own length (exact when they run the same way).
+    """
+    share = np.ones(in_trench.shape[0])
+    if route is None:
+        return share
+    members = (route >= 0) & in_trench
+    if members.any():
+        counts = np.bincount(route[members])
+        share[members] = 1.0 / counts[route[members]]
+    return share
 
 
 def _build_limits(n, seg, mat, size, sets, compliant, build: BuildRows, profile: RuleProfile,

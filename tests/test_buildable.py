@@ -646,3 +646,23 @@ def test_check_reports_a_pinned_conductor_that_cannot_land(tmp_path: Path) -> No
     design = check(prep)
     assert design.status == "violations"
     assert any(v.segment == "REC" and v.rule == "termination" for v in design.violations)
+
+
+def test_buried_runs_of_one_route_share_their_trench(tmp_path: Path) -> None:
+    nodes = "".join(f"""
+[[node]]
+id = "F{k}"
+parent = "SRC"
+length = "100 ft"
+ocpd = "100 A"
+installation = "buried"
+{'route = "TRENCH-1"' if k < 3 else ''}
+""" for k in range(1, 4))
+    prep = prepare(load_scenario(write_scenario(tmp_path, nodes, max_sets=1)))
+    design = _solve(prep, Objective.CAPEX)
+    trench = prep.prices.raceways.trench_per_m * 100 * 0.3048
+    ducts = {s.id: s.raceway_capex for s in design.segments}
+    # F1 and F2 share one trench (half each); F3 pays its own
+    alone = ducts["F3"] - trench
+    assert ducts["F1"] - trench / 2 == pytest.approx(alone, rel=1e-9)
+    assert ducts["F2"] - trench / 2 == pytest.approx(alone, rel=1e-9)
