@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import csv
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, replace
 from functools import cache
 from pathlib import Path
@@ -25,12 +26,11 @@ from sizer.errors import ScenarioError
 from sizer.model import CandidateTable, Segment
 from sizer.rules.ampacity import (
     ambient_factor,
-    ampacity_a,
     carries_load,
     current_carrying_conductors,
     grouping_factor,
+    soil_factor,
     table_ampacity_a,
-    unadjusted_ampacity_a,
 )
 from sizer.rules.profile import RuleProfile
 from sizer.rules.protection import (
@@ -41,6 +41,23 @@ from sizer.rules.protection import (
     protects,
     small_conductor_ok,
     terminal_temperature_c,
+)
+from sizer.rules.raceway import (
+    DIRECT,
+    NO_RACEWAY,
+    NONE,
+    TRAY,
+    band_tops_conductors,
+    grouped_conductors,
+    raceway_size_index,
+    tray_width_index,
+)
+from sizer.rules.terminations import (
+    NO_TERMINAL,
+    lands,
+    most_per_terminal,
+    splice_ends,
+    terminal_range,
 )
 from sizer.units import MATERIALS
 
@@ -75,6 +92,13 @@ class SegmentArrays:
     own_neutral: np.ndarray     # bool: a three-phase run with a neutral (sized on its own)
     neutral_size: np.ndarray    # area over the phase's (1.0 full, 2.0 double); 0: reduced
     triplen: np.ndarray         # declared third-harmonic share below the run
+    route: np.ndarray | None = None        # shared route index per segment, -1 none
+    per_set_ccc: np.ndarray | None = None  # current-carrying conductors of one set
+    refuse_oversize: np.ndarray | None = None  # bool: no reducing splice allowed
+    load_terminal_max: np.ndarray | None = None  # size index the load end takes, -1: as device
+    min_parallel: np.ndarray | None = None   # smallest size index for parallel sets, -1 none
+    soil_factor: np.ndarray | None = None    # soil resistivity and depth correction, buried
+    one_raceway: np.ndarray | None = None    # bool: all parallel sets in one raceway
 
 
 def conductors_per_set(phases: np.ndarray, neutral: np.ndarray) -> np.ndarray:
@@ -168,6 +192,20 @@ def segment_arrays(
         own_neutral=(phases == 3) & neutral,
         neutral_size=np.array([seg.node.neutral_size for seg in segments], dtype=float),
         triplen=_triplen_below(segments),
+        route=route_indices(segments),
+        per_set_ccc=default_grouping,
+        refuse_oversize=np.array([
+            (seg.node.cable.oversize_termination
+             or (profile.terminals.oversize if profile.terminals is not None else "splice"))
+            == "refuse" for seg in segments], dtype=bool),
+        load_terminal_max=np.array([
+            profile.size_index(seg.node.load_terminal_max) if seg.node.load_terminal_max
+            else -1 for seg in segments], dtype=np.int64),
+        min_parallel=np.array([_min_parallel(profile, seg.node.cable.min_parallel_size)
+                               for seg in segments], dtype=np.int64),
+        soil_factor=np.array([_soil(profile, seg) for seg in segments], dtype=float),
+        one_raceway=np.array([seg.node.cable.sets_in_one_raceway for seg in segments],
+                             dtype=bool),
     )
 
 
@@ -192,8 +230,8 @@ def neutral_rules() -> dict[str, dict[str, str]]:
 
 def neutral_size_index(profile_name: str, catalogue: Catalogue, sa: SegmentArrays,
                        seg: np.ndarray, mat: np.ndarray, size: np.ndarray, sets: np.ndarray,
-                       egc: np.ndarray, neutral_a: np.ndarray, amp_group: np.ndarray,
-                       amp_tab: np.ndarray) -> np.ndarray:
+                       egc: np.ndarray, neutral_a: np.ndarray,
+                       code_by_size: Callable[[np.ndarray], np.ndarray]) -> np.ndarray:
     """Size index of each row's neutral (−1: no catalogue size will do).
 
     Full size by default; ``neutral_size`` above 1 asks for at least that multiple of
@@ -227,15 +265,41 @@ def neutral_size_index(profile_name: str, catalogue: Catalogue, sa: SegmentArray
         return out
     floor_area = np.searchsorted(area, min_neutral[rows] * (1 - 1e-9), side="left")
     per_set = neutral_a[seg[rows]] / sets[rows]
-    k = np.zeros(rows.size, dtype=np.int64)
-    groups = amp_group[rows]
-    for g in np.unique(groups).tolist():
-        mask = groups == g
-        # Ampacity rises with size; sizes not made read 0 so they are never picked alone.
-        climb = np.maximum.accumulate(np.nan_to_num(amp_tab[g], nan=0.0))
-        k[mask] = np.searchsorted(climb, per_set[mask] * (1 - 1e-12), side="left")
+    # Ampacity rises with size; sizes not made read 0 so they are never picked alone.
+    climb = np.maximum.accumulate(np.nan_to_num(code_by_size(rows), nan=0.0), axis=1)
+    k = (climb < (per_set * (1 - 1e-12))[:, None]).sum(axis=1).astype(np.int64)
     k = np.maximum.reduce([k, egc[rows], floor_area])
     out[rows] = np.minimum(k, size[rows])
+    return out
+
+
+def _soil(profile: RuleProfile, seg: Segment) -> float:
+    """The soil correction of one segment, its node named in any error."""
+    c = seg.node.cable
+    try:
+        return soil_factor(profile, c.installation, c.soil_resistivity_k_m_per_w, c.depth_m)
+    except ScenarioError as exc:
+        raise exc.located(node=seg.id) from None
+
+
+def _min_parallel(profile: RuleProfile, given: str | None) -> int:
+    """Smallest size index for parallel sets: the scenario's, never below a code minimum."""
+    own = -1 if profile.min_parallel_size is None else profile.size_index(
+        profile.min_parallel_size)
+    if given is None:
+        return own
+    wanted = profile.size_index(given)
+    # A practice minimum (iec) may be lowered; a code minimum (NEC 310.10(G)) may not.
+    return wanted if profile.min_parallel_overridable else max(wanted, own)
+
+
+def route_indices(segments: tuple[Segment, ...]) -> np.ndarray:
+    """Index of each segment's shared route (routes numbered by first appearance), -1 none."""
+    names: dict[str, int] = {}
+    out = np.full(len(segments), -1, dtype=np.int64)
+    for s, seg in enumerate(segments):
+        if seg.node.route:
+            out[s] = names.setdefault(seg.node.route, len(names))
     return out
 
 
@@ -247,6 +311,8 @@ class LocalDiagnosis:
     best_drop_pct: np.ndarray        # lowest own drop among rows that carry the current
     best_label: tuple[str, ...]      # the row that gives best_drop_pct, as the trade writes it
     pinned_fails: tuple[str, ...]    # per segment: the rules a pinned conductor breaks ("" none)
+    # per segment: the terminal or raceway limit that refused otherwise compliant rows ("" none)
+    build_limits: tuple[str, ...] = ()
 
 
 def _grid(sa: SegmentArrays, n_sizes: int) -> tuple[np.ndarray, ...]:
@@ -314,14 +380,27 @@ def build_candidates(
     sa = segment_arrays(segments, profile, catalogue)
     n = len(segments)
     seg, mat, size, sets, own = _grid(sa, len(catalogue.sizes))
+    # Shared routes: one copy of each row per grouping band, its derating at that band.
+    tops = band_tops_conductors(profile.grouping_bands, profile.grouping_conductors_per_group)
+    seg, mat, size, sets, own, band = _route_bands(sa, (seg, mat, size, sets, own), len(tops))
+    route = sa.route[seg] if sa.route is not None else np.full(seg.shape, -1)
+    ccc = sa.per_set_ccc if sa.per_set_ccc is not None else np.where(sa.phases == 1, 2, 3)
+    in_route = route >= 0
+    route_count = np.where(in_route, sets * ccc[seg], 0)
+    route_top = np.where(in_route, tops[np.maximum(band, 0)], np.inf)
     inst_names = sorted(set(sa.installation))
     inst_code = np.array([inst_names.index(name) for name in sa.installation], dtype=np.int64)
 
     # --- ampacity per set (code) and the thermal rating behind the temperature ----------
     # Settings vary by segment, not by row: tabulate each distinct (settings, material,
     # terminal column) over all sizes once, then look rows up in the tables.
-    amp_set, before_set, thermal_set, amp_group, amp_tab = _ampacity_lookup(
-        profile, sa, inst_names, inst_code, seg, mat, size, len(catalogue.sizes))
+    together = _sets_together(profile, sa.installation)
+    if sa.one_raceway is not None:
+        together = together | sa.one_raceway
+    row_grouping = np.where(in_route, np.minimum(route_top, _MANY).astype(np.int64),
+                            grouped_conductors(sa.grouping[seg], sets, together[seg]))
+    amp_set, before_set, thermal_set, amp_rows = _ampacity_lookup(
+        profile, sa, inst_names, inst_code, seg, mat, size, len(catalogue.sizes), row_grouping)
     ampacity = amp_set * sets
     ocpd = sa.ocpd_a[seg]
 
@@ -336,7 +415,8 @@ def build_candidates(
                                  next_size_up_allowed(profile, sa.secondary[seg]))
     small_ok = motor | _by_material(mat, lambda m, mask: small_conductor_ok(
         profile, MATERIALS[m], size[mask], ocpd[mask]), dtype=bool)
-    parallel_ok = min_parallel_ok(profile, size, sets)
+    parallel_ok = (min_parallel_ok(profile, size, sets) if sa.min_parallel is None
+                   else (sets == 1) | (size >= sa.min_parallel[seg]))
     code_ok = carries & protected & small_ok & parallel_ok
 
     # --- temperature, impedance, drop ---------------------------------------------------
@@ -360,7 +440,7 @@ def build_candidates(
     drop_ok = vd <= sa.own_limit_pct[seg] + 1e-12
 
     pinned = (sa.pin_material[seg] >= 0) & own
-    keep = code_ok & drop_ok & own
+    keep = code_ok & drop_ok & own & (route_count <= route_top)
     if keep_pins:
         keep |= pinned & valid
 
@@ -394,15 +474,24 @@ def build_candidates(
     # --- the neutral of a three-phase four-wire run: its own size -------------------------
     neutral_size = neutral_size_index(
         profile.name, catalogue, sa, seg, mat, size, sets, egc,
-        np.zeros(n) if neutral_a is None else np.asarray(neutral_a, dtype=float),
-        amp_group, amp_tab)
+        np.zeros(n) if neutral_a is None else np.asarray(neutral_a, dtype=float), amp_rows)
     own_neutral = sa.own_neutral[seg]
     keep &= ~own_neutral | (neutral_size >= 0)
     neutral_size = np.where(own_neutral & (neutral_size >= 0), neutral_size, size)
 
+    # --- what it takes to build: terminations and raceways ------------------------------
+    build = build_rows(profile, prices, sa, seg, mat, size, sets, egc)
+    diagnosis = replace(diagnosis, build_limits=_build_limits(
+        n, seg, mat, size, sets, keep & egc_ok, build, profile, catalogue, sa))
+    # A pinned conductor stays for ``sizer check`` even when it cannot be landed or drawn
+    # in: check reports it as a violation.
+    keep &= build.ok | (pinned & keep_pins)
+
     # --- money --------------------------------------------------------------------------
-    capex = installed_cost(prices, length, sa.conductors[seg], mat, size, sets, egc,
-                           neutral_size=np.where(own_neutral, neutral_size, -1))
+    capex = (installed_cost(prices, length, sa.conductors[seg], mat, size, sets, egc,
+                            neutral_size=np.where(own_neutral, neutral_size, -1))
+             + np.where(build.ok, build.termination_capex, 0.0)
+             + np.where(build.ok, build.raceway_capex, 0.0))
     keep &= np.isfinite(capex) & egc_ok
 
     r_ohm = r_m * length / sets
@@ -443,6 +532,14 @@ def build_candidates(
         loss_pv=loss_pv[idx],
         egc_size_index=egc[idx],
         neutral_size_index=neutral_size[idx],
+        terminal_max=build.terminal_max[idx],
+        splice_ends=build.splice_ends[idx],
+        termination_capex=np.where(build.ok, build.termination_capex, 0.0)[idx],
+        raceway_size=build.raceway_size[idx],
+        raceway_capex=np.where(build.ok, build.raceway_capex, 0.0)[idx],
+        build_fail=np.where(build.terminal_ok, np.where(build.raceway_ok, 0, 2), 1)[idx],
+        route_count=route_count[idx],
+        route_top=route_top[idx],
     )
     return table, diagnosis
 
@@ -461,8 +558,190 @@ def _per_row(per_segment: float | np.ndarray, seg: np.ndarray) -> np.ndarray | f
     return float(arr) if arr.ndim == 0 else arr[seg]
 
 
-def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes):
-    """Per-set code ampacity and thermal ampacity of every row, from per-group tables."""
+_MANY = 10**6  # a conductor count in the last grouping band (its top is inf)
+
+
+def _route_bands(sa: SegmentArrays, rows: tuple[np.ndarray, ...], n_bands: int):
+    """Row arrays (segment first), route rows repeated once per grouping band.
+
+    The band array comes last (-1 for rows outside routes).
+    """
+    seg = rows[0]
+    if sa.route is None or not np.any(sa.route >= 0):
+        return (*rows, np.full(seg.shape, -1, dtype=np.int64))
+    inside = sa.route[seg] >= 0
+    rep = np.where(inside, n_bands, 1)
+    band = np.concatenate([np.arange(k) if k > 1 else np.array([-1]) for k in rep.tolist()])
+    out = [np.repeat(a, rep) for a in rows]
+    band = np.where(np.repeat(inside, rep), band, -1).astype(np.int64)
+    return (*out, band)
+
+
+@dataclass(frozen=True)
+class BuildRows:
+    """Per candidate row: how its conductors land and what raceway carries them."""
+
+    ok: np.ndarray                 # it can be built (terminals and raceway)
+    terminal_ok: np.ndarray        # its conductors land, directly or by splice
+    raceway_ok: np.ndarray         # a listed raceway size holds it
+    terminal_max: np.ndarray       # largest size the device terminal takes (-1: any)
+    splice_ends: np.ndarray        # 0, 1 or 2 ends landed by a reducing splice
+    termination_capex: np.ndarray  # splices: ends × conductors × sets × price of one
+    raceway_size: np.ndarray       # trade size or tray width index (-1: none)
+    raceway_capex: np.ndarray      # raceways per set (tray per run) and trench, installed
+
+
+def build_rows(profile: RuleProfile, prices: PriceList, sa: SegmentArrays, seg: np.ndarray,
+               mat: np.ndarray, size: np.ndarray, sets: np.ndarray,
+               egc: np.ndarray) -> BuildRows:
+    """Terminations and raceways of every row, with their installed cost.
+
+    Terminations: the device's terminal range (``sizer.rules.terminations``) at the
+    supply end and, as common practice, the same range at the load end; a conductor above
+    it lands by a reducing splice priced per conductor, or is refused (profile choice).
+    Raceways: one per parallel set holding the set's phase and neutral conductors and its
+    EGC, trade size by the fill rule; a tray (one per run) by summed diameters; a trench
+    per metre of route for the profile's trench installations.
+    """
+    rows = seg.shape[0]
+    conductors = sa.conductors[seg]
+    length = sa.length_m[seg]
+    sold_splice = np.where(mat == 0, prices.splice("Cu")[size], prices.splice("Al")[size])
+    if profile.terminals is None:
+        term_max = np.full(rows, NO_TERMINAL, dtype=np.int64)
+        ends = np.zeros(rows, dtype=np.int64)
+        term_ok = np.ones(rows, dtype=bool)
+    else:
+        # More sets than the terminal takes land through a splice box: each conductor is
+        # spliced to the terminal's own number of sets (common practice on long runs
+        # upsized for voltage drop), priced like a reducing splice.
+        most = most_per_terminal(profile.terminals, sa.ocpd_a[seg])
+        crowded = sets > most
+        # (above the table ``most`` is 0 and terminal_range gives NO_TERMINAL: refused)
+        low, term_max = terminal_range(profile.terminals, sa.ocpd_a[seg],
+                                       np.where(crowded, np.maximum(most, 1), sets))
+        load_max = term_max
+        if sa.load_terminal_max is not None:
+            own = sa.load_terminal_max[seg]
+            load_max = np.where((own >= 0) & (term_max >= 0), own, term_max)
+        term_ok = lands(size, low, term_max, "splice")
+        ends = np.where(term_ok, np.where(crowded, 2, splice_ends(size, term_max, load_max)),
+                        0)
+        if sa.refuse_oversize is not None:
+            term_ok &= ~sa.refuse_oversize[seg] | (ends == 0)
+        term_ok &= (ends == 0) | np.isfinite(sold_splice)
+    term_capex = np.where(ends > 0, ends * conductors * sets * sold_splice, 0.0)
+
+    race_size = np.full(rows, NO_RACEWAY, dtype=np.int64)
+    race_capex = np.zeros(rows)
+    race_ok = np.ones(rows, dtype=bool)
+    rules = profile.raceway
+    if rules is not None:
+        priced = prices.raceways
+        kind_of_seg = [rules.installation_type[inst] for inst in sa.installation]
+        kind_names = sorted(set(kind_of_seg))
+        kind_code = np.array([kind_names.index(k) for k in kind_of_seg], dtype=np.int64)[seg]
+        area = np.where(mat == 0, rules.conductor_area_mm2["Cu"][size],
+                        rules.conductor_area_mm2["Al"][size])
+        egc_area = np.where(mat == 0, rules.conductor_area_mm2["Cu"][egc],
+                            rules.conductor_area_mm2["Al"][egc])
+        for code, kind in enumerate(kind_names):
+            m = kind_code == code
+            if kind in (NONE, DIRECT):
+                continue  # no raceway (a direct-buried run pays its trench below)
+            if kind == TRAY:
+                d = np.sqrt(4.0 / np.pi) * (conductors[m] * np.sqrt(area[m])
+                                            + np.sqrt(egc_area[m]))
+                k = tray_width_index(rules.tray_widths_mm, sets[m] * d)
+                names = [f"{w:g}" for w in rules.tray_widths_mm]
+                per_run: np.ndarray | int = 1
+            else:
+                rtype = rules.types[kind]
+                # one raceway per set with its EGC, or (the scenario's choice) all sets in one
+                # raceway with one EGC (NEC 250.122(F): one EGC in a common raceway)
+                shared = (sa.one_raceway[seg[m]] if sa.one_raceway is not None
+                          else np.zeros(m.sum(), dtype=bool))
+                per_raceway = np.where(shared, sets[m], 1)
+                k = raceway_size_index(rtype.area_mm2, rules.fill,
+                                       per_raceway * conductors[m] * area[m] + egc_area[m],
+                                       per_raceway * conductors[m] + 1)
+                names = list(rtype.designators)
+                per_run = np.where(shared, 1, 0)
+            race_size[m] = k
+            race_ok[m] = k >= 0
+            if priced is not None:
+                price = np.array([priced.price_per_m(kind, name) for name in names])
+                each = np.where(k >= 0, price[np.maximum(k, 0)], np.nan)
+                count = np.where(per_run == 1, 1, sets[m])
+                race_capex[m] = length[m] * count * each
+        if priced is not None:
+            in_trench = np.array([inst in rules.trench for inst in sa.installation])
+            share = _trench_share(sa.route, in_trench)
+            race_capex = race_capex + np.where(in_trench[seg], length * priced.trench_per_m
+                                               * share[seg], 0.0)
+    return BuildRows(term_ok & race_ok, term_ok, race_ok, term_max, ends, term_capex,
+                     race_size, race_capex)
+
+
+def _trench_share(route: np.ndarray | None, in_trench: np.ndarray) -> np.ndarray:
+    """Share of its trench each segment pays: buried runs of one route share one trench.
+
+    Common practice for the price: the k buried runs of a route each pay 1/k of the
+    trench along their own length (exact when they run the same way).
+    """
+    share = np.ones(in_trench.shape[0])
+    if route is None:
+        return share
+    members = (route >= 0) & in_trench
+    if members.any():
+        counts = np.bincount(route[members])
+        share[members] = 1.0 / counts[route[members]]
+    return share
+
+
+def _build_limits(n, seg, mat, size, sets, compliant, build: BuildRows, profile: RuleProfile,
+                  catalogue: Catalogue, sa: SegmentArrays) -> tuple[str, ...]:
+    """Per segment, the terminal or raceway limit that refused compliant rows ("" none)."""
+    out = [""] * n
+    refused = compliant & ~build.ok
+    for s in np.unique(seg[refused]).tolist():
+        rows = np.flatnonzero(refused & (seg == s))
+        r = int(rows[np.argmin(size[rows] * 100 + sets[rows])])
+        label = conductor_label(catalogue, int(mat[r]), int(size[r]), int(sets[r]))
+        if not build.terminal_ok[r]:
+            top = int(build.terminal_max[r])
+            takes = (f"takes at most {catalogue.sizes[top]} per terminal" if top >= 0
+                     else f"takes no {int(sets[r])} conductors per terminal")
+            out[s] = f"terminal limit: the {sa.ocpd_a[s]:g} A device {takes} ({label} refused)"
+        else:
+            kind = (profile.raceway.installation_type[sa.installation[s]]
+                    if profile.raceway is not None else "")
+            out[s] = f"raceway limit: {label} fits no listed {kind} size (refused)"
+    return tuple(out)
+
+
+def _sets_together(profile: RuleProfile, installation: tuple[str, ...]) -> np.ndarray:
+    """Per segment: whether its parallel sets lie together and derate as one group.
+
+    Sets laid in one trench (the profile's trench installations, e.g. "buried") heat one
+    another, so all their conductors count as one group (NEC 310.15(C)(1) counts every
+    conductor of a parallel set; IEC 60364-5-52 Table B.52.17 counts circuits). Sets in
+    their own raceways in air do not.
+    """
+    trench = profile.raceway.trench if profile.raceway is not None else ("buried",)
+    return np.array([inst in trench for inst in installation], dtype=bool)
+
+
+def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes, row_grouping):
+    """Per-set ampacities of every row, from per-group tables.
+
+    Returned: the code ampacity, the value before adjustment, the thermal rating, and a
+    lookup of the code ampacity of every size for given rows (to size a neutral).
+
+    The tables hold the insulation column corrected for ambient, and the terminal limit;
+    the grouping factor of each row (it depends on the row's sets) is applied after, in
+    the order of ``sizer.rules.ampacity.ampacity_a``: min(table × ambient × group, limit).
+    """
     # Terminal column: given per segment, or the profile's rule (device rating and size).
     terminal_c = sa.terminal_c[seg]
     auto = np.isnan(terminal_c)
@@ -470,31 +749,43 @@ def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes
         terminal_c = terminal_c.copy()
         terminal_c[auto] = terminal_temperature_c(profile, sa.ocpd_a[seg[auto]], size[auto])
     terminal_c = np.where(np.isnan(terminal_c), -1.0, terminal_c)  # -1: no terminal limit
-    settings = np.column_stack([sa.insulation_c, sa.ambient_c, sa.grouping, inst_code])
+    soil = sa.soil_factor if sa.soil_factor is not None else np.ones(len(inst_code))
+    settings = np.column_stack([sa.insulation_c, sa.ambient_c, inst_code, soil])
     uniq_settings, seg_group = np.unique(settings, axis=0, return_inverse=True)
     terms, term_code = np.unique(terminal_c, return_inverse=True)
     group = (seg_group.ravel()[seg] * 2 + mat) * len(terms) + term_code.ravel()
     all_sizes = np.arange(n_sizes)
-    code_tab = np.full((uniq_settings.shape[0] * 2 * len(terms), n_sizes), np.nan)
-    thermal_tab = np.full_like(code_tab, np.nan)
-    before_tab = np.full_like(code_tab, np.nan)
+    limit_tab = np.full((uniq_settings.shape[0] * 2 * len(terms), n_sizes), np.inf)
+    corrected_tab = np.full_like(limit_tab, np.nan)
+    before_tab = np.full_like(limit_tab, np.nan)
     for g in np.unique(group).tolist():
         t = g % len(terms)
         m = (g // len(terms)) % 2
-        ins, amb, grp, inst = uniq_settings[g // len(terms) // 2]
+        ins, amb, inst, ground = uniq_settings[g // len(terms) // 2]
         inst_name = inst_names[int(inst)]
-        term = None if terms[t] < 0 else float(terms[t])
-        code_tab[g] = ampacity_a(profile, MATERIALS[m], all_sizes, float(ins), term, float(amb),
-                                 int(grp), inst_name)
-        before_tab[g] = unadjusted_ampacity_a(profile, MATERIALS[m], all_sizes, float(ins),
-                                              term, inst_name)
-        # The insulation column corrected for ambient and grouping: the current at which
-        # the conductor reaches its rated temperature (terminals do not heat it).
-        thermal_tab[g] = (table_ampacity_a(profile, MATERIALS[m], all_sizes, float(ins), inst_name)
-                          * ambient_factor(profile, float(ins), float(amb), inst_name)
-                          * grouping_factor(profile, int(grp)))
-    return (code_tab[group, size], before_tab[group, size], thermal_tab[group, size], group,
-            code_tab)
+        plain = table_ampacity_a(profile, MATERIALS[m], all_sizes, float(ins), inst_name)
+        # The insulation column corrected for ambient (and soil): with the grouping factor,
+        # the current at which the conductor reaches its rated temperature (terminals do
+        # not heat it).
+        corrected_tab[g] = (plain * ambient_factor(profile, float(ins), float(amb), inst_name)
+                            * float(ground))
+        if terms[t] >= 0:
+            limit_tab[g] = table_ampacity_a(profile, MATERIALS[m], all_sizes, float(terms[t]),
+                                            inst_name)
+        # Before any adjustment or correction, at the lower of the two columns: the value
+        # the first test of NEC 210.19(A)(1)/215.2(A)(1) compares with 125 % of the load.
+        before_tab[g] = np.minimum(plain, limit_tab[g])
+    factor = np.broadcast_to(np.asarray(grouping_factor(profile, row_grouping), dtype=float),
+                             seg.shape)
+    thermal = corrected_tab[group, size] * factor
+
+    def code_by_size(rows: np.ndarray) -> np.ndarray:
+        """Code ampacity per set of every catalogue size, for the given rows' settings."""
+        return np.minimum(corrected_tab[group[rows]] * factor[rows, None],
+                          limit_tab[group[rows]])
+
+    return (np.minimum(thermal, limit_tab[group, size]), before_tab[group, size], thermal,
+            code_by_size)
 
 
 def _smallest_compliant(seg, mat, size, sets, ok, area_mm2, n):
@@ -581,5 +872,9 @@ def reprice(
     capex = installed_cost(prices, length, conductors[seg], table.material, table.size_index,
                            table.sets, table.egc_size_index,
                            neutral_size=_own_neutral(segments, table))
+    # Splices and raceways are not metal-indexed: they stay as built.
+    for extra in (table.termination_capex, table.raceway_capex):
+        if extra is not None:
+            capex = capex + extra
     loss_pv = table.loss_w * _per_row(loss_pv_per_w, seg)
     return replace(table, capex=capex, loss_pv=loss_pv)

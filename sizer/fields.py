@@ -287,6 +287,33 @@ FIELDS: tuple[Field, ...] = (
        "allows (sizer/rules/neutral.csv)", r.read_neutral_size, unit="%", default=1.0,
        default_text="100 % (full size)", bounds="\"reduced\" or 100 % to 200 %",
        attr="neutral_size", also_defaults=True, example='"200 %"'),
+    _F("node", "route", "a shared route (tray, duct bank, trench) by name: every run with "
+       "the same route derates from the conductors the route actually holds",
+       r.read_text, default_text="none: the run's own raceway", attr="route",
+       example='"TRAY-NORTH"'),
+    _F("node", "load_terminal_max", "largest conductor the load-end equipment's terminals "
+       "take (motor starter, receptacle, panel main lugs)", r.read_size,
+       default_text="as the device at the supply end (the profile's terminal table)",
+       bounds="a size of the profile", attr="load_terminal_max", example='"250 kcmil"'),
+    _F("node", "oversize_termination", "a conductor larger than its terminal takes: land it "
+       "with a priced reducing splice, or refuse it", r.auto(r.read_oversize),
+       default_text="auto: the profile's (splice)", bounds="splice | refuse | \"auto\"",
+       attr="oversize_termination", also_defaults=True, example='"refuse"'),
+    _F("node", "min_parallel_size", "smallest conductor the optimiser may run in parallel "
+       "sets", r.auto(r.read_size), default_text="auto: the profile's (NEC 1/0 AWG; iec "
+       "50 mm2, common practice)", bounds="a size of the profile; never below a code "
+       "minimum", attr="min_parallel_size", also_defaults=True, example='"4/0 AWG"'),
+    _F("node", "sets_in_one_raceway", "run all parallel sets in one raceway (one EGC; "
+       "they derate together) instead of one raceway per set", r.read_bool, default=False,
+       attr="sets_in_one_raceway", also_defaults=True, example="true"),
+    _F("node", "soil_resistivity", "soil thermal resistivity of a buried run", r.auto(
+       r.read_soil_resistivity), unit="K*m/W", default_text="auto: the profile's reference "
+       "(iec 2.5 K*m/W; nec and cec do not correct)", bounds="0.2 to 10 K*m/W, or \"auto\"",
+       attr="soil_resistivity_k_m_per_w", also_defaults=True, example='"1.5 K*m/W"'),
+    _F("node", "depth", "laying depth of a buried run", r.auto(r.read_depth), unit="m",
+       default_text="auto: the profile's reference (iec 0.7 m; nec and cec do not correct)",
+       bounds="0.2 to 5 m, or \"auto\"", attr="depth_m", also_defaults=True,
+       example='"0.9 m"'),
     _F("node", "transformer", "the node is a transformer: a table of the keys below",
        attr="transformer", subtable=True, example='{ rating = "75 kVA", ... }'),
     _F("node", "motor", "the node's load is a motor: a table of the keys below",

@@ -141,6 +141,11 @@ class CableSettings:
     installation: str = "conduit"
     grouping: int | None = None        # current-carrying conductors in the raceway
     max_sets: int = 4
+    oversize_termination: str | None = None  # "splice" | "refuse"; None: the profile's
+    min_parallel_size: str | None = None     # None: the profile's minimum for parallel sets
+    soil_resistivity_k_m_per_w: float | None = None  # buried runs; None: the reference
+    depth_m: float | None = None                     # buried runs; None: the reference
+    sets_in_one_raceway: bool = False  # all parallel sets in one raceway (they derate together)
 
     def __post_init__(self) -> None:
         _check(len(self.materials) > 0 and all(m in MATERIALS for m in self.materials),
@@ -243,6 +248,8 @@ class Node:
     nonlinear: float = 0.0        # share of the node's own load that is non-linear (0-1)
     voltage_assumed: bool = False  # 1-phase with no voltage given: line to line was taken
     device_100_percent: bool = False  # device listed for 100 % continuous operation
+    route: str = ""               # a shared route: runs in it derate from its whole content
+    load_terminal_max: str = ""   # largest conductor the load end takes ("": as the device)
     description: str = ""         # free text from the scenario, shown in reports
     operating: Operating = field(default_factory=Operating)  # how the load runs (losses)
     phase: str | None = None      # "A" | "B" | "C" | "AB" | "BC" | "CA"; None: assigned
@@ -373,6 +380,15 @@ class CandidateTable:
     # first ampacity test (NEC 210.19(A)(1)(a)); empty when not built
     ampacity_before_a: np.ndarray = field(default_factory=lambda: np.zeros(0))
     neutral_size_index: np.ndarray | None = None   # the neutral's own size (3-phase runs)
+    # What it takes to build each row (zeros/-1 when the profile has no such rules):
+    terminal_max: np.ndarray | None = None      # largest size the device terminal takes, -1 any
+    splice_ends: np.ndarray | None = None       # ends (0-2) landed by a reducing splice
+    termination_capex: np.ndarray | None = None  # the splices, priced
+    raceway_size: np.ndarray | None = None      # trade size or tray width index, -1 none
+    raceway_capex: np.ndarray | None = None     # raceways (and trench), installed
+    build_fail: np.ndarray | None = None        # 0 buildable; 1 terminal, 2 raceway (pins only)
+    route_count: np.ndarray | None = None       # conductors the row adds to its shared route
+    route_top: np.ndarray | None = None         # most conductors its derating allows there
 
     def __len__(self) -> int:
         return int(self.segment.shape[0])
@@ -414,6 +430,14 @@ class SegmentResult:
     neutral_size: str | None = None   # three-phase runs with a neutral: its own size
     loss_kwh_per_year: float = 0.0    # first year, from the run's own loss-load factor
     loss_cost_per_year: float = 0.0   # first year: energy + demand charge at the building peak
+    terminal_max: str = ""        # largest conductor the device terminal takes, per set
+    termination: str = ""         # "direct" | "reducing splice"
+    raceway: str = ""             # e.g. "2 x 53 mm (2 in) EMT", or the tray width
+    conductor_capex: float = 0.0  # conductors, EGC and pulling them
+    termination_capex: float = 0.0
+    raceway_capex: float = 0.0
+    route: str = ""               # the shared route, if any
+    route_conductors: int = 0     # current-carrying conductors its derating counts
 
 
 @dataclass(frozen=True)

@@ -20,6 +20,7 @@ from sizer.candidates import (
     MATERIALS,
     LocalDiagnosis,
     build_candidates,
+    route_indices,
     transformer_drops_pct,
 )
 from sizer.catalogue import Catalogue, load_catalogue
@@ -48,7 +49,7 @@ from sizer.phases import (
 )
 from sizer.rules import REL_TOL, load_profile
 from sizer.rules.motors import branch_device_a
-from sizer.rules.profile import RuleProfile
+from sizer.rules.profile import RuleProfile, with_terminal_table
 from sizer.spare import with_spare_capacity
 from sizer.topology import Topology
 from sizer.units import conductor_label
@@ -126,6 +127,9 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
     catalogue = load_catalogue(profile.catalogue)
     segments = design_segments(scenario, profile)
     price_list = prices if prices is not None else price_list_for(scenario, catalogue)
+    if price_list.terminals_path is not None:
+        # The price list's own terminal ranges (its supplier's devices) replace the profile's.
+        profile = with_terminal_table(profile, price_list.terminals_path)
     econ = economic_params(scenario)
     runs = run_profiles(scenario, segments, econ)
     phase_state = assign_phases(scenario, segments, runs)
@@ -167,8 +171,48 @@ def build_problem(prep: Prepared, objective: Objective, *, loss_weight: float | 
         limit_pct=prep.leaf_limit_pct if limit_pct is None else limit_pct,
         capex=t.capex,
         loss_pv=t.loss_pv,
+        **_route_terms(prep),  # type: ignore[arg-type]
         **side,  # type: ignore[arg-type]
     )
+
+
+def _route_terms(prep: Prepared) -> dict[str, np.ndarray]:
+    """The shared-route arrays of the problem, when some runs share a route."""
+    t = prep.table
+    if t.route_count is None or t.route_top is None or not np.any(t.route_count > 0):
+        return {}
+    return {"route_of": route_indices(prep.segments), "route_count": t.route_count,
+            "route_top": t.route_top}
+
+
+def exact_route_rows(prep: Prepared, choice: np.ndarray) -> np.ndarray:
+    """The same conductors, each route's rows derated for the route's actual content.
+
+    A row may assume a more severe band than its route's total needs (still safe); its
+    twin at the actual band has the same conductors, as much or more ampacity, a cooler
+    conductor and no more loss, so the design stays feasible and costs no more — and its
+    derating matches its route exactly.
+    """
+    t = prep.table
+    terms = _route_terms(prep)
+    if not terms or t.route_count is None or t.route_top is None:
+        return choice
+    route_of = terms["route_of"]
+    out = np.array(choice, dtype=np.int64)
+    n_routes = int(route_of.max()) + 1
+    inside = route_of >= 0
+    totals = np.bincount(route_of[inside], weights=t.route_count[out[inside]],
+                         minlength=n_routes)
+    tops = np.unique(t.route_top[t.route_count > 0])
+    for s in np.flatnonzero(inside).tolist():
+        want = tops[np.searchsorted(tops, totals[route_of[s]] - 1e-9, side="left")]
+        r = int(out[s])
+        rows = np.arange(t.offsets[s], t.offsets[s + 1])
+        twin = rows[(t.material[rows] == t.material[r]) & (t.size_index[rows] == t.size_index[r])
+                    & (t.sets[rows] == t.sets[r]) & (t.route_top[rows] == want)]
+        if twin.size:
+            out[s] = int(twin[0])
+    return out
 
 
 def path_drops_pct(parent: np.ndarray, own_pct: np.ndarray, fixed_pct: np.ndarray) -> np.ndarray:
@@ -180,9 +224,14 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
                        objective: str,
                        solution: Solution | None = None,
                        diagnosis: tuple[str, ...] = ()) -> Design:
-    """Re-evaluate the chosen rows from the table and assemble the Design."""
+    """Re-evaluate the chosen rows from the table and assemble the Design.
+
+    Runs in shared routes are reported at the derating of their route's actual content
+    (``exact_route_rows``), whatever band the solver's rows assumed.
+    """
     t = prep.table
     cat = prep.catalogue
+    choice = exact_route_rows(prep, np.asarray(choice, dtype=np.int64))
     vd = t.vd_pct[choice]
     path = path_drops_pct(prep.parent, vd, prep.fixed_drop_pct)
     service = [seg.service and prep.profile.bonds_service() for seg in prep.segments]
@@ -190,8 +239,14 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
     kwh = loss_w * prep.runs.kwh_per_w(prep.economics)
     cost_year = loss_w * prep.runs.annual_cost_per_w(prep.economics)
     results = []
+    race = prep.profile.raceway
     for s, seg in enumerate(prep.segments):
         r = int(choice[s])
+        top = -1 if t.terminal_max is None else int(t.terminal_max[r])
+        ends = 0 if t.splice_ends is None else int(t.splice_ends[r])
+        term_capex = 0.0 if t.termination_capex is None else float(t.termination_capex[r])
+        race_capex = 0.0 if t.raceway_capex is None else float(t.raceway_capex[r])
+        race_k = -1 if t.raceway_size is None else int(t.raceway_size[r])
         parent_id = (prep.scenario.nodes[seg.parent_index].id if seg.parent_index >= 0
                      else prep.scenario.source.id)
         results.append(SegmentResult(
@@ -209,6 +264,17 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
             voltage_v=seg.voltage_v, phases=seg.phases, pinned=seg.node.pin is not None,
             operating_a=float(prep.runs.operating_a[s]), loss_kwh_per_year=float(kwh[s]),
             loss_cost_per_year=float(cost_year[s]), **_phase_fields(prep, s, r),
+            terminal_max=cat.sizes[top] if top >= 0 else "",
+            termination="reducing splice" if ends > 0 else "direct",
+            raceway=(race.label(seg.node.cable.installation,
+                                1 if seg.node.cable.sets_in_one_raceway else int(t.sets[r]),
+                                race_k)
+                     if race is not None else ""),
+            conductor_capex=float(t.capex[r]) - term_capex - race_capex,
+            termination_capex=term_capex, raceway_capex=race_capex,
+            route=seg.node.route,
+            route_conductors=(int(min(t.route_top[r], 10**6))
+                              if seg.node.route and t.route_top is not None else 0),
         ))
     totals = Totals(
         capex=float(t.capex[choice].sum()),
@@ -321,6 +387,12 @@ def diagnose(prep: Prepared, limit_pct: np.ndarray | None = None) -> list[str]:
         if local.pinned_fails[s]:
             lines.append(f"segment '{seg.id}': the pinned conductor {seg.node.pin} breaks the "
                          f"{local.pinned_fails[s]} rule; unpin it or pin a larger one")
+        elif local.build_limits and local.build_limits[s]:
+            lines.append(
+                f"segment '{seg.id}': every conductor that meets the rules was refused by a "
+                f"{local.build_limits[s]}; fix: allow reducing splices (oversize_termination "
+                f"= \"splice\"), equipment with larger terminals (load_terminal_max), more "
+                f"parallel sets, or another installation")
         elif not math.isfinite(local.best_drop_pct[s]):
             lines.append(
                 f"segment '{seg.id}': no allowed conductor carries {seg.required_ampacity_a:.0f} A "
@@ -482,6 +554,15 @@ def violations(prep: Prepared, choice: np.ndarray, design: Design) -> list[Viola
                                  float(prep.leaf_limit_pct[s]),
                                  f"drop from the source {res.path_vd_pct:.2f} % over "
                                  f"{prep.leaf_limit_pct[s]:g} %"))
+        fail = 0 if t.build_fail is None else int(t.build_fail[r])
+        if fail:
+            what = "termination" if fail == 1 else "raceway"
+            why = (f"the {seg.ocpd_a:g} A device's terminals do not take it (larger than "
+                   f"{res.terminal_max or 'its range'}, or more sets than it has room for) and "
+                   f"no reducing splice is allowed or priced" if fail == 1
+                   else "no listed raceway size holds it")
+            out.append(Violation(seg.id, what, float(res.sets), 0.0,
+                                 f"{conductor_label(res.sets, res.size, res.material)}: {why}"))
     return out
 
 

@@ -49,7 +49,8 @@ def _unit_text(value: Any, example: str) -> str:
 
 
 # The installation words of the scenario format (CONTRACT.md); the catalogue decides.
-INSTALLATION_WORDS = ("conduit", "steel_conduit", "tray", "buried", "free_air")
+INSTALLATION_WORDS = ("conduit", "steel_conduit", "tray", "buried", "direct_buried",
+                      "free_air")
 # sizer sizes low-voltage cable: 1000 V AC is the top of the low-voltage range (IEC 60038).
 MAX_VOLTAGE_V = 1000.0
 DEFAULT_POWER_FACTOR = 0.9
@@ -285,6 +286,61 @@ def read_materials(value: Any, text: bool = False) -> tuple[str, ...]:
     if not materials:
         raise ScenarioError("must name at least one material (\"Cu\", \"Al\")")
     return materials
+
+
+OVERSIZE_WORDS = ("splice", "refuse")
+
+
+def read_oversize(value: Any, text: bool = False) -> str:
+    """What to do with a conductor larger than its terminal takes: splice or refuse."""
+    word = read_text(value).lower()
+    if word not in OVERSIZE_WORDS:
+        raise ScenarioError(f"must be one of {', '.join(OVERSIZE_WORDS)} or \"auto\", "
+                            f"got {show(value)}")
+    return word
+
+
+def read_size(value: Any, text: bool = False) -> str:
+    """A conductor size as the trade writes it ("250 kcmil", "4/0 AWG", "95 mm2")."""
+    from sizer.units import parse_size
+
+    try:
+        return parse_size(read_text(value))
+    except UnitError as exc:
+        raise ScenarioError(exc.message) from None
+
+
+def read_soil_resistivity(value: Any, text: bool = False) -> float:
+    """Soil thermal resistivity in K·m/W ("1.5 K*m/W", or a plain number in K·m/W)."""
+    from sizer.units import parse_quantity
+
+    if isinstance(value, int | float) and not isinstance(value, bool):
+        x = float(value)
+    else:
+        raw = read_text(value).replace("K.m/W", "K*m/W").replace("K·m/W", "K*m/W")
+        try:
+            x = float(raw) if _is_number(raw) else parse_quantity(raw, "K*m/W")
+        except UnitError as exc:
+            raise ScenarioError(f"{exc.message} (write e.g. \"1.5 K*m/W\")") from None
+    if not (math.isfinite(x) and 0.2 <= x <= 10):
+        raise ScenarioError(f"must be between 0.2 and 10 K*m/W, got {show(value)}")
+    return x
+
+
+def _is_number(text: str) -> bool:
+    try:
+        float(text)
+    except ValueError:
+        return False
+    return True
+
+
+def read_depth(value: Any, text: bool = False) -> float:
+    """Laying depth in metres (to the cables), between 0.2 m and 5 m."""
+    x = _length_m(_unit_text(value, "0.8 m"))
+    if not (math.isfinite(x) and 0.2 <= x <= 5.0):
+        raise ScenarioError(f"must be a depth between 0.2 m and 5 m, got {show(value)}")
+    return x
 
 
 def read_installation(value: Any, text: bool = False) -> str:

@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 from sizer.model import Design, DesignStatus, Totals
 from sizer.optimize import Objective, Prepared
 from sizer.workflow import (
+    LOADFLOW_DROP_RULE,
     FrontierPoint,
     Option,
     Progress,
@@ -137,8 +138,13 @@ def solve_results(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
                                 else min(time_limit_s, REPORT_FRONTIER_TIME_LIMIT_S),
                                 progress=progress))
     progress("verifying the frontier's designs")
-    designs = tuple(frontier_designs(prep, points))
-    return Results(prep, design, verification, options, points, frontier_designs=designs)
+    designs = frontier_designs(prep, points)
+    # The frontier's points keep the linear drop estimate within its limits; one the load
+    # flow finds over a total limit is not a compliant design, so it is not offered.
+    kept = [(p, d) for p, d in zip(points, designs, strict=True)
+            if not any(v.rule == LOADFLOW_DROP_RULE for v in d.violations)]
+    return Results(prep, design, verification, options, tuple(p for p, _ in kept),
+                   frontier_designs=tuple(d for _, d in kept))
 
 
 def check_results(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",

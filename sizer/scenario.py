@@ -672,7 +672,12 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 materials=cable_kw["materials"], insulation_c=cable_kw["insulation"],
                 terminals_c=cable_kw["terminals"], ambient_c=cable_kw["ambient"],
                 installation=cable_kw["installation"], grouping=cable_kw["grouping"],
-                max_sets=cable_kw["max_sets"])
+                max_sets=cable_kw["max_sets"],
+                oversize_termination=cable_kw["oversize_termination"],
+                min_parallel_size=cable_kw["min_parallel_size"],
+                soil_resistivity_k_m_per_w=cable_kw["soil_resistivity"],
+                depth_m=cable_kw["depth"],
+                sets_in_one_raceway=cable_kw["sets_in_one_raceway"])
             settings_cache[key] = cable
         if profile is not None:
             if "insulation" in v:
@@ -683,6 +688,13 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 message = check_terminals(v["terminals"], profile)
                 if message:
                     report.add(message, node=d.id, field="terminals", file=d.file)
+            for size_key in ("load_terminal_max", "min_parallel_size"):
+                size = v.get(size_key, defaults.get(size_key))
+                if size is not None and size not in profile.sizes:
+                    report.add(f"{size} is not a size of rule profile '{profile.name}' "
+                               f"({profile.sizes[0]} … {profile.sizes[-1]})", node=d.id,
+                               field=size_key, file=d.file)
+                    d.bad.add(size_key)
             pin = v.get("conductor")
             if pin is not None and not {"materials", "max_sets"} & d.bad:
                 message = check_pin(pin, cable.materials, cable.max_sets, profile)
@@ -711,6 +723,7 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 neutral_size=v.get("neutral_size", defaults["neutral_size"]),
                 operating=Operating(**{
                     name: v.get(key, defaults.get(key)) for key, name in _OPERATING_KEYS}),
+                route=v.get("route", ""), load_terminal_max=v.get("load_terminal_max", ""),
             ))
         except ScenarioError as exc:
             report.add_error(exc, node=d.id, file=d.file)
@@ -756,6 +769,14 @@ def _schedule_row(n: Node) -> dict[str, str]:
         "ambient": f"{_num(c.ambient_c)} degC", "installation": c.installation,
         "grouping": "auto" if c.grouping is None else str(c.grouping),
         "max_sets": str(c.max_sets),
+        "route": n.route,
+        "load_terminal_max": n.load_terminal_max,
+        "oversize_termination": c.oversize_termination or "auto",
+        "min_parallel_size": c.min_parallel_size or "auto",
+        "soil_resistivity": ("auto" if c.soil_resistivity_k_m_per_w is None
+                             else f"{_num(c.soil_resistivity_k_m_per_w)} K*m/W"),
+        "depth": "auto" if c.depth_m is None else f"{_num(c.depth_m)} m",
+        "sets_in_one_raceway": "true" if c.sets_in_one_raceway else "false",
     }
     row["phase"] = n.phase or ""
     row["triplen"] = "" if n.triplen == 0.0 else f"{_num(100 * n.triplen)} %"

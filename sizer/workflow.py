@@ -32,6 +32,9 @@ from sizer.verify import Network, fault_currents_a, load_flow, motor_start_dip_p
 
 Progress = Callable[[str], None]
 
+# The finding of a design whose AC load flow puts a load over the total drop limit.
+LOADFLOW_DROP_RULE = "total drop (load flow)"
+
 
 def quiet(_: str) -> None:
     """A progress callback that says nothing."""
@@ -104,11 +107,10 @@ def frontier_designs(prep: Prepared, points: Sequence[FrontierPoint]) -> list[De
     out = []
     for p in points:
         choice = np.asarray(p.choice, dtype=np.int64)
-        if len(choice) != len(prep.segments):
-            continue
         d = design_from_choice(prep, choice, objective="frontier",
                                status=DesignStatus.OPTIMAL if p.proven_optimal
                                else DesignStatus.TIME_LIMIT)
+        choice = np.asarray(d.choice, dtype=np.int64)  # routes at their actual derating
         out.append(with_verification(prep, d, choice, verify_design(prep, choice)))
     return out
 
@@ -184,7 +186,7 @@ def verify_design(prep: Prepared, choice: np.ndarray) -> Verification:
     findings = list(_withstand_findings(prep, choice, near))
     drop = np.asarray(lf.drop_pct, dtype=float)
     over = np.flatnonzero(drop > prep.leaf_limit_pct + 1e-6)
-    findings += [Violation(prep.segments[i].id, "total drop (load flow)", float(drop[i]),
+    findings += [Violation(prep.segments[i].id, LOADFLOW_DROP_RULE, float(drop[i]),
                            float(prep.leaf_limit_pct[i]),
                            f"the load flow gives {drop[i]:.2f} % from the source, over "
                            f"{prep.leaf_limit_pct[i]:g} %") for i in over.tolist()]

@@ -203,9 +203,10 @@ def test_service_conductors_get_a_bonding_jumper_not_an_egc(tmp_path):
     size = NEC.size_index(svc["size"])
     expected = NEC.sizes[bonding_jumper_size_index(NEC, "Cu", np.array([size]))[0]]
     assert svc["bonding_jumper"] == expected
-    # least upfront: 2x 3/0 AWG Cu (2 × 200 A at 75 degC, NEC Table 310.16), one jumper
-    # per raceway by its 3/0 AWG conductor (250.102(C)(2)): 4 AWG Cu
-    assert (svc["sets"], svc["size"], expected) == (2, "3/0 AWG", "4 AWG")
+    # least upfront with raceways priced: one set of 500 kcmil Cu in one raceway (380 A at
+    # 75 degC, NEC Table 310.16) rather than two sets in two; its jumper by the 500 kcmil
+    # conductor: 1/0 AWG Cu (one jumper per raceway, 250.102(C)(2))
+    assert (svc["sets"], svc["size"], expected) == (1, "500 kcmil", "1/0 AWG")
     load = next(s for s in doc["segments"] if s["id"] == "LOAD")
     assert load["egc"] is not None and load["bonding_jumper"] is None
 

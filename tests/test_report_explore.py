@@ -58,7 +58,12 @@ def test_points_run_from_least_upfront_to_least_losses(page):
     assert capex == sorted(capex)
     assert data["points"][data["reference"]]["label"].startswith("lifecycle optimum")
     cm = data["points"][data["codeMinimum"]]
-    assert cm["capex"] == min(capex) and cm["up"] == []  # nothing is upsized from itself
+    # The frontier's weighted sums hold the linear drop estimate to its limit; the code
+    # minimum is also held to the load flow (the closed loop tightens its budget), so a
+    # frontier point may be cheaper only by failing the load flow: it carries those
+    # findings. Among points without extra findings, the code minimum is the cheapest.
+    clean = [p["capex"] for p in data["points"] if p["findings"] <= cm["findings"]]
+    assert cm["capex"] == min(clean) and cm["up"] == []  # nothing is upsized from itself
 
 
 def test_the_lifecycle_optimum_has_the_least_lifetime_total(page):

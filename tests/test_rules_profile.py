@@ -132,7 +132,8 @@ def test_iec_values() -> None:
     assert p.continuous_factor == 1.0
     assert p.next_size_up_max_a is None  # IEC 60364-4-43 433.1: In <= Iz
     assert p.terminal_rule is None
-    assert p.min_parallel_size is None
+    # common practice (IEC 60364-5-52 523.7 sets no minimum [M]): parallel sets from 50 mm2
+    assert p.min_parallel_size == "50 mm2"
     assert p.insulation_temps_c == (70.0, 90.0)
     assert p.final_temperature_c(70) == 160.0  # IEC 60364-4-43 Table 43A [M]
     assert {p.method(i) for i in INSTALLATIONS} == {"B1", "C", "E", "D1"}

@@ -170,7 +170,10 @@ def test_min_parallel_size() -> None:
     got = min_parallel_ok(NEC, np.array([ix("1 AWG"), ix("1 AWG"), ix("1/0 AWG")]),
                           np.array([1, 2, 2]))
     assert got.tolist() == [True, False, True]
-    assert min_parallel_ok(load_profile("iec"), np.arange(3), 4).all()
+    # iec: common practice, parallel sets from 50 mm2 (IEC 60364-5-52 523.7 sets no minimum)
+    iec = load_profile("iec")
+    sizes = np.array([iec.size_index(s) for s in ("1.5 mm2", "35 mm2", "50 mm2", "95 mm2")])
+    assert min_parallel_ok(iec, sizes, 4).tolist() == [False, False, True, True]
     with pytest.raises(ScenarioError):
         min_parallel_ok(NEC, 0, 0)
 

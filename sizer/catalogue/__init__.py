@@ -193,7 +193,7 @@ def _installations() -> dict[str, Installation]:
 
 
 def installation(name: str) -> Installation:
-    """The installation called ``name`` (conduit, steel_conduit, tray, buried, free_air)."""
+    """The installation called ``name`` (conduit, ..., buried, direct_buried, free_air)."""
     table = _installations()
     if name not in table:
         raise UnitError(f"unknown installation {name!r} (use one of {', '.join(table)})")

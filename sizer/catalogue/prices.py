@@ -15,6 +15,7 @@ import math
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass, replace
+from dataclasses import field as _field
 from pathlib import Path
 from types import MappingProxyType
 from typing import Protocol
@@ -65,6 +66,17 @@ class PriceList:
     labour_per_m: Mapping[str, FloatArray]
     metal_kg_per_m: Mapping[str, FloatArray]
     metal_per_kg: Mapping[str, float]
+    # One reducing splice on one conductor of each size (connector, pigtail, labour); NaN
+    # where the list has no ``splice`` column or no price: such a conductor is not spliced.
+    splice_each: Mapping[str, FloatArray] = _field(default_factory=lambda: MappingProxyType({}))
+    raceways: RacewayPrices | None = None  # the ``<list>.raceways.csv`` beside the list
+    # ``<list>.terminals.csv`` beside the list: terminal ranges replacing the profile's
+    terminals_path: Path | None = None
+
+    def splice(self, material: str) -> FloatArray:
+        """Price of one reducing splice on one conductor, over the catalogue's sizes."""
+        got = self.splice_each.get(_material(material))
+        return got if got is not None else np.full(len(self.sizes), np.nan)
 
     def conductor(self, material: str) -> FloatArray:
         """Price of one conductor per metre over the catalogue's sizes."""
@@ -119,6 +131,74 @@ class PriceList:
         return ~np.isnan(self.conductor(material))
 
 
+@dataclass(frozen=True)
+class RacewayPrices:
+    """Installed price per metre (material + labour) of each raceway type and size.
+
+    ``per_m`` maps (type, size) to money per metre of one raceway — conduit and duct by
+    designator ("53"), ``tray`` by width in mm ("300"); ``trench_per_m`` is one trench
+    per metre of route (NaN when not priced).
+    """
+
+    per_m: Mapping[tuple[str, str], float]
+    trench_per_m: float
+    source: str
+
+    def price_per_m(self, kind: str, size: str) -> float:
+        """Money per metre of one raceway; NaN when the list does not price it."""
+        return self.per_m.get((kind, size), math.nan)
+
+
+def raceway_list_path(price_list: str | Path) -> Path:
+    """Where the raceway prices of a price list live: ``demo-us.csv`` → ``demo-us.raceways.csv``."""
+    path = Path(price_list)
+    return path.with_name(f"{path.stem}.raceways.csv")
+
+
+def load_raceway_prices(path: str | Path, currency: str) -> RacewayPrices:
+    """Read a raceway price CSV, in the project's currency.
+
+    Columns type,size,price,labour: price and labour per length unit of one raceway.
+    """
+    file = str(path)
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ScenarioError(f"cannot read the raceway prices: {exc}", file=file) from exc
+    header, table = _split(text)
+    if (header.get("currency") or "").strip().upper() != currency.strip().upper():
+        raise ScenarioError(f"raceway prices must be in {currency} ('# currency: ...')",
+                            file=file, field="currency")
+    try:
+        m_per_unit = parse_length_m(f"1 {header.get('length_unit', '')}")
+    except UnitError:
+        raise ScenarioError("the header must say the length unit, e.g. '# length_unit: ft'",
+                            file=file, field="length_unit") from None
+    parsed = list(csv.reader([line for _, line in table]))
+    if not parsed or [c.strip().lower() for c in parsed[0]] != ["type", "size", "price",
+                                                                "labour"]:
+        raise ScenarioError("raceway prices need columns type,size,price,labour", file=file)
+    per_m: dict[tuple[str, str], float] = {}
+    trench = math.nan
+    for (line, _), cells in zip(table[1:], parsed[1:], strict=True):
+        try:
+            value = (float(cells[2]) + float(cells[3])) / m_per_unit
+        except (ValueError, IndexError):
+            raise ScenarioError(f"line {line}: price and labour must be numbers",
+                                file=file) from None
+        if not (math.isfinite(value) and value >= 0):
+            raise ScenarioError(f"line {line}: price and labour must be zero or more",
+                                file=file)
+        kind, size = cells[0].strip(), cells[1].strip()
+        if kind == "trench":
+            trench = value
+        else:
+            per_m[kind, size] = value
+    described = header.get("source", "")
+    return RacewayPrices(MappingProxyType(per_m), trench,
+                         f"{Path(path).name}: {described}" if described else Path(path).name)
+
+
 def _material(material: str) -> str:
     if material not in MATERIALS:
         raise UnitError(f"unknown conductor material {material!r} (use \"Cu\" or \"Al\")")
@@ -133,6 +213,7 @@ class _Row:
     conductor: float
     labour: float
     metal_kg: float
+    splice: float = math.nan   # one reducing splice on one conductor; NaN: not priced
 
 
 def load_price_list(
@@ -193,10 +274,12 @@ def load_price_list(
     conductor: dict[str, FloatArray] = {mat: np.full(n, np.nan) for mat in MATERIALS}
     labour: dict[str, FloatArray] = {mat: np.full(n, np.nan) for mat in MATERIALS}
     metal_kg: dict[str, FloatArray] = {mat: np.full(n, np.nan) for mat in MATERIALS}
+    splice: dict[str, FloatArray] = {mat: np.full(n, np.nan) for mat in MATERIALS}
     for row in rows:
         conductor[row.material][row.index] = row.conductor
         labour[row.material][row.index] = row.labour
         metal_kg[row.material][row.index] = row.metal_kg
+        splice[row.material][row.index] = row.splice
     _check_complete(rows, catalogue, file)
 
     metal_per_kg: dict[str, float] = {mat: basis.get(mat, math.nan) for mat in MATERIALS}
@@ -210,6 +293,13 @@ def load_price_list(
         return MappingProxyType(out)
 
     described = header.get("source", "")
+    splice_each = {}
+    for mat, arr in splice.items():
+        arr.setflags(write=False)
+        splice_each[mat] = arr
+    race_path = raceway_list_path(path)
+    raceways = load_raceway_prices(race_path, currency) if race_path.is_file() else None
+    term_path = Path(path).with_name(f"{Path(path).stem}.terminals.csv")
     as_listed = PriceList(
         currency=currency,
         source=f"{Path(path).name}: {described}" if described else Path(path).name,
@@ -219,6 +309,9 @@ def load_price_list(
         labour_per_m=per_m(labour),
         metal_kg_per_m=per_m(metal_kg),
         metal_per_kg=MappingProxyType(metal_per_kg),
+        splice_each=MappingProxyType(splice_each),
+        raceways=raceways,
+        terminals_path=term_path if term_path.is_file() else None,
     )
     new = {mat: value for mat, value in (("Cu", copper_per_kg), ("Al", aluminium_per_kg))
            if value is not None}
@@ -293,8 +386,19 @@ def _rows(table: list[tuple[int, str]], catalogue: SizeCatalogue, file: str) -> 
                 need = "positive" if strict else "zero or more"
                 raise fail(f"line {line} ({mat} {size}): {cell[name]!r} must be {need}", name)
             values[name] = value
+        splice = math.nan
+        if "splice" in columns and cells[columns.index("splice")].strip():
+            text = cells[columns.index("splice")].strip()
+            try:
+                splice = float(text)
+            except ValueError:
+                raise fail(f"line {line} ({mat} {size}): {text!r} is not a number",
+                           "splice") from None
+            if not (math.isfinite(splice) and splice >= 0):
+                raise fail(f"line {line} ({mat} {size}): {text!r} must be zero or more",
+                           "splice")
         rows.append(_Row(line, mat, k, values["conductor_price"], values["labour"],
-                         values["metal_kg"]))
+                         values["metal_kg"], splice))
     if not rows:
         raise fail("no price rows")
     return rows
@@ -330,7 +434,9 @@ def bundled_price_list_path(name: str) -> Path:
     candidate = COSTDATA_DIR / rel
     if rel.name and candidate.is_file():
         return candidate
-    shipped = sorted(p.name for p in COSTDATA_DIR.glob("*.csv")) if COSTDATA_DIR.is_dir() else []
+    shipped = (sorted(p.name for p in COSTDATA_DIR.glob("*.csv")
+                      if not p.name.endswith((".raceways.csv", ".terminals.csv")))
+               if COSTDATA_DIR.is_dir() else [])
     listing = ", ".join(shipped) if shipped else f"none found in {COSTDATA_DIR}"
     raise ScenarioError(f"no bundled price list {name!r} (bundled: {listing})", field="catalogue")
 

@@ -13,6 +13,7 @@ import dataclasses
 from sizer.engines import tree as _tree
 from sizer.engines.milp import SOLVERS, solve_milp, solver_available
 from sizer.engines.problem import Problem, Solution, SolveStatus
+from sizer.engines.routes import solve_tree_routes
 from sizer.errors import ScenarioError
 
 __all__ = ["ENGINES", "SOLVERS", "Problem", "Solution", "SolveStatus", "solve",
@@ -25,9 +26,10 @@ def solve(problem: Problem, engine: str = "auto", solver: str = "cbc",
           time_limit_s: float | None = None) -> Solution:
     """Solve ``problem`` with the named engine.
 
-    ``auto`` runs the tree engine when the problem has no side constraints, else the
-    MILP; when the tree engine's front bound is hit it falls back to the MILP and says
-    so in the message. ``solver`` ("cbc" | "highs") and ``time_limit_s`` (wall clock,
+    ``auto`` runs the tree engine when the problem has no side constraints (shared
+    routes aside: the tree engine bounds them and hands what it cannot prove to the
+    MILP), else the MILP; when the tree engine's front bound is hit it falls back to the
+    MILP and says so in the message. ``solver`` ("cbc" | "highs") and ``time_limit_s`` (wall clock,
     seconds) apply to the MILP; the tree engine has no time limit.
     """
     if engine not in ENGINES:
@@ -36,6 +38,9 @@ def solve(problem: Problem, engine: str = "auto", solver: str = "cbc",
     if solver not in SOLVERS:
         raise ScenarioError(f"unknown solver {solver!r}; choose one of {', '.join(SOLVERS)}",
                             field="solver")
+    if (engine in ("tree", "auto") and problem.has_routes
+            and not _other_side_constraints(problem)):
+        return _tree_with_routes(problem, solver, time_limit_s)
     if engine == "tree" and problem.has_side_constraints:
         raise ScenarioError("the tree engine takes no side constraints (motor start, budget "
                             "caps, frontier caps); use engine 'auto' or 'milp'", field="engine")
@@ -50,3 +55,21 @@ def solve(problem: Problem, engine: str = "auto", solver: str = "cbc",
         message=f"{first.message}; fell back to the MILP. {fallback.message}",
         seconds=first.seconds + fallback.seconds,
     )
+
+
+def _other_side_constraints(problem: Problem) -> bool:
+    """Side constraints beyond shared routes (the tree engine refuses those)."""
+    return dataclasses.replace(problem, route_of=None, route_count=None,
+                               route_top=None).has_side_constraints
+
+
+def _tree_with_routes(problem: Problem, solver: str, time_limit_s: float | None) -> Solution:
+    """Shared routes by the tree engine; the MILP settles what the iteration cannot prove."""
+    found, _bound = solve_tree_routes(
+        problem, lambda pure: _tree.solve_tree(pure, max_front=_tree.DEFAULT_MAX_FRONT))
+    if found.status is SolveStatus.INFEASIBLE or found.proven_optimal:
+        return found
+    exact = solve_milp(problem, solver=solver, time_limit_s=time_limit_s)
+    return dataclasses.replace(
+        exact, message=f"tree engine, {found.message}; handed to the MILP. {exact.message}",
+        seconds=found.seconds + exact.seconds)

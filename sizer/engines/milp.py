@@ -210,6 +210,44 @@ def add_group_constraints(prob: pulp.LpProblem, x: list[pulp.LpVariable],
     return added
 
 
+def add_route_constraints(prob: pulp.LpProblem, x: list[pulp.LpVariable],
+                          problem: Problem) -> int:
+    """Each route's conductor total within the band every chosen row's derating assumes.
+
+    For route r and each finite band top t of its rows: z_rt ≥ Σ_{i in s, top_i = t} x_i
+    for every segment s of r (one row per segment), and
+    Σ_{j in r} count_j x_j ≤ t + M_rt (1 − z_rt), M_rt = most conductors r can hold − t.
+    Returns the rows added.
+    """
+    if not problem.has_routes:
+        return 0
+    assert problem.route_of is not None and problem.route_count is not None
+    assert problem.route_top is not None
+    off = problem.offsets.tolist()
+    count = problem.route_count.tolist()
+    added = 0
+    for r in np.unique(problem.route_of[problem.route_of >= 0]).tolist():
+        members = np.flatnonzero(problem.route_of == r).tolist()
+        total = [(x[i], float(count[i])) for s in members for i in range(off[s], off[s + 1])]
+        most = sum(max(count[off[s]:off[s + 1]]) for s in members)
+        tops = np.unique(np.concatenate([problem.route_top[off[s]:off[s + 1]]
+                                         for s in members]))
+        for t in tops[np.isfinite(tops)].tolist():
+            if t >= most:
+                continue  # the band holds anything the route can carry
+            z = prob.add_variable(f"r{r}_t{t:g}", cat=pulp.LpBinary)
+            for s in members:
+                rows = [i for i in range(off[s], off[s + 1]) if problem.route_top[i] == t]
+                if rows:
+                    _add(prob, [(x[i], 1.0) for i in rows] + [(z, -1.0)],
+                         pulp.LpConstraintLE, 0.0, f"r{r}_t{t:g}_s{s}")
+                    added += 1
+            _add(prob, [*total, (z, most - t)], pulp.LpConstraintLE, float(most),
+                 f"r{r}_t{t:g}_total")
+            added += 1
+    return added
+
+
 def build_model(problem: Problem) -> tuple[pulp.LpProblem, list[pulp.LpVariable]]:
     """The PuLP model of a Problem, built from its arrays in one pass."""
     prob = pulp.LpProblem("sizer", pulp.LpMinimize)
@@ -231,6 +269,7 @@ def build_model(problem: Problem) -> tuple[pulp.LpProblem, list[pulp.LpVariable]
             _add(prob, list(zip(x, coef, strict=True)), pulp.LpConstraintLE, cap,
                  f"{name}_cap")
     add_group_constraints(prob, x, problem)
+    add_route_constraints(prob, x, problem)
     return prob, x
 
 

@@ -88,6 +88,15 @@ class Problem:
     ``same_choice_groups``: each group's segments choose rows with equal
     ``choice_key``; ``drop2_pct``/``limit2_pct``: a second path-drop constraint of the
     same form (no fixed term: fold a constant into every row of that segment).
+
+    Shared routes (the MILP directly; the tree engine by iteration, see
+    ``sizer.engines.routes``): ``route_of[s]`` names the route of segment ``s`` (-1
+    none); a row adds ``route_count`` conductors to its route and is valid only while
+    its route's total stays within ``route_top`` (the grouping band its derating
+    assumes; inf for the last band):
+
+        for every route r and chosen row i of a segment in r:
+            Σ_{chosen j in r} route_count[j] ≤ route_top[i].
     """
 
     parent: np.ndarray
@@ -104,6 +113,9 @@ class Problem:
     choice_key: np.ndarray | None = None
     drop2_pct: np.ndarray | None = None
     limit2_pct: np.ndarray | None = None
+    route_of: np.ndarray | None = None
+    route_count: np.ndarray | None = None
+    route_top: np.ndarray | None = None
 
     def __post_init__(self) -> None:
         put = object.__setattr__
@@ -173,6 +185,42 @@ class Problem:
                 raise InternalError("must be a number or +inf, not -inf", field="limit2_pct")
             put(self, "limit2_pct", limit2)
 
+        given = [a is not None for a in (self.route_of, self.route_count, self.route_top)]
+        if any(given) and not all(given):
+            raise InternalError("route_of, route_count and route_top go together",
+                                field="route_of")
+        if all(given):
+            put(self, "route_of", _as_int("route_of", self.route_of, n))
+            put(self, "route_count", _as_int("route_count", self.route_count, m))
+            top = _as_float("route_top", self.route_top, m, finite=False)
+            if np.any(top < 0) or np.any(self.route_count < 0):  # type: ignore[operator]
+                raise InternalError("route counts and tops must not be negative",
+                                    field="route_top")
+            put(self, "route_top", top)
+
+    @property
+    def has_routes(self) -> bool:
+        """True when some segments share a route (their derating couples them)."""
+        return self.route_of is not None and bool(np.any(self.route_of >= 0))
+
+    def route_totals(self, choice: np.ndarray) -> np.ndarray:
+        """Conductors in each route for a choice of rows (index = route)."""
+        assert self.route_of is not None and self.route_count is not None
+        n_routes = int(self.route_of.max(initial=-1)) + 1
+        inside = self.route_of >= 0
+        return np.bincount(self.route_of[inside], weights=self.route_count[choice[inside]],
+                           minlength=n_routes)
+
+    def route_consistent(self, choice: np.ndarray) -> bool:
+        """True when every chosen row's derating covers its route's actual total."""
+        if not self.has_routes:
+            return True
+        assert self.route_of is not None and self.route_top is not None
+        totals = self.route_totals(choice)
+        inside = np.flatnonzero(self.route_of >= 0)
+        return bool(np.all(totals[self.route_of[inside]]
+                           <= self.route_top[choice[inside]] + 1e-9))
+
     @property
     def n_segments(self) -> int:
         """Number of segments."""
@@ -196,6 +244,7 @@ class Problem:
             or self.loss_pv_cap is not None
             or any(g.size > 1 for g in self.same_choice_groups)
             or (self.limit2_pct is not None and bool(np.any(np.isfinite(self.limit2_pct))))
+            or self.has_routes
         )
 
     def path_sum(self, per_row: np.ndarray, choice: np.ndarray,
@@ -232,6 +281,8 @@ class Problem:
                 total = float(np.sum(getattr(self, name)[choice]))
                 if total > cap + tol_pct * max(1.0, abs(cap)):
                     out.append(f"{name} {total:.6g} > cap {cap:.6g}")
+        if self.has_routes and not self.route_consistent(choice):
+            out.append("a route holds more conductors than a chosen row's derating allows")
         if self.choice_key is not None:
             for g in self.same_choice_groups:
                 keys = np.unique(self.choice_key[choice[g]])

@@ -123,7 +123,8 @@ def explorer_data(points: Sequence[DesignPoint], shown: int, reference: int,
         for i, s in enumerate(d.segments):
             row = (conductor(s), s.egc, round(s.ampacity_a, 1), round(s.vd_pct, 4),
                    round(s.capex, 2), round(s.loss_kw, 5), round(s.loss_pv, 2),
-                   round(100.0 * s.current_a / s.ampacity_a, 1) if s.ampacity_a > 0 else None)
+                   round(100.0 * s.current_a / s.ampacity_a, 1) if s.ampacity_a > 0 else None,
+                   s.terminal_max, s.termination, s.raceway)
             if row not in keys[i]:
                 keys[i][row] = len(alts[i])
                 alts[i].append(row)

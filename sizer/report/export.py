@@ -144,7 +144,8 @@ SCHEDULE_COLUMNS = (
     "id", "parent", "kind", "voltage_v", "phases", "length_m", "current_a", "ocpd_a",
     "material", "size", "sets", "egc", "bonding_jumper", "ampacity_a", "temp_c", "vd_pct",
     "path_vd_pct", "loadflow_drop_pct", "fault_ka", "r_ohm", "x_ohm", "capex", "loss_kw",
-    "loss_pv", "pinned",
+    "loss_pv", "pinned", "terminal_max", "termination", "raceway", "conductor_capex",
+    "termination_capex", "raceway_capex",
 )
 
 

@@ -507,26 +507,31 @@ class _Page:
     def options_section(self) -> str:
         """The options side by side, with the frontier figure."""
         cur = self.cur
-        headers = ["Option", f"Upfront {cur}", f"Loss PV {cur}", f"Lifetime total {cur}",
+        headers = ["Option", f"Upfront {cur}", f"Conductors {cur}", f"Splices {cur}",
+                   f"Raceways {cur}", f"Loss PV {cur}", f"Lifetime total {cur}",
                    "Losses kWh/yr", f"Loss cost {cur}/yr", "Worst drop % (estimate)",
                    "Worst drop % (load flow)", "CO₂ t/yr", "CO₂ t over life"]
         rows: list[list[object]] = []
         classes: list[str] = []
         for r in self.option_rows:
             title = r.title if r.feasible else f"{r.title}: {DesignStatus(r.status).words}"
-            rows.append([title, num(r.capex), num(r.loss_pv), num(r.lifecycle),
+            rows.append([title, num(r.capex), num(r.conductor_capex), num(r.termination_capex),
+                         num(r.raceway_capex), num(r.loss_pv), num(r.lifecycle),
                          num(r.loss_kwh_per_year), num(r.loss_cost_per_year),
                          num(r.worst_drop_pct, 2), num(r.worst_loadflow_drop_pct, 2),
                          num(r.co2_t_per_year, 1), num(r.co2_t_lifetime, 0)])
             classes.append("chosen" if r.key == "lifecycle" else "")
-        numeric = [False] + [True] * 9
+        numeric = [False] + [True] * 12
         ef = self.scenario.economics.emission_kg_per_kwh
         return ('<section id="options"><h2>Options side by side</h2>'
                 + table(headers, rows, numeric=numeric, row_class=classes, css="options")
                 + f'<p class="note">Loss PV: present value of the cost of losses over '
                   f"{self.econ.years:g} years (energy and demand charge, escalated and "
                   f"discounted). Loss cost and CO₂ per year are first-year figures; CO₂ uses "
-                  f"{ef:g} kg/kWh and grows with the load over the life. The highlighted row "
+                  f"{ef:g} kg/kWh and grows with the load over the life. Upfront is the "
+                  "installed cost: conductors and EGC pulled, reducing splices where a "
+                  "conductor is larger than its terminal takes, and raceways (conduit per "
+                  "parallel set, tray, trench) with their labour. The highlighted row "
                   "is the lifecycle optimum.</p>" + self.spare_note() + "</section>")
 
     def spare_note(self) -> str:
@@ -552,6 +557,7 @@ class _Page:
             out.append("<p>The code-minimum or lifecycle option has no design; nothing to "
                        "compare.</p></section>")
             return "".join(out)
+        out.append(self._refused_upsizing())
         if not self.justify:
             out.append("<p>The lifecycle optimum buys no run larger than the code minimum.</p>"
                        "</section>")
@@ -578,7 +584,8 @@ class _Page:
                    f"{1e3 * self.econ.energy_price_per_wh:g} {cur}/kWh plus demand charge); "
                    f"payback is simple (added cost / first-year saving); NPV is over "
                    f"{self.econ.years:g} years at {100 * self.econ.discount:g} % with "
-                   f"{100 * self.econ.escalation:g} % escalation.</p>")
+                   f"{100 * self.econ.escalation:g} % escalation. Added cost is the full "
+                   "installed cost: conductors, splices, raceways and labour.</p>")
         if self.cash is not None and self.cash.added_cost > 0.5:
             fig = plots.cash_flow_figure(self.cash, cur, self.econ.discount)
             out.append(figure(plots.png_bytes(fig), "Cumulative cash flow of upsizing",
@@ -628,6 +635,18 @@ class _Page:
                 "</th><th>Neutral</th><th>Top phase over the mean</th><th>Circuits</th></tr>"
                 f"</thead><tbody>{''.join(rows)}</tbody></table></div></section>")
 
+    def _refused_upsizing(self) -> str:
+        """The runs a terminal or raceway limit kept from a larger conductor, named."""
+        limits = [(seg.id, text) for seg, text in zip(self.prep.segments,
+                                                      self.prep.local.build_limits, strict=False)
+                  if text]
+        if not limits:
+            return ""
+        return ("<p>Runs that could not be upsized further because of a terminal or raceway "
+                "limit:</p><ul class=\"limits\">"
+                + "".join(f"<li>{esc(sid)}: {esc(text)}</li>" for sid, text in limits)
+                + "</ul>")
+
     def schedule_section(self) -> str:
         """The cable schedule of the design: one row per run, narrow enough for a page.
 
@@ -648,6 +667,7 @@ class _Page:
         cols = [("From", "", False), ("Run (to)", "", False), ("Kind", "", False),
                 ("Circuit", "", False), (length, "", True), ("Current A", "", True),
                 ("Device A", "", True), ("Conductor", "c", False), ("EGC/bond", "e", False),
+                ("Terminal takes", "t", False), ("Lands", "g", False), ("Raceway", "r", False),
                 ("Ampacity A", "a", True), ("Use %", "u", True), ("Own drop %", "v", True),
                 ("Path drop % linear estimate", "p", True),
                 ("Path drop % load flow", "l", True), ("Fault kA", "f", True),
@@ -672,6 +692,8 @@ class _Page:
                 ("", span, True),
                 ("", num(r.current_a, 1), True), ("", num(r.ocpd_a), True),
                 ("c", esc(cond), False), ("e", esc(r.egc).replace(" ", "\u00a0"), False),
+                ("t", esc(r.terminal_max), False), ("g", esc(r.termination), False),
+                ("r", esc(r.raceway), False),
                 ("a", num(r.ampacity_a), True), ("u", num(r.utilisation_pct, 0), True),
                 ("v", _flag_html(r.vd_pct, own_limit), True),
                 ("p", _flag_html(r.path_vd_pct, total_limit), True),

@@ -74,6 +74,9 @@
         else if (k === "x") { node = document.createTextNode(money(a[4])); }
         else if (k === "w") { node = document.createTextNode(fixed(a[5], 2)); }
         else if (k === "q") { node = document.createTextNode(money(a[6])); }
+        else if (k === "t") { node = document.createTextNode(a[8]); }
+        else if (k === "g") { node = document.createTextNode(a[9]); }
+        else if (k === "r") { node = document.createTextNode(a[10]); }
         if (node) { td.textContent = ""; td.appendChild(node); }
         td.classList.toggle("changed", k === "c" && changed);
       });

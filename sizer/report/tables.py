@@ -72,6 +72,10 @@ class OptionRow:
     worst_loadflow_drop_pct: float | None
     co2_t_per_year: float             # first year, from the grid emission factor
     co2_t_lifetime: float             # over the lifetime, with load growth
+    # the upfront cost by what it buys (NaN without a design)
+    conductor_capex: float = math.nan  # conductors, EGC and pulling them
+    termination_capex: float = math.nan  # reducing splices
+    raceway_capex: float = math.nan    # raceways, trays and trenches, installed
 
     @property
     def feasible(self) -> bool:
@@ -105,6 +109,9 @@ def option_row(key: str, title: str, design: Design, economics: EconomicParams,
         worst_loadflow_drop_pct=lf,
         co2_t_per_year=co2_year,
         co2_t_lifetime=co2_year * lifetime_energy_factor(economics),
+        conductor_capex=sum(s.conductor_capex for s in design.segments),
+        termination_capex=sum(s.termination_capex for s in design.segments),
+        raceway_capex=sum(s.raceway_capex for s in design.segments),
     )
 
 
@@ -282,6 +289,9 @@ class ScheduleRow:
     conductor: str
     egc: str                      # the EGC, or "bond ..." (bonding jumper) on service runs
     ampacity_a: float
+    terminal_max: str             # largest conductor the device terminal takes, per set
+    termination: str              # "direct" | "reducing splice"
+    raceway: str
     utilisation_pct: float        # design current / ampacity
     vd_pct: float                 # the run's own drop
     path_vd_pct: float            # source to far end, estimate
@@ -311,6 +321,7 @@ def schedule_table(design: Design,
             current_a=s.current_a, ocpd_a=s.ocpd_a, material=s.material, size=s.size,
             sets=s.sets, conductor=segment_conductor(s), egc=grounding_label(s),
             ampacity_a=s.ampacity_a,
+            terminal_max=s.terminal_max, termination=s.termination, raceway=s.raceway,
             utilisation_pct=100.0 * s.current_a / s.ampacity_a if s.ampacity_a > 0 else math.nan,
             vd_pct=s.vd_pct, path_vd_pct=s.path_vd_pct, loadflow_drop_pct=s.loadflow_drop_pct,
             fault_ka=s.fault_ka, capex=s.capex, loss_kw=s.loss_kw, loss_pv=s.loss_pv,

@@ -32,7 +32,8 @@ def summary(design: Design, title: str, *, max_rows: int | None = 40, max_findin
         lines.append(
             f"{'segment':<14} {'kind':<7} {'length':>8} {'I A':>7} {'dev A':>6} "
             f"{'conductor':<22} {'EGC or bond':<14} {'Iz A':>6} {'vd %':>5} "
-            f"{'path % LF' if by_flow else 'path % est':>10} {'capex':>10}")
+            f"{'path % LF' if by_flow else 'path % est':>10} {'capex':>10} {'lands':<7} "
+            f"{'raceway'}")
         for s in shown:
             cond = conductor_label(s.sets, s.size, s.material)
             pin = "*" if s.pinned else ""
@@ -42,7 +43,9 @@ def summary(design: Design, title: str, *, max_rows: int | None = 40, max_findin
             lines.append(
                 f"{s.id[:14]:<14} {s.kind:<7} {s.length_m:7.1f}m {s.current_a:7.1f} "
                 f"{s.ocpd_a:6.0f} {(cond + pin)[:22]:<22} {bond[:14]:<14} {s.ampacity_a:6.0f} "
-                f"{s.vd_pct:5.2f} {path} {s.capex:10,.0f}")
+                f"{s.vd_pct:5.2f} {path} {s.capex:10,.0f} "
+                f"{'splice' if s.termination == 'reducing splice' else s.termination:<7} "
+                f"{s.raceway}".rstrip())
         hidden = len(design.segments) - len(shown)
         if hidden > 0:
             where = (f"in {', '.join(str(w) for w in written)}" if written

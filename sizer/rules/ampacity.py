@@ -71,6 +71,36 @@ def ambient_factor(
     return float(factor) if factor.ndim == 0 else factor
 
 
+def soil_factor(profile: RuleProfile, installation: str, resistivity_k_m_per_w: float | None,
+                depth_m: float | None) -> float:
+    """Correction of a buried run's ampacity for its soil and depth (dimensionless).
+
+    From the profile's tables (iec: IEC 60364-5-52 Table B.52.16 for resistivity [M],
+    depth factors common practice [M]); a value between rows takes the next more severe
+    row (higher resistivity, greater depth). 1.0 where the profile has no table or the
+    installation is not in the ground. A resistivity above the table is refused.
+    """
+    soil = profile.soil
+    if soil is None or installation not in soil.resistivity:
+        return 1.0
+    factor = 1.0
+    if resistivity_k_m_per_w is not None:
+        rows = soil.resistivity[installation]
+        k = next((i for i, (rho, _) in enumerate(rows)
+                  if rho >= resistivity_k_m_per_w * (1 - REL_TOL)), None)
+        if k is None:
+            raise ScenarioError(f"soil thermal resistivity {resistivity_k_m_per_w:g} K.m/W is "
+                                f"beyond the profile's table (up to {rows[-1][0]:g} K.m/W)",
+                                field="soil_resistivity")
+        factor *= rows[k][1]
+    if depth_m is not None:
+        rows = soil.depth
+        k = next((i for i, (d, _) in enumerate(rows) if d >= depth_m * (1 - REL_TOL)),
+                 len(rows) - 1)
+        factor *= rows[k][1]
+    return factor
+
+
 def grouping_factor(profile: RuleProfile, conductors: object) -> float | np.ndarray:
     """Adjustment factor for ``conductors`` current-carrying conductors sharing a raceway.
 

@@ -7,6 +7,7 @@ Every CSV opens with ``#`` lines naming its standard, table, edition and status.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import tomllib
 from collections.abc import Mapping
@@ -21,12 +22,22 @@ import numpy as np
 
 from sizer.errors import ScenarioError, UnitError
 from sizer.rules.motors import MOTOR_RULES, MotorRules, read_flc_table, read_typical
+from sizer.rules.raceway import (
+    DIRECT,
+    NONE,
+    TRAY,
+    RacewayRules,
+    read_conductor_areas,
+    read_raceway_types,
+)
 from sizer.rules.tables import read_csv as _read_csv
 from sizer.rules.tables import read_number as _number
+from sizer.rules.terminations import TerminalTable, read_terminal_table
 from sizer.units import MATERIALS, MM2_PER_CMIL, parse_size
 
 PROFILES: tuple[str, ...] = ("nec", "cec", "iec")
-INSTALLATIONS: tuple[str, ...] = ("conduit", "steel_conduit", "tray", "buried", "free_air")
+INSTALLATIONS: tuple[str, ...] = ("conduit", "steel_conduit", "tray", "buried", "direct_buried",
+                                  "free_air")
 CATALOGUES: tuple[str, ...] = ("awg", "metric")
 EGC_RULES: tuple[str, ...] = ("device_rating", "phase_area", "conductor_ampacity")
 DROP_KINDS: tuple[str, ...] = ("branch", "feeder", "total")
@@ -46,6 +57,21 @@ class TerminalRule:
     high_c: float
     low_max_ocpd_a: float
     low_max_size: str
+    source: str
+
+
+@dataclass(frozen=True)
+class SoilCorrection:
+    """Correction of buried ampacities for soil thermal resistivity and laying depth.
+
+    ``resistivity``: installation -> ((K·m/W, factor), ...) ascending; ``depth``:
+    ((m, factor), ...) ascending; a value between rows takes the next more severe row.
+    """
+
+    reference_k_m_per_w: float
+    reference_depth_m: float
+    resistivity: Mapping[str, tuple[tuple[float, float], ...]]
+    depth: tuple[tuple[float, float], ...]
     source: str
 
 
@@ -107,6 +133,10 @@ class RuleProfile:
     default_clearing_time_s: float
     short_circuit_final_c: tuple[tuple[float, float], ...]  # (insulation rating, final temp)
     motor_start_dip_pct: float
+    min_parallel_overridable: bool = False   # the minimum is practice, not code: may be lowered
+    soil: SoilCorrection | None = None       # soil resistivity and depth factors; None: none
+    terminals: TerminalTable | None = None   # terminal ranges by device rating; None: any size
+    raceway: RacewayRules | None = None      # raceway practice; None: raceways not sized
     _size_lookup: Mapping[str, int] = field(init=False, repr=False)
     # the continuous factor also binds the adjusted ampacity (CEC Rule 8-104), not only
     # the ampacity before adjustment (NEC 210.19(A)(1)(a))
@@ -559,8 +589,10 @@ def read_profile(path: str | Path) -> RuleProfile:
     egc.finish()
 
     min_parallel = None
+    overridable = False
     if (par := top.optional_sub("parallel")) is not None:
         min_parallel = par.take("min_size", str)
+        overridable = par.take("practice", bool, False)
         sources["parallel"] = par.take("source", str)
         par.finish()
 
@@ -569,6 +601,37 @@ def read_profile(path: str | Path) -> RuleProfile:
     finals = _bands(sc.take("final_temperature_c", list), 2, "final temperatures", file)
     sources["short_circuit"] = sc.take("source", str)
     sc.finish()
+
+    terminals = None
+    if (tm := top.optional_sub("terminations")) is not None:
+        header, rows, table_source = _read_csv(here / tm.take("table", str))
+        terminals = read_terminal_table(
+            header, rows, {sz: i for i, sz in enumerate(sizes)}, tm.take("oversize", str),
+            f"{tm.take('source', str)}; table: {table_source}", str(here / "terminals"))
+        sources["terminations"] = terminals.source
+        tm.finish()
+
+    soil = None
+    if (so := top.optional_sub("soil")) is not None:
+        by_inst = so.sub("resistivity")
+        soil = SoilCorrection(
+            reference_k_m_per_w=so.take("reference_k_m_per_w", float),
+            reference_depth_m=so.take("reference_depth_m", float),
+            resistivity=MappingProxyType({
+                k: tuple((b[0], b[1]) for b in _bands(by_inst.take(k, list), 2,
+                                                      "soil resistivity factors", file))
+                for k in list(by_inst.data)}),
+            depth=tuple((b[0], b[1]) for b in _bands(so.take("depth", list), 2,
+                                                     "depth factors", file)),
+            source=so.take("source", str))
+        by_inst.finish()
+        so.finish()
+        sources["soil"] = soil.source
+
+    raceway = None
+    if (rw := top.optional_sub("raceway")) is not None:
+        raceway = _read_raceway(rw, here, sizes, file)
+        sources["raceway"] = raceway.source
 
     ms = top.sub("motor_start")
     dip = ms.take("max_dip_pct", float)
@@ -600,7 +663,9 @@ def read_profile(path: str | Path) -> RuleProfile:
         egc_phase_bands=tuple((b[0], b[1], b[2]) for b in phase_bands),
         min_parallel_size=min_parallel, default_clearing_time_s=clearing,
         short_circuit_final_c=tuple((b[0], b[1]) for b in finals),
-        motor_start_dip_pct=dip, continuous_after_adjustment=continuous_after, **extra,
+        motor_start_dip_pct=dip, continuous_after_adjustment=continuous_after,
+        terminals=terminals, raceway=raceway, min_parallel_overridable=overridable, soil=soil,
+        **extra,
     )
 
 
@@ -657,6 +722,57 @@ def _read_circuit_rules(top: _Section, here: Path, sizes: tuple[str, ...], area:
         sources["neutral_counting"] = neu.take("source", str)
         neu.finish()
     return out
+
+
+def with_terminal_table(profile: RuleProfile, path: str | Path) -> RuleProfile:
+    """The profile with its terminal ranges replaced by a table file.
+
+    The file has the columns of the profile's own table (e.g. one beside a price list);
+    the oversize practice stays the profile's.
+    """
+    header, rows, source = _read_csv(Path(path))
+    oversize = profile.terminals.oversize if profile.terminals is not None else "splice"
+    table = read_terminal_table(header, rows, {sz: i for i, sz in enumerate(profile.sizes)},
+                                oversize, f"{Path(path).name}: {source}", str(path))
+    return dataclasses.replace(profile, terminals=table)
+
+
+def _read_raceway(rw: _Section, here: Path, sizes: tuple[str, ...], file: str) -> RacewayRules:
+    """The ``[raceway]`` section and the raceway and conductor tables it names."""
+    header, rows, race_source = _read_csv(here / rw.take("raceways", str))
+    types = read_raceway_types(header, rows, str(here / "raceways"))
+    c_header, c_rows, cond_source = _read_csv(here / rw.take("conductors", str))
+    insulation = rw.sub("insulation")
+    lookup = {sz: i for i, sz in enumerate(sizes)}
+    areas: dict[str, np.ndarray] = {
+        m: read_conductor_areas(c_header, c_rows, lookup, insulation.take(m, str), file)
+        for m in MATERIALS}
+    insulation.finish()
+    fill = _bands(rw.take("fill", list), 2, "raceway fill bands", file)
+    widths = rw.floats("tray_widths_mm")
+    trench = tuple(str(x) for x in rw.take("trench", list))
+    inch_labels = rw.take("inch_labels", bool)
+    kinds = rw.sub("types")
+    installation_type = {k: kinds.take(k, str) for k in list(kinds.data)}
+    kinds.finish()
+    source = rw.take("source", str)
+    rw.finish()
+    for inst, kind in installation_type.items():
+        if kind not in types and kind not in (TRAY, NONE, DIRECT):
+            raise ScenarioError(f"[raceway.types] {inst} = {kind!r} is not a raceway type of "
+                                f"the table ({', '.join(types)}), {TRAY!r} or {NONE!r}",
+                                file=file)
+    if set(installation_type) != set(INSTALLATIONS):
+        raise ScenarioError(f"[raceway.types] must map exactly the installations "
+                            f"{INSTALLATIONS}", file=file)
+    if not fill or fill[-1][0] != math.inf:
+        raise ScenarioError("raceway fill bands must end with inf", file=file)
+    return RacewayRules(
+        types=MappingProxyType(types), installation_type=MappingProxyType(installation_type),
+        conductor_area_mm2=MappingProxyType(areas),
+        fill=tuple((b[0], b[1]) for b in fill), tray_widths_mm=widths, trench=trench,
+        inch_labels=inch_labels,
+        source=f"{source}; raceways: {race_source}; conductors: {cond_source}")
 
 
 @cache

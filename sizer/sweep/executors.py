@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from sizer.catalogue.prices import PriceList
+from sizer.catalogue.prices import PriceList, RacewayPrices
 from sizer.errors import ScenarioError, SizerError
 from sizer.model import Design, DesignStatus, Scenario
 from sizer.optimize import Objective, Prepared, optimise, prepare
@@ -60,6 +60,11 @@ def _price_state(prices: PriceList) -> dict[str, Any]:
         "labour_per_m": {k: np.array(v) for k, v in prices.labour_per_m.items()},
         "metal_kg_per_m": {k: np.array(v) for k, v in prices.metal_kg_per_m.items()},
         "metal_per_kg": dict(prices.metal_per_kg),
+        "splice_each": {k: np.array(v) for k, v in prices.splice_each.items()},
+        "terminals_path": prices.terminals_path,
+        "raceways": (None if prices.raceways is None else
+                     (dict(prices.raceways.per_m), prices.raceways.trench_per_m,
+                      prices.raceways.source)),
     }
 
 
@@ -78,6 +83,11 @@ def _price_list(state: Mapping[str, Any]) -> PriceList:
         labour_per_m=frozen(state["labour_per_m"]),
         metal_kg_per_m=frozen(state["metal_kg_per_m"]),
         metal_per_kg=MappingProxyType(dict(state["metal_per_kg"])),
+        splice_each=frozen(state["splice_each"]),
+        terminals_path=state["terminals_path"],
+        raceways=(None if state["raceways"] is None else
+                  RacewayPrices(MappingProxyType(state["raceways"][0]), state["raceways"][1],
+                                state["raceways"][2])),
     )
 
 
