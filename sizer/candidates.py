@@ -19,6 +19,7 @@ from sizer.catalogue.prices import PriceList
 from sizer.conductors import impedance_ohm_per_m, operating_temperature_c
 from sizer.drop import drop_pct, transformer_regulation_pct
 from sizer.errors import ScenarioError
+from sizer.faults import pe_impedance_ohm
 from sizer.model import CandidateTable, Segment
 from sizer.rules.ampacity import ambient_factor, ampacity_a, grouping_factor, table_ampacity_a
 from sizer.rules.profile import RuleProfile
@@ -252,6 +253,8 @@ def build_candidates(
 
     r_ohm = r_m * length / sets
     x_ohm = x_m * length / sets
+    loop = _fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc,
+                           sets, length)
     loss_factor = np.where(sa.phases[seg] == 1, 2.0, 3.0)
     loss_w = loss_factor * current**2 * r_ohm
     loss_pv = loss_w * loss_pv_per_w
@@ -274,8 +277,38 @@ def build_candidates(
         capex=capex[idx],
         loss_pv=loss_pv[idx],
         egc_size_index=egc[idx],
+        loop_ohm=loop[idx],
     )
     return table, diagnosis
+
+
+def loop_temperature_c(profile: RuleProfile, insulation_c: np.ndarray) -> np.ndarray:
+    """Conductor temperature of the minimum fault loop (degC).
+
+    The insulation rating, or the final short-circuit temperature, as the profile's
+    ``[fault] loop_temperature`` says.
+    """
+    if profile.fault.loop_temperature == "end_of_fault":
+        return np.array([profile.final_temperature_c(float(t)) for t in insulation_c])
+    return np.asarray(insulation_c, dtype=float)
+
+
+def _fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc, sets,
+                    length) -> np.ndarray:
+    """Line + protective conductor impedance of every row at the fault-loop temperature."""
+    temp = loop_temperature_c(profile, sa.insulation_c)[seg]
+    loop = np.zeros(seg.shape[0], dtype=np.complex128)
+    imp_code = inst_code[seg] * 2 + mat
+    for code in np.unique(imp_code).tolist():
+        mask = imp_code == code
+        material, inst = MATERIALS[code % 2], inst_names[code // 2]
+        r, x = impedance_ohm_per_m(catalogue, material, size[mask], temp[mask], inst,
+                                   profile.frequency_hz)
+        loop[mask] = ((r + 1j * x) * length[mask] / sets[mask]
+                      + pe_impedance_ohm(catalogue, material, egc[mask], sets[mask],
+                                         length[mask], temp[mask], inst,
+                                         profile.frequency_hz))
+    return loop
 
 
 def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes):

@@ -293,6 +293,7 @@ class CandidateTable:
     capex: np.ndarray
     loss_pv: np.ndarray
     egc_size_index: np.ndarray
+    loop_ohm: np.ndarray        # complex: line + protective conductor at the fault-loop temp
     rejected: tuple[str, ...] = field(default=())
 
     def __len__(self) -> int:
@@ -326,7 +327,10 @@ class SegmentResult:
     phases: int
     pinned: bool = False
     loadflow_drop_pct: float | None = None
-    fault_ka: float | None = None
+    fault_ka: float | None = None        # maximum three-phase fault (c_max, R at 20 degC, motors)
+    fault_min_ka: float | None = None    # minimum three-phase fault (c_min, R hot, no motors)
+    earth_fault_a: float | None = None   # minimum line-to-earth fault at the cable's far end
+    trip_a: float | None = None          # current that disconnects the device in time
 
 
 @dataclass(frozen=True)

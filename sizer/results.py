@@ -16,12 +16,14 @@ from typing import TYPE_CHECKING, Any
 from sizer.model import Design, DesignStatus, Totals
 from sizer.optimize import Objective, Prepared
 from sizer.workflow import (
+    DisconnectionDriver,
     FrontierPoint,
     Option,
     Progress,
     Verification,
     check_verified,
     compare_options,
+    disconnection_drivers,
     frontier,
     frontier_designs,
     quiet,
@@ -53,6 +55,7 @@ class Results:
     frontier_points: tuple[FrontierPoint, ...] = ()
     notes: tuple[str, ...] = field(default=())
     frontier_designs: tuple[Design, ...] = ()
+    disconnection_drivers: tuple[DisconnectionDriver, ...] = ()
 
     @property
     def title(self) -> str:
@@ -120,10 +123,13 @@ def solve_results(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
                                               motor_start=motor_start)
     options: tuple[Option, ...] = ()
     points: tuple[FrontierPoint, ...] = ()
+    drivers: tuple[DisconnectionDriver, ...] = ()
     if compare and design.segments:
         options = tuple(compare_options(prep, engine=engine, solver=solver,
                                         time_limit_s=time_limit_s, progress=progress,
                                         solved=[design]))
+        progress("runs sized by disconnection rather than drop")
+        drivers = disconnection_drivers(prep, design)
     if frontier_points and design.segments:
         progress("frontier of upfront cost against losses")
         points = tuple(frontier(prep, frontier_points, engine=engine, solver=solver,
@@ -133,7 +139,8 @@ def solve_results(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
                                 progress=progress))
     progress("verifying the frontier's designs")
     designs = tuple(frontier_designs(prep, points))
-    return Results(prep, design, verification, options, points, frontier_designs=designs)
+    return Results(prep, design, verification, options, points, frontier_designs=designs,
+                   disconnection_drivers=drivers)
 
 
 def check_results(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",

@@ -7,7 +7,8 @@ from sizer.optimize import Objective, motor_start_terms, prepare
 from sizer.scenario import load_scenario
 from sizer.workflow import solve_verified
 
-# A 200 kW across-the-line start (12 × running kVA at pf 0.2) at the end of 1000 ft.
+# A 200 kW across-the-line start (14 × running kVA at pf 0.2) at the end of 1000 ft: at
+# 12 × the conductors the earth-fault loop needs already keep the dip within 15 %.
 LONG_MOTOR_RUN = """
 [[node]]
 id = "MCC"
@@ -19,7 +20,7 @@ ocpd = "800 A"
 id = "PUMP"
 parent = "MCC"
 length = "{length} ft"
-motor = {{ kw = 200, start_multiple = 12, start_pf = 0.2 }}
+motor = {{ kw = 200, start_multiple = 14, start_pf = 0.2 }}
 power_factor = 0.85
 """
 
@@ -40,7 +41,9 @@ def test_code_minimum_dips_too_far_and_the_constraint_fixes_it(prep):
     assert _dip(plain, ver) > limit
     assert any(v.rule == "motor-start dip" for v in plain.violations)
     held, ver2 = solve_verified(prep, Objective.CAPEX, motor_start=True)
-    assert held.status == "optimal" and held.engine.startswith("milp")
+    assert held.status == "optimal" and held.engine == "tree"  # a path constraint
+    milp, _ = solve_verified(prep, Objective.CAPEX, motor_start=True, engine="milp")
+    assert milp.totals.capex == pytest.approx(held.totals.capex, rel=1e-9)
     # The linear estimate charges the starting current at nominal voltage through every
     # segment; the load flow's constant-impedance locked rotor draws less as the voltage
     # sags, so the real dip stays inside the limit the optimiser enforced.

@@ -71,6 +71,15 @@
         else if (k === "p") { node = flag(h(p.est[i]), run.lim[1]); }
         else if (k === "l") { node = flag(h(p.lf[i]), run.lim[1]); }
         else if (k === "f") { node = document.createTextNode(fixed(h(p.fk[i]), 1)); }
+        else if (k === "g") {
+          var ef = p.ef ? p.ef[i] : null;
+          var text = ef === null || run.trip === null ? "" : money(ef) + " / " + money(run.trip);
+          if (ef !== null && run.trip !== null && ef < run.trip) {
+            node = document.createElement("strong");
+            node.className = "over";
+            node.textContent = text;
+          } else { node = document.createTextNode(text); }
+        }
         else if (k === "x") { node = document.createTextNode(money(a[4])); }
         else if (k === "w") { node = document.createTextNode(fixed(a[5], 2)); }
         else if (k === "q") { node = document.createTextNode(money(a[6])); }

@@ -18,7 +18,7 @@ from dataclasses import dataclass
 from sizer.economics import EconomicParams, npv, q_factor, simple_payback_years
 from sizer.model import Design, SegmentResult
 from sizer.units import conductor_label
-from sizer.workflow import FrontierPoint, Option
+from sizer.workflow import DisconnectionDriver, FrontierPoint, Option
 
 # --- labels ---------------------------------------------------------------------------
 
@@ -280,6 +280,8 @@ class ScheduleRow:
     path_vd_pct: float            # source to far end, estimate
     loadflow_drop_pct: float | None
     fault_ka: float | None
+    earth_fault_a: float | None
+    trip_a: float | None
     capex: float
     loss_kw: float
     loss_pv: float
@@ -298,10 +300,20 @@ def schedule_table(design: Design,
             sets=s.sets, conductor=segment_conductor(s), egc=s.egc, ampacity_a=s.ampacity_a,
             utilisation_pct=100.0 * s.current_a / s.ampacity_a if s.ampacity_a > 0 else math.nan,
             vd_pct=s.vd_pct, path_vd_pct=s.path_vd_pct, loadflow_drop_pct=s.loadflow_drop_pct,
-            fault_ka=s.fault_ka, capex=s.capex, loss_kw=s.loss_kw, loss_pv=s.loss_pv,
+            fault_ka=s.fault_ka, earth_fault_a=s.earth_fault_a, trip_a=s.trip_a,
+            capex=s.capex, loss_kw=s.loss_kw, loss_pv=s.loss_pv,
             pinned=s.pinned,
         )
         for s in design.segments)
+
+
+def disconnection_sentence(driver: DisconnectionDriver) -> str:
+    """Why one run is larger than drop alone asks: its device must still disconnect."""
+    d = driver
+    return (f"{d.segment}: {d.chosen} instead of the {d.without} that drop and ampacity "
+            f"alone allow, so that the minimum earth fault at its far end "
+            f"({d.earth_fault_a:,.0f} A) reaches the {d.trip_a:,.0f} A that disconnects its "
+            f"{d.ocpd_a:g} A device within {d.time_s:g} s.")
 
 
 # --- voltage profile along the worst path -------------------------------------------------

@@ -47,6 +47,43 @@ class TerminalRule:
     source: str
 
 
+@dataclass(frozen=True)
+class FaultRule:
+    """Fault levels and disconnection: IEC 60909 voltage factors, motors, trip currents.
+
+    ``c_max``/``c_min``: voltage factors for the maximum and minimum short-circuit
+    current (IEC 60909-0 Table 1). ``motor_multiple``: locked-rotor current of a running
+    induction motor over its rated current (its contribution to a three-phase fault);
+    ``motor_r_x``: its R/X. ``device``: the overcurrent device assumed where a node names
+    none, rated up to ``small_device_max_a``; ``large_device`` above; ``trip_multiple``:
+    current (x In) that disconnects a breaker in time when the node gives no curve.
+    Fuses: ``fuse_multiple_final`` (x In for ``final_time_s``) and
+    ``fuse_multiple_distribution`` (x In for ``distribution_time_s``). A final circuit is
+    one fed at most ``final_circuit_max_a``. ``loop_temperature``: conductor temperature
+    of the minimum fault loop, "operating" (the insulation's rating) or "end_of_fault".
+    """
+
+    c_max: float
+    c_min: float
+    motor_multiple: float
+    motor_r_x: float
+    device: str
+    small_device_max_a: float
+    large_device: str
+    trip_multiple: float
+    fuse_multiple_final: float
+    fuse_multiple_distribution: float
+    final_circuit_max_a: float
+    final_time_s: float
+    distribution_time_s: float
+    loop_temperature: str
+    source: str
+
+
+DEVICES: tuple[str, ...] = ("B", "C", "D", "breaker", "fuse")
+LOOP_TEMPERATURES: tuple[str, ...] = ("operating", "end_of_fault")
+
+
 @dataclass(frozen=True, eq=False)
 class RuleProfile:
     """An electrical code's sizing rules; every value comes from the profile's TOML and CSVs.
@@ -103,6 +140,7 @@ class RuleProfile:
     default_clearing_time_s: float
     short_circuit_final_c: tuple[tuple[float, float], ...]  # (insulation rating, final temp)
     motor_start_dip_pct: float
+    fault: FaultRule
     _size_lookup: Mapping[str, int] = field(init=False, repr=False)
 
     def __post_init__(self) -> None:
@@ -279,6 +317,21 @@ def _problems(p: RuleProfile) -> list[str]:
             out.append(f"insulation {t:g} degC needs a short-circuit final temperature above it")
     if not 0 < p.motor_start_dip_pct < 100:
         out.append("motor_start_dip_pct must be in (0, 100)")
+    f = p.fault
+    if not 0.8 <= f.c_min <= 1.0 <= f.c_max <= 1.2:
+        out.append("[fault] needs 0.8 <= c_min <= 1 <= c_max <= 1.2")
+    if not (f.motor_multiple >= 0 and f.motor_r_x >= 0):
+        out.append("[fault] motor_multiple and motor_r_x must be >= 0")
+    if f.device not in DEVICES or f.large_device not in DEVICES:
+        out.append(f"[fault] device and large_device must be one of {', '.join(DEVICES)}")
+    if f.loop_temperature not in LOOP_TEMPERATURES:
+        out.append(f"[fault] loop_temperature must be one of {', '.join(LOOP_TEMPERATURES)}")
+    if not all(m >= 1 for m in (f.trip_multiple, f.fuse_multiple_final,
+                                f.fuse_multiple_distribution)):
+        out.append("[fault] trip multiples must be >= 1")
+    if not (f.final_circuit_max_a > 0 and 0 < f.final_time_s <= f.distribution_time_s):
+        out.append("[fault] needs final_circuit_max_a > 0 and 0 < final_time_s <= "
+                   "distribution_time_s")
     return out
 
 
@@ -556,6 +609,24 @@ def read_profile(path: str | Path) -> RuleProfile:
     dip = ms.take("max_dip_pct", float)
     sources["motor_start"] = ms.take("source", str)
     ms.finish()
+
+    fl = top.sub("fault")
+    fault = FaultRule(
+        c_max=fl.take("c_max", float), c_min=fl.take("c_min", float),
+        motor_multiple=fl.take("motor_multiple", float),
+        motor_r_x=fl.take("motor_r_x", float), device=fl.take("device", str),
+        small_device_max_a=fl.take("small_device_max_a", float),
+        large_device=fl.take("large_device", str),
+        trip_multiple=fl.take("trip_multiple", float),
+        fuse_multiple_final=fl.take("fuse_multiple_final", float),
+        fuse_multiple_distribution=fl.take("fuse_multiple_distribution", float),
+        final_circuit_max_a=fl.take("final_circuit_max_a", float),
+        final_time_s=fl.take("final_time_s", float),
+        distribution_time_s=fl.take("distribution_time_s", float),
+        loop_temperature=fl.take("loop_temperature", str),
+        source=fl.take("source", str))
+    sources["fault"] = fault.source
+    fl.finish()
     top.finish()
 
     area.flags.writeable = False
@@ -580,7 +651,7 @@ def read_profile(path: str | Path) -> RuleProfile:
         egc_phase_bands=tuple((b[0], b[1], b[2]) for b in phase_bands),
         min_parallel_size=min_parallel, default_clearing_time_s=clearing,
         short_circuit_final_c=tuple((b[0], b[1]) for b in finals),
-        motor_start_dip_pct=dip,
+        motor_start_dip_pct=dip, fault=fault,
     )
 
 
