@@ -226,6 +226,15 @@ FIELDS: tuple[Field, ...] = (
     _F("node", "max_sets", "most parallel sets the optimiser may use", r.read_sets,
        default=4, bounds=f"1 to {MAX_SETS}", attr="max_sets", also_defaults=True,
        example="4"),
+    _F("node", "device", "the run's overcurrent device, for the disconnection rule: B, C "
+       "or D (miniature breaker curve), breaker (moulded case) or fuse", r.auto(r.read_device),
+       default_text="auto: the profile's", bounds=" | ".join(r.DEVICE_WORDS) + ', or "auto"',
+       attr="device", also_defaults=True, example='"C"'),
+    _F("node", "trip_multiple", "current that disconnects the device within the required "
+       "time, × its rating (from its curve; replaces the device's default)",
+       r.auto(r.read_trip_multiple), default_text="auto: by the device",
+       bounds=f'1 to {r.MAX_TRIP_MULTIPLE:g}, or "auto"', attr="trip_multiple",
+       also_defaults=True, example="5"),
     _F("node", "transformer", "the node is a transformer: a table of the keys below",
        attr="transformer", subtable=True, example='{ rating = "75 kVA", ... }'),
     _F("node", "motor", "the node's load is a motor: a table of the keys below",

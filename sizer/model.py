@@ -193,6 +193,8 @@ class Node:
     motor: Motor | None = None
     clearing_time_s: float | None = None
     neutral: bool | None = None   # None: decided from the loads below (see loads.py)
+    device: str | None = None     # overcurrent device for disconnection (None: profile's)
+    trip_multiple: float | None = None  # × rating that disconnects in time (None: device's)
     description: str = ""         # free text from the scenario, shown in reports
 
     def __post_init__(self) -> None:

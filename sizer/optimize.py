@@ -182,8 +182,8 @@ def earth_fault_terms(scenario: Scenario, segments: tuple[Segment, ...],
     src = scenario.source
     n = len(segments)
     u0 = earth_voltages_v(scenario, segments)
-    trip = np.array([trip_current_a(default_device(seg.ocpd_a, rule), seg.ocpd_a, seg.is_leaf,
-                                    rule)
+    trip = np.array([trip_current_a(seg.node.device or default_device(seg.ocpd_a, rule),
+                                    seg.ocpd_a, seg.is_leaf, rule, seg.node.trip_multiple)
                      for seg in segments])
     src_u0 = src.voltage_v / (math.sqrt(3.0) if src.phases == 3 else 2.0)
     z_src = source_loop_ohm(src.fault_current_a, src.voltage_v, src.phases, src.x_r,

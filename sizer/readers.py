@@ -269,6 +269,31 @@ def read_materials(value: Any, text: bool = False) -> tuple[str, ...]:
     return materials
 
 
+DEVICE_WORDS = ("B", "C", "D", "breaker", "fuse")
+"""Overcurrent devices for the disconnection rule: miniature breakers by IEC 60898-1
+curve, a moulded-case breaker, a fuse (sizer.rules.profile.DEVICES)."""
+MAX_TRIP_MULTIPLE = 50.0
+
+
+def read_device(value: Any, text: bool = False) -> str:
+    """The run's overcurrent device: B, C, D (miniature breaker curves), breaker, fuse."""
+    word = read_text(value)
+    for known in DEVICE_WORDS:
+        if word.lower() == known.lower():
+            return known
+    raise ScenarioError(f"unknown device {word!r}{suggest(word, DEVICE_WORDS)} "
+                        f"(use {', '.join(DEVICE_WORDS)}, or \"auto\")")
+
+
+def read_trip_multiple(value: Any, text: bool = False) -> float:
+    """Current that disconnects the device in time, as a multiple of its rating."""
+    x = read_number(value, text)
+    if not 1 <= x <= MAX_TRIP_MULTIPLE:
+        raise ScenarioError(f"must be from 1 to {MAX_TRIP_MULTIPLE:g} (× the device "
+                            f"rating), got {show(value)}")
+    return x
+
+
 def read_installation(value: Any, text: bool = False) -> str:
     """An installation word the conductor catalogue knows."""
     from sizer.catalogue import installation

@@ -692,6 +692,8 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 pin=v.get("conductor"), transformer=v.get("transformer"), motor=motor,
                 clearing_time_s=v.get("clearing_time", defaults["clearing_time"]),
                 neutral=v.get("neutral"), description=v.get("description", ""),
+                device=v.get("device", defaults["device"]),
+                trip_multiple=v.get("trip_multiple", defaults["trip_multiple"]),
             ))
         except ScenarioError as exc:
             report.add_error(exc, node=d.id, file=d.file)
@@ -724,6 +726,8 @@ def _schedule_row(n: Node) -> dict[str, str]:
         "neutral": "" if n.neutral is None else ("true" if n.neutral else "false"),
         "clearing_time": ("auto" if n.clearing_time_s is None
                           else f"{_num(n.clearing_time_s)} s"),
+        "device": n.device or "auto",
+        "trip_multiple": "auto" if n.trip_multiple is None else _num(n.trip_multiple),
         "materials": ", ".join(c.materials),
         "insulation": f"{_num(c.insulation_c)} degC",
         "terminals": "auto" if c.terminals_c is None else f"{_num(c.terminals_c)} degC",

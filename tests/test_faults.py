@@ -258,3 +258,34 @@ def test_the_campus_report_names_the_run_sized_by_disconnection():
     assert street.earth_fault_a >= street.trip_a
     sentence = disconnection_sentence(street)
     assert "STREET-LTG" in sentence and "160 A" in sentence and "0.4 s" in sentence
+
+
+def test_a_curve_b_breaker_trips_lower_and_needs_less_copper(tmp_path):
+    # IEC 60898-1: type B disconnects at 5 x In, type C at 10 x; on the long final
+    # circuit the lower trip current lets a smaller conductor meet disconnection.
+    c_type = _iec_tree(tmp_path, 60, 150)
+    path = Path(c_type.scenario.file)
+    path.write_text(path.read_text().replace('ocpd = "20 A"', 'ocpd = "20 A"\ndevice = "B"'))
+    b_type = prepare(load_scenario(path))
+    assert c_type.earth.trip_a[1] == 200.0 and b_type.earth.trip_a[1] == 100.0
+    cost_c = optimise(c_type, Objective.LIFECYCLE).totals.lifecycle
+    cost_b = optimise(b_type, Objective.LIFECYCLE).totals.lifecycle
+    assert cost_b < cost_c
+    path.write_text(path.read_text().replace('device = "B"', 'device = "fuse"\n'
+                                             'trip_multiple = 4'))
+    assert prepare(load_scenario(path)).earth.trip_a[1] == 80.0  # the given multiple wins
+
+
+@pytest.mark.parametrize(("line", "message"), [
+    ('device = "K"', "unknown device 'K'"),
+    ("trip_multiple = 0.5", "must be from 1 to 50"),
+])
+def test_bad_device_fields_give_one_line_and_exit_2(tmp_path, capsys, line, message):
+    path = write_scenario(tmp_path, LONG_FINAL.format(feeder=60, branch=150).replace(
+        'ocpd = "20 A"', f'ocpd = "20 A"\n{line}'), rules="iec", currency="EUR",
+        energy_price="0.2 EUR/kWh", voltage="400 V")
+    path.write_text(path.read_text().replace('terminals = "75 degC"\n', ""))
+    assert main(["solve", str(path), "--json", str(tmp_path / "o.json")]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "node 'FAR'" in err[0] and message in err[0]
+    assert not (tmp_path / "o.json").exists()
