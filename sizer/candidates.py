@@ -10,13 +10,17 @@ the only Python loops run over the few distinct (material, settings) groups.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, fields, replace
 
 import numpy as np
 
 from sizer.catalogue import Catalogue
 from sizer.catalogue.prices import PriceList
-from sizer.conductors import impedance_ohm_per_m, operating_temperature_c
+from sizer.conductors import (
+    adiabatic_withstand_a,
+    impedance_ohm_per_m,
+    operating_temperature_c,
+)
 from sizer.drop import drop_pct, transformer_regulation_pct
 from sizer.errors import ScenarioError
 from sizer.faults import pe_impedance_ohm
@@ -280,6 +284,49 @@ def build_candidates(
         loop_ohm=loop[idx],
     )
     return table, diagnosis
+
+
+def withstand_family(seg: Segment, prices: PriceList, material: str) -> str | None:
+    """Insulation family of a run's conductors, or None (the profile decides by rating).
+
+    The node's ``insulation_type``, else the price list's product line for the metal.
+    """
+    return seg.node.insulation_type or prices.insulation_type.get(material)
+
+
+def withstand_i2t_a2s(profile: RuleProfile, catalogue: Catalogue, prices: PriceList,
+                      segments: tuple[Segment, ...], table: CandidateTable,
+                      rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Adiabatic I²t (A²s) each row's parallel sets withstand, and the final temperature.
+
+    IEC 60949: I²t = K² S² ln((θf + β)/(θi + β)), θi the insulation rating (the
+    conductor may be at it when the fault starts), θf by the insulation family
+    (``RuleProfile.withstand_final_c``); sets share the fault current, so the sets'
+    I²t is sets² times one conductor's.
+    """
+    rows = np.asarray(rows, dtype=np.int64)
+    i2t = np.empty(rows.size)
+    final = np.empty(rows.size)
+    for k, r in enumerate(rows.tolist()):
+        seg = segments[int(table.segment[r])]
+        material = MATERIALS[int(table.material[r])]
+        ins = seg.node.cable.insulation_c
+        final[k] = profile.withstand_final_c(ins, withstand_family(seg, prices, material))
+        one_s = float(adiabatic_withstand_a(catalogue.area_mm2[int(table.size_index[r])], 1.0,
+                                            material, ins, final[k]))
+        i2t[k] = (one_s * int(table.sets[r])) ** 2
+    return i2t, final
+
+
+def take_rows(table: CandidateTable, keep: np.ndarray) -> CandidateTable:
+    """The table with only the rows where ``keep`` is True (offsets rebuilt)."""
+    idx = np.flatnonzero(keep)
+    n = table.offsets.size - 1
+    counts = np.bincount(table.segment[idx], minlength=n)
+    offsets = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+    arrays = {f.name: getattr(table, f.name)[idx] for f in fields(table)
+              if isinstance(getattr(table, f.name), np.ndarray) and f.name != "offsets"}
+    return replace(table, offsets=offsets, **arrays)
 
 
 def loop_temperature_c(profile: RuleProfile, insulation_c: np.ndarray) -> np.ndarray:

@@ -235,6 +235,19 @@ FIELDS: tuple[Field, ...] = (
        r.auto(r.read_trip_multiple), default_text="auto: by the device",
        bounds=f'1 to {r.MAX_TRIP_MULTIPLE:g}, or "auto"', attr="trip_multiple",
        also_defaults=True, example="5"),
+    _F("node", "insulation_type", "insulation family for the short-circuit withstand: "
+       "thermoplastic (PVC, THHN style) or thermoset (XLPE, EPR, XHHW-2 style)",
+       r.auto(r.read_insulation_type), default_text="auto: the price list's product line, "
+       "else by the insulation rating", bounds='thermoplastic | thermoset, or "auto"',
+       attr="insulation_type", also_defaults=True, example='"thermoplastic"'),
+    _F("node", "let_through", "the device's let-through energy I²t (current-limiting "
+       "devices); replaces I² × clearing time in the withstand check", r.read_let_through,
+       unit="A²s", default_text="none: I² × clearing_time", bounds="above 0",
+       attr="let_through_a2s", also_defaults=True, example='"50000 A2s"'),
+    _F("node", "withstand", "short-circuit withstand: a finding in the results, or "
+       "enforced (conductors that fail it are not offered)", r.read_withstand,
+       default="finding", bounds="finding | enforce", attr="withstand", also_defaults=True,
+       example='"enforce"'),
     _F("node", "transformer", "the node is a transformer: a table of the keys below",
        attr="transformer", subtable=True, example='{ rating = "75 kVA", ... }'),
     _F("node", "motor", "the node's load is a motor: a table of the keys below",

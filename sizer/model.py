@@ -195,6 +195,9 @@ class Node:
     neutral: bool | None = None   # None: decided from the loads below (see loads.py)
     device: str | None = None     # overcurrent device for disconnection (None: profile's)
     trip_multiple: float | None = None  # × rating that disconnects in time (None: device's)
+    insulation_type: str | None = None  # thermoplastic | thermoset (None: price list / rating)
+    let_through_a2s: float | None = None  # device let-through I²t (None: I² × clearing time)
+    withstand: str = "finding"          # finding | enforce
     description: str = ""         # free text from the scenario, shown in reports
 
     def __post_init__(self) -> None:

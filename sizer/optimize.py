@@ -19,7 +19,9 @@ from sizer.candidates import (
     MATERIALS,
     LocalDiagnosis,
     build_candidates,
+    take_rows,
     transformer_drops_pct,
+    withstand_i2t_a2s,
 )
 from sizer.catalogue import Catalogue, load_catalogue
 from sizer.catalogue.prices import PriceList, load_price_list, resolve_price_list
@@ -69,6 +71,7 @@ class Prepared:
     topology: Topology
     leaf_limit_pct: np.ndarray
     earth: EarthFaultTerms
+    withstand_removed: np.ndarray   # rows per segment removed by withstand = "enforce"
 
     @property
     def parent(self) -> np.ndarray:
@@ -142,9 +145,72 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
     )
     topology = Topology(np.array([s.parent_index for s in segments], dtype=np.int64))
     limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)
+    removed = np.zeros(len(segments), dtype=np.int64)
+    if any(seg.node.withstand == "enforce" for seg in segments):
+        table, removed = enforce_withstand(scenario, segments, profile, catalogue,
+                                           price_list, table, keep_pins=keep_pins)
     return Prepared(scenario, profile, catalogue, price_list, econ, segments, table, local,
                     transformer_drops_pct(segments), topology, limit,
-                    earth_fault_terms(scenario, segments, profile, topology.parent))
+                    earth_fault_terms(scenario, segments, profile, topology.parent), removed)
+
+
+def near_fault_bound_a(scenario: Scenario, segments: tuple[Segment, ...],
+                       profile: RuleProfile) -> np.ndarray:
+    """A three-phase fault current no run's near end can exceed, whatever is chosen (A).
+
+    The source's level (or, below a transformer, the transformer's own level on an
+    infinite primary, S/(√3·V·z)) plus the locked-rotor current of every running motor
+    of the tree as if all were at that bus: cables only lower it, so the bound is
+    conservative and needs no choice. Infinite where the source level is not given.
+    """
+    rule = profile.fault
+    motors_va = sum(
+        rule.motor_multiple * (abs(seg.own_load_va) or seg.node.motor.power_w
+                               / max(seg.power_factor, 1e-6))
+        for seg in segments if seg.node.motor is not None and seg.phases == 3)
+    src = scenario.source
+    src_a = math.inf if src.fault_current_a is None else src.fault_current_a
+    bus = [0.0] * len(segments)
+    out = np.empty(len(segments))
+    for i, seg in enumerate(segments):
+        p = seg.parent_index
+        feed = src_a + motors_va / (math.sqrt(3.0) * src.voltage_v) if p < 0 else bus[p]
+        out[i] = feed
+        tx = seg.node.transformer
+        if tx is not None:
+            bus[i] = (tx.rating_va / (math.sqrt(3.0) * tx.secondary_v * tx.impedance_pct / 100)
+                      + motors_va / (math.sqrt(3.0) * tx.secondary_v))
+        else:
+            bus[i] = feed * (1.0 if seg.phases == 3 else math.sqrt(3.0))  # L-N: √3 I at U0
+    return out
+
+
+def enforce_withstand(scenario: Scenario, segments: tuple[Segment, ...],
+                      profile: RuleProfile, catalogue: Catalogue, prices: PriceList,
+                      table: CandidateTable, *, keep_pins: bool = False
+                      ) -> tuple[CandidateTable, np.ndarray]:
+    """Drop the rows of ``withstand = "enforce"`` runs that fail the adiabatic withstand.
+
+    Segment-local: each row's I²t (``withstand_i2t_a2s``) against the device's
+    let-through, or against ``near_fault_bound_a``² × clearing time. Returns the table
+    and the rows removed per segment.
+    """
+    bound = near_fault_bound_a(scenario, segments, profile)
+    seg_of = table.segment
+    enforce = np.array([s.node.withstand == "enforce" for s in segments])[seg_of]
+    rows = np.flatnonzero(enforce)
+    i2t, _ = withstand_i2t_a2s(profile, catalogue, prices, segments, table, rows)
+    need = np.array([
+        s.node.let_through_a2s if s.node.let_through_a2s is not None
+        else bound[i] ** 2 * (s.node.clearing_time_s or profile.default_clearing_time_s)
+        for i, s in enumerate(segments)])[seg_of[rows]]
+    keep = np.ones(len(table), dtype=bool)
+    keep[rows] = ~(i2t < need)  # an infinite need (no source level) is never met
+    if keep_pins:
+        pinned = np.array([s.node.pin is not None for s in segments])[seg_of]
+        keep |= pinned
+    removed = np.bincount(seg_of[~keep], minlength=len(segments))
+    return take_rows(table, keep), removed
 
 
 def earth_voltages_v(scenario: Scenario, segments: tuple[Segment, ...]) -> np.ndarray:
@@ -380,7 +446,13 @@ def diagnose(prep: Prepared, limit_pct: np.ndarray | None = None) -> list[str]:
         if t.offsets[s + 1] > t.offsets[s]:
             continue
         cable = seg.node.cable
-        if local.pinned_fails[s]:
+        if prep.withstand_removed[s]:
+            lines.append(
+                f"segment '{seg.id}': no allowed conductor withstands the short circuit "
+                f"(withstand = \"enforce\"); fix: a current-limiting device (give its "
+                f"let_through), a shorter clearing_time, more parallel sets (max_sets), or "
+                f"thermoset insulation (insulation_type)")
+        elif local.pinned_fails[s]:
             lines.append(f"segment '{seg.id}': the pinned conductor {seg.node.pin} breaks the "
                          f"{local.pinned_fails[s]} rule; unpin it or pin a larger one")
         elif not math.isfinite(local.best_drop_pct[s]):

@@ -694,6 +694,9 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 neutral=v.get("neutral"), description=v.get("description", ""),
                 device=v.get("device", defaults["device"]),
                 trip_multiple=v.get("trip_multiple", defaults["trip_multiple"]),
+                insulation_type=v.get("insulation_type", defaults["insulation_type"]),
+                let_through_a2s=v.get("let_through", defaults["let_through"]),
+                withstand=v.get("withstand", defaults["withstand"]),
             ))
         except ScenarioError as exc:
             report.add_error(exc, node=d.id, file=d.file)
@@ -728,6 +731,9 @@ def _schedule_row(n: Node) -> dict[str, str]:
                           else f"{_num(n.clearing_time_s)} s"),
         "device": n.device or "auto",
         "trip_multiple": "auto" if n.trip_multiple is None else _num(n.trip_multiple),
+        "insulation_type": n.insulation_type or "auto",
+        "let_through": "" if n.let_through_a2s is None else f"{_num(n.let_through_a2s)} A2s",
+        "withstand": n.withstand,
         "materials": ", ".join(c.materials),
         "insulation": f"{_num(c.insulation_c)} degC",
         "terminals": "auto" if c.terminals_c is None else f"{_num(c.terminals_c)} degC",

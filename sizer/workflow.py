@@ -13,8 +13,13 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from sizer.candidates import MATERIALS, loop_temperature_c
-from sizer.conductors import adiabatic_withstand_a, impedance_ohm_per_m
+from sizer.candidates import (
+    MATERIALS,
+    loop_temperature_c,
+    withstand_family,
+    withstand_i2t_a2s,
+)
+from sizer.conductors import impedance_ohm_per_m
 from sizer.engines import solve
 from sizer.engines.problem import path_totals
 from sizer.errors import InternalError
@@ -309,30 +314,41 @@ def disconnection_findings(prep: Prepared, earth_a: np.ndarray, trip_a: np.ndarr
 
 
 def _withstand_findings(prep: Prepared, choice: np.ndarray, near_a: np.ndarray):
-    t = prep.table
+    """Runs whose conductors would pass their final temperature in a fault at the near end.
+
+    Adiabatic I²t of the chosen sets (IEC 60949, final temperature by insulation family,
+    ``withstand_i2t_a2s``) against the device's let-through I²t when the node gives one,
+    else against I² × clearing time with I the maximum fault at the run's near end.
+    """
     p = prep.profile
-    final = dict(p.short_circuit_final_c)
+    rows = np.asarray(choice, dtype=np.int64)
+    i2t, final = withstand_i2t_a2s(p, prep.catalogue, prep.prices, prep.segments,
+                                   prep.table, rows)
     for i, seg in enumerate(prep.segments):
-        r = int(choice[i])
+        ins = seg.node.cable.insulation_c
+        family = withstand_family(seg, prep.prices, MATERIALS[int(prep.table.material[rows[i]])])
+        kind = f"{family}, " if family else ""
+        limits = f"{kind}{ins:g} → {final[i]:g} degC, IEC 60949"
+        let_through = seg.node.let_through_a2s
+        if let_through is not None:
+            if let_through > i2t[i]:
+                yield Violation(
+                    seg.id, "short-circuit withstand", let_through, float(i2t[i]),
+                    f"the device lets through {let_through:.3g} A²s, more than the "
+                    f"conductor's {i2t[i]:.3g} A²s ({limits}); fix: a device that lets "
+                    "through less, a larger conductor, or thermoset insulation")
+            continue
         if not math.isfinite(near_a[i]):
             continue
-        ins = seg.node.cable.insulation_c
-        final_c = final.get(ins, max(final.values()))
         time_s = seg.node.clearing_time_s or p.default_clearing_time_s
-        material = "Cu" if t.material[r] == 0 else "Al"
-        area = prep.catalogue.area_mm2[int(t.size_index[r])]
-        # Conservative: the conductor starts the fault at its rated temperature.
-        per_set = float(adiabatic_withstand_a(area, time_s, material, ins, final_c))
-        capacity = per_set * int(t.sets[r])
+        capacity = math.sqrt(i2t[i] / time_s)
         if capacity < near_a[i]:
-            # What the device must hold its let-through to: the adiabatic I²t of the sets.
-            allowed_i2t = capacity**2 * time_s
             yield Violation(
                 seg.id, "short-circuit withstand", near_a[i] / 1e3, capacity / 1e3,
                 f"{near_a[i] / 1e3:.1f} kA for {time_s:g} s exceeds the conductor's "
-                f"{capacity / 1e3:.1f} kA adiabatic limit ({ins:g} → {final_c:g} degC, "
-                f"IEC 60949); it needs a device letting through at most "
-                f"{allowed_i2t:.3g} A²s, a shorter clearing time, or a larger conductor")
+                f"{capacity / 1e3:.1f} kA adiabatic limit ({limits}); fix: a device "
+                f"letting through at most {i2t[i]:.3g} A²s (give its let_through), a "
+                "shorter clearing time, a larger conductor, or thermoset insulation")
 
 
 @dataclass(frozen=True)

@@ -13,8 +13,8 @@ from __future__ import annotations
 import csv
 import math
 import re
-from collections.abc import Mapping
-from dataclasses import dataclass, replace
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from types import MappingProxyType
 from typing import Protocol
@@ -65,6 +65,9 @@ class PriceList:
     labour_per_m: Mapping[str, FloatArray]
     metal_kg_per_m: Mapping[str, FloatArray]
     metal_per_kg: Mapping[str, float]
+    # insulation family of the product line by material ("thermoplastic" | "thermoset"),
+    # from the header's ``insulation_type``; a material not named is not stated
+    insulation_type: Mapping[str, str] = field(default_factory=lambda: MappingProxyType({}))
 
     def conductor(self, material: str) -> FloatArray:
         """Price of one conductor per metre over the catalogue's sizes."""
@@ -210,6 +213,7 @@ def load_price_list(
         return MappingProxyType(out)
 
     described = header.get("source", "")
+    families = _insulation_types(header.get("insulation_type"), fail)
     as_listed = PriceList(
         currency=currency,
         source=f"{Path(path).name}: {described}" if described else Path(path).name,
@@ -219,6 +223,7 @@ def load_price_list(
         labour_per_m=per_m(labour),
         metal_kg_per_m=per_m(metal_kg),
         metal_per_kg=MappingProxyType(metal_per_kg),
+        insulation_type=MappingProxyType(families),
     )
     new = {mat: value for mat, value in (("Cu", copper_per_kg), ("Al", aluminium_per_kg))
            if value is not None}
@@ -351,3 +356,26 @@ def resolve_price_list(text: str, scenario_dir: str | Path) -> Path:
         raise ScenarioError(f"price list {text!r} not found in {Path(scenario_dir)} "
                             f"nor among the bundled lists ({exc.message})",
                             field="catalogue") from None
+
+
+_FAMILIES = ("thermoplastic", "thermoset")
+
+
+def _insulation_types(text: str | None,
+                      fail: Callable[[str, str], ScenarioError]) -> dict[str, str]:
+    """``# insulation_type: thermoset`` or ``Cu thermoplastic, Al thermoset``."""
+    if text is None:
+        return {}
+    words = text.replace(",", " ").split()
+    if len(words) == 1 and words[0].lower() in _FAMILIES:
+        return {"Cu": words[0].lower(), "Al": words[0].lower()}
+    out: dict[str, str] = {}
+    if len(words) % 2 == 0:
+        for mat, fam in zip(words[::2], words[1::2], strict=True):
+            if mat not in ("Cu", "Al") or fam.lower() not in _FAMILIES:
+                break
+            out[mat] = fam.lower()
+        else:
+            return out
+    raise fail(f"insulation_type must be thermoplastic or thermoset, or per material like "
+               f"'Cu thermoplastic, Al thermoset'; got {text!r}", "insulation_type")

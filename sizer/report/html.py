@@ -714,10 +714,15 @@ class _Page:
                                                           sorted(counts.items())))
                        + ". Each needs a decision by the designer before the design is "
                        "used.</p>")
-            out.append(table(["Run", "Rule", "Value", "Limit", "What it means"],
-                             ([v.segment, v.rule, _with_unit(v.value, v.rule),
-                               _with_unit(v.limit, v.rule), v.message]
-                              for v in d.violations),
+            groups = tb.group_findings(d)
+            out.append(table(["Runs", "Rule", "Worst value", "Limit", "What it means"],
+                             ([Cell(g.title + ("" if len(g.segments) == 1 else
+                                               f" ({', '.join(g.segments)})")),
+                               g.rule, _with_unit(g.worst.value, g.rule),
+                               _with_unit(g.worst.limit, g.rule),
+                               (g.worst.message if len(g.segments) == 1 else
+                                f"worst at {g.worst.segment}: {g.worst.message}")]
+                              for g in groups),
                              numeric=[False, False, True, True, False]))
         else:
             out.append("<p>No findings from the checks run (ampacity, protection, drop, "

@@ -16,7 +16,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 from sizer.economics import EconomicParams, npv, q_factor, simple_payback_years
-from sizer.model import Design, SegmentResult
+from sizer.model import Design, SegmentResult, Violation
 from sizer.units import conductor_label
 from sizer.workflow import DisconnectionDriver, FrontierPoint, Option
 
@@ -305,6 +305,52 @@ def schedule_table(design: Design,
             pinned=s.pinned,
         )
         for s in design.segments)
+
+
+@dataclass(frozen=True)
+class FindingGroup:
+    """Findings of one rule on the runs fed from one board: one line, not one per run."""
+
+    rule: str
+    board: str                    # the parent the runs hang on
+    kind: str                     # "branch circuit" | "feeder" (the first run's kind)
+    segments: tuple[str, ...]
+    worst: Violation              # the finding furthest over its limit (what resolves it)
+
+    @property
+    def title(self) -> str:
+        """"12 branch circuits on HP-1" or the run's own name when it is alone."""
+        if len(self.segments) == 1:
+            return self.segments[0]
+        return f"{len(self.segments)} {self.kind}s on {self.board}"
+
+
+def group_findings(design: Design, min_group: int = 2) -> tuple[FindingGroup, ...]:
+    """Findings grouped by (rule, board): identical problems read as one line.
+
+    Groups keep the order of their first finding; a group of fewer than ``min_group``
+    runs stays one line per run. Each group shows its worst finding (largest value over
+    limit), whose message says what resolves it.
+    """
+    by_id = {s.id: s for s in design.segments}
+    groups: dict[tuple[str, str], list[Violation]] = {}
+    for v in design.violations:
+        seg = by_id.get(v.segment)
+        board = seg.parent if seg is not None else ""
+        groups.setdefault((v.rule, board), []).append(v)
+    out: list[FindingGroup] = []
+    for (rule, board), found in groups.items():
+        parts = [found] if len(found) >= min_group else [[v] for v in found]
+        for part in parts:
+            seg = by_id.get(part[0].segment)
+            kind = "branch circuit" if seg is None or seg.kind == "branch" else "feeder"
+
+            def excess(v: Violation) -> float:
+                return v.value / v.limit if v.limit else math.inf
+
+            out.append(FindingGroup(rule, board, kind, tuple(v.segment for v in part),
+                                    max(part, key=excess)))
+    return tuple(out)
 
 
 def disconnection_sentence(driver: DisconnectionDriver) -> str:

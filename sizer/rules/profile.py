@@ -81,6 +81,7 @@ class FaultRule:
 
 
 DEVICES: tuple[str, ...] = ("B", "C", "D", "breaker", "fuse")
+INSULATION_FAMILIES: tuple[str, ...] = ("thermoplastic", "thermoset")
 LOOP_TEMPERATURES: tuple[str, ...] = ("operating", "end_of_fault")
 
 
@@ -139,6 +140,8 @@ class RuleProfile:
     min_parallel_size: str | None            # None: no minimum
     default_clearing_time_s: float
     short_circuit_final_c: tuple[tuple[float, float], ...]  # (insulation rating, final temp)
+    # final short-circuit temperature by insulation family (thermoplastic, thermoset)
+    family_final_c: Mapping[str, float]
     motor_start_dip_pct: float
     fault: FaultRule
     _size_lookup: Mapping[str, int] = field(init=False, repr=False)
@@ -197,6 +200,16 @@ class RuleProfile:
             if math.isclose(rating, insulation_c):
                 return final
         raise ScenarioError(self._insulation_message(insulation_c))
+
+    def withstand_final_c(self, insulation_c: float, family: str | None) -> float:
+        """Final short-circuit temperature (degC) of an insulation family.
+
+        ``family`` "thermoplastic" or "thermoset" (the profile's value for it); None:
+        the profile's final temperature for the insulation rating (90 degC → thermoset).
+        """
+        if family is None:
+            return self.final_temperature_c(insulation_c)
+        return self.family_final_c[family]
 
     def check_insulation(self, insulation_c: float) -> float:
         """Return ``insulation_c`` if the profile allows it, else raise ScenarioError."""
@@ -602,6 +615,8 @@ def read_profile(path: str | Path) -> RuleProfile:
     sc = top.sub("short_circuit")
     clearing = sc.take("default_clearing_time_s", float)
     finals = _bands(sc.take("final_temperature_c", list), 2, "final temperatures", file)
+    family_final = {f: sc.take(f"{f}_final_c", float) for f in INSULATION_FAMILIES}
+    sources["insulation_family"] = sc.take("family_source", str)
     sources["short_circuit"] = sc.take("source", str)
     sc.finish()
 
@@ -651,6 +666,7 @@ def read_profile(path: str | Path) -> RuleProfile:
         egc_phase_bands=tuple((b[0], b[1], b[2]) for b in phase_bands),
         min_parallel_size=min_parallel, default_clearing_time_s=clearing,
         short_circuit_final_c=tuple((b[0], b[1]) for b in finals),
+        family_final_c=MappingProxyType(family_final),
         motor_start_dip_pct=dip, fault=fault,
     )
 

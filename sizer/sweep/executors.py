@@ -60,6 +60,7 @@ def _price_state(prices: PriceList) -> dict[str, Any]:
         "labour_per_m": {k: np.array(v) for k, v in prices.labour_per_m.items()},
         "metal_kg_per_m": {k: np.array(v) for k, v in prices.metal_kg_per_m.items()},
         "metal_per_kg": dict(prices.metal_per_kg),
+        "insulation_type": dict(prices.insulation_type),
     }
 
 
@@ -78,6 +79,7 @@ def _price_list(state: Mapping[str, Any]) -> PriceList:
         labour_per_m=frozen(state["labour_per_m"]),
         metal_kg_per_m=frozen(state["metal_kg_per_m"]),
         metal_per_kg=MappingProxyType(dict(state["metal_per_kg"])),
+        insulation_type=MappingProxyType(dict(state["insulation_type"])),
     )
 
 
