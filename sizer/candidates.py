@@ -23,13 +23,14 @@ from sizer.conductors import (
 )
 from sizer.drop import drop_pct, transformer_regulation_pct
 from sizer.errors import ScenarioError
-from sizer.faults import pe_impedance_ohm
+from sizer.faults import default_device, pe_impedance_ohm
 from sizer.model import CandidateTable, Segment
 from sizer.rules.ampacity import ambient_factor, ampacity_a, grouping_factor, table_ampacity_a
 from sizer.rules.profile import RuleProfile
 from sizer.rules.protection import (
     egc_size_index_of_sizes,
     min_parallel_ok,
+    overload_factor,
     protects,
     small_conductor_ok,
     terminal_temperature_c,
@@ -60,6 +61,7 @@ class SegmentArrays:
     pin_size: np.ndarray        # -1 none
     pin_sets: np.ndarray        # -1 none
     own_limit_pct: np.ndarray
+    overload_factor: np.ndarray  # share of Iz the device may be rated at (IEC 60364-4-43)
 
 
 def conductors_per_set(phases: np.ndarray, neutral: np.ndarray) -> np.ndarray:
@@ -128,6 +130,10 @@ def segment_arrays(
         pin_size=pin_k,
         pin_sets=pin_s,
         own_limit_pct=np.array([kind_limit[seg.kind] for seg in segments], dtype=float),
+        overload_factor=np.array([
+            overload_factor(profile, seg.node.device or default_device(seg.ocpd_a,
+                                                                        profile.fault),
+                            seg.ocpd_a) for seg in segments]),
     )
 
 
@@ -205,7 +211,8 @@ def build_candidates(
 
     valid = np.isfinite(ampacity) & (ampacity > 0)
     carries = valid & (ampacity >= sa.required_a[seg] - 1e-9)
-    protected = protects(profile, np.where(valid, ampacity, 0.0), ocpd)
+    protected = protects(profile, np.where(valid, ampacity, 0.0) * sa.overload_factor[seg],
+                         ocpd)
     small_ok = _by_material(mat, lambda m, mask: small_conductor_ok(
         profile, MATERIALS[m], size[mask], ocpd[mask]), dtype=bool)
     parallel_ok = min_parallel_ok(profile, size, sets)

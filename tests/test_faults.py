@@ -25,6 +25,7 @@ from sizer.faults import default_device, disconnection_time_s, trip_current_a, t
 from sizer.optimize import Objective, check, loop_pu_of_rows, optimise, prepare
 from sizer.report.tables import disconnection_sentence
 from sizer.rules import load_profile
+from sizer.rules.protection import overload_factor
 from sizer.scenario import load_scenario
 from sizer.workflow import disconnection_drivers, verify_design
 
@@ -289,3 +290,44 @@ def test_bad_device_fields_give_one_line_and_exit_2(tmp_path, capsys, line, mess
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "node 'FAR'" in err[0] and message in err[0]
     assert not (tmp_path / "o.json").exists()
+
+
+# --- overload coordination, IEC 60364-4-43 433.1 (from memory): I2 <= 1.45 Iz with
+# I2 = 1.45 In for breakers (IEC 60898-1 / 60947-2), 1.6 In for gG fuses from 16 A and
+# 1.9 In from 4 A to below 16 A (IEC 60269-2).
+
+
+@pytest.mark.parametrize(("profile", "device", "rating", "factor"), [
+    ("iec", "C", 32.0, 1.0),
+    ("iec", "breaker", 250.0, 1.0),
+    ("iec", "fuse", 32.0, 1.45 / 1.6),
+    ("iec", "fuse", 10.0, 1.45 / 1.9),
+    ("nec", "fuse", 100.0, 1.0),     # NEC 240.4: no I2 rule
+])
+def test_overload_coordination_factor(profile, device, rating, factor):
+    assert overload_factor(load_profile(profile), device, rating) == pytest.approx(factor)
+
+
+def test_a_fuse_needs_iz_of_at_least_1_1_times_its_rating(tmp_path):
+    # 63 A: a type C breaker may protect 66 A of conductor; a gG fuse needs 63 / 0.906
+    # = 69.5 A, so the next size up (88 A in this profile's B1 column).
+    nodes = """
+[[node]]
+id = "M"
+parent = "SRC"
+length = "20 m"
+ocpd = "63 A"
+device = "{device}"
+load = "20 kW"
+"""
+    amp = {}
+    for device in ("C", "fuse"):
+        path = write_scenario(tmp_path, nodes.format(device=device), rules="iec",
+                              currency="EUR", energy_price="0.2 EUR/kWh", voltage="400 V",
+                              materials='["Cu"]', max_sets=1, name=f"{device}.toml")
+        path.write_text(path.read_text().replace('terminals = "75 degC"\n', ""))
+        prep = prepare(load_scenario(path))
+        amp[device] = prep.table.ampacity_a.min()
+        d = optimise(prep, Objective.CAPEX)
+        assert d.segments[0].ampacity_a * (1.45 / (1.6 if device == "fuse" else 1.45)) >= 63
+    assert amp["fuse"] >= 63 / 0.90625 > amp["C"] >= 63

@@ -128,6 +128,10 @@ class RuleProfile:
     # protection
     standard_ratings_a: tuple[float, ...]    # ascending
     next_size_up_max_a: float | None         # None: device must not exceed the ampacity
+    # IEC 60364-4-43 433.1: I2 <= overload_i2_limit x Iz, I2 = multiple x In by device
+    # class ("breaker", "fuse", "fuse_small" below 16 A); empty: no such rule
+    overload_i2_multiple: Mapping[str, float]
+    overload_i2_limit: float
     small_conductor_max_ocpd_a: tuple[tuple[str, str, float], ...]  # (material, size, max device A)
     # equipment grounding (protective) conductor
     egc_rule: str                            # "device_rating" | "phase_area"
@@ -583,6 +587,13 @@ def read_profile(path: str | Path) -> RuleProfile:
     ratings = prot.floats("standard_ratings_a")
     sources["standard_ratings"] = prot.take("standard_ratings_source", str)
     next_size_up = prot.take("next_size_up_max_a", float, None)
+    i2_multiple: dict[str, float] = {}
+    i2_limit = math.inf
+    if (ovl := prot.optional_sub("overload")) is not None:
+        i2_limit = ovl.take("i2_max_of_iz", float)
+        i2_multiple = {k: ovl.take(k, float) for k in ("breaker", "fuse", "fuse_small")}
+        sources["overload"] = ovl.take("source", str)
+        ovl.finish()
     sources["next_size_up"] = prot.take("next_size_up_source", str)
     sources["small_conductors"] = prot.take("small_conductors_source", str)
     small = []
@@ -660,6 +671,7 @@ def read_profile(path: str | Path) -> RuleProfile:
         grouping_bands=tuple((b[0], b[1]) for b in grouping),
         terminal_rule=terminal_rule,
         standard_ratings_a=ratings, next_size_up_max_a=next_size_up,
+        overload_i2_multiple=MappingProxyType(i2_multiple), overload_i2_limit=i2_limit,
         small_conductor_max_ocpd_a=tuple(small),
         egc_rule=egc_rule, egc_table=egc_table, egc_table_area_mm2=egc_areas,
         egc_proportional=egc_proportional,
