@@ -248,6 +248,11 @@ FIELDS: tuple[Field, ...] = (
        "enforced (conductors that fail it are not offered)", r.read_withstand,
        default="finding", bounds="finding | enforce", attr="withstand", also_defaults=True,
        example='"enforce"'),
+    _F("node", "interrupting", "interrupting (breaking) rating of the run's device, "
+       "checked against the maximum fault where it sits", r.read_fault_current, unit="A",
+       default_text="none: not checked", bounds=f"{MIN_FAULT_A:g} A to "
+       f"{MAX_CURRENT_A / 1e3:g} kA", attr="interrupting_a", also_defaults=True,
+       example='"22 kA"'),
     _F("node", "transformer", "the node is a transformer: a table of the keys below",
        attr="transformer", subtable=True, example='{ rating = "75 kVA", ... }'),
     _F("node", "motor", "the node's load is a motor: a table of the keys below",
@@ -278,6 +283,10 @@ FIELDS: tuple[Field, ...] = (
        default=6.0, attr="start_multiple", example="6"),
     _F("motor", "start_pf", "power factor while starting", r.read_fraction, default=0.3,
        bounds="(0, 1]", attr="start_pf", example="0.3"),
+    _F("motor", "fault_multiple", "locked-rotor current over rated current this running "
+       "motor feeds into a three-phase fault; 0 for none (a drive without regeneration)",
+       r.read_number, default_text="the profile's (5)", bounds="0 to 20",
+       attr="fault_multiple", example="0"),
 )
 
 # Spellings read as another key.

@@ -117,6 +117,7 @@ class Motor:
     power_w: float             # rating, taken as the running input power (see loads.py)
     start_multiple: float = 6.0
     start_pf: float = 0.3
+    fault_multiple: float | None = None  # locked-rotor × rated feeding a fault (None: profile's)
 
     def __post_init__(self) -> None:
         _check(finite_positive(self.power_w), "must be a positive power", None, "motor")
@@ -124,6 +125,9 @@ class Motor:
                "must be between 1 and 20", None, "motor.start_multiple")
         _check(math.isfinite(self.start_pf) and 0 < self.start_pf <= 1, "must be in (0, 1]",
                None, "motor.start_pf")
+        _check(self.fault_multiple is None
+               or (math.isfinite(self.fault_multiple) and 0 <= self.fault_multiple <= 20),
+               "must be between 0 and 20", None, "motor.fault_multiple")
 
 
 @dataclass(frozen=True)
@@ -198,6 +202,7 @@ class Node:
     insulation_type: str | None = None  # thermoplastic | thermoset (None: price list / rating)
     let_through_a2s: float | None = None  # device let-through I²t (None: I² × clearing time)
     withstand: str = "finding"          # finding | enforce
+    interrupting_a: float | None = None  # device interrupting rating (None: not checked)
     description: str = ""         # free text from the scenario, shown in reports
 
     def __post_init__(self) -> None:

@@ -210,13 +210,15 @@ def motor_contribution_y_pu(prep: Prepared) -> np.ndarray:
     """Admittance of each running three-phase motor feeding a fault (0 where none)."""
     rule = prep.profile.fault
     running = np.zeros(len(prep.segments))
+    multiple = np.full(running.size, rule.motor_multiple)
     for i, seg in enumerate(prep.segments):
         motor = seg.node.motor
         if motor is None or seg.phases != 3:  # single-phase motors are left out
             continue
         running[i] = abs(seg.own_load_va) or motor.power_w / max(seg.power_factor, 1e-6)
-    return motor_shunt_y_pu(running, np.full(running.size, rule.motor_multiple),
-                            rule.motor_r_x)
+        if motor.fault_multiple is not None:
+            multiple[i] = motor.fault_multiple
+    return motor_shunt_y_pu(running, multiple, rule.motor_r_x)
 
 
 def fault_networks(prep: Prepared, choice: np.ndarray) -> tuple[Network, Network]:
@@ -266,6 +268,7 @@ def verify_design(prep: Prepared, choice: np.ndarray) -> Verification:
     earth = earth_faults_a(prep, choice)
     trip = prep.earth.trip_a
     findings = list(_withstand_findings(prep, choice, near))
+    findings += list(_interrupting_findings(prep, near))
     findings += list(disconnection_findings(prep, earth, trip))
     drop = np.asarray(lf.drop_pct, dtype=float)
     over = np.flatnonzero(drop > prep.leaf_limit_pct + 1e-6)
@@ -311,6 +314,20 @@ def disconnection_findings(prep: Prepared, earth_a: np.ndarray, trip_a: np.ndarr
             f"{time_s:g} s; fix: a larger line or protective conductor on this path, a "
             f"device that trips at a lower current (curve B, a lower instantaneous "
             f"setting), or residual-current protection")
+
+
+def _interrupting_findings(prep: Prepared, near_a: np.ndarray):
+    """Devices whose interrupting rating is below the maximum fault where they sit."""
+    for i, seg in enumerate(prep.segments):
+        rating = seg.node.interrupting_a
+        if rating is None or not near_a[i] > rating:
+            continue
+        yield Violation(
+            seg.id, "interrupting rating", near_a[i] / 1e3, rating / 1e3,
+            f"the maximum fault where the {seg.ocpd_a:g} A device sits is "
+            f"{near_a[i] / 1e3:.1f} kA (c_max, motors contributing), above its "
+            f"{rating / 1e3:g} kA interrupting rating; fix: a device rated for the fault, "
+            "or a series-rated combination listed for it")
 
 
 def _withstand_findings(prep: Prepared, choice: np.ndarray, near_a: np.ndarray):

@@ -331,3 +331,35 @@ load = "20 kW"
         d = optimise(prep, Objective.CAPEX)
         assert d.segments[0].ampacity_a * (1.45 / (1.6 if device == "fuse" else 1.45)) >= 63
     assert amp["fuse"] >= 63 / 0.90625 > amp["C"] >= 63
+
+
+def test_interrupting_rating_below_the_fault_is_a_finding_and_motors_can_be_left_out(tmp_path):
+    nodes = """
+[[node]]
+id = "MCC"
+parent = "SRC"
+length = "10 m"
+ocpd = "400 A"
+interrupting = "{rating}"
+
+[[node]]
+id = "FAN"
+parent = "MCC"
+length = "30 m"
+motor = {{ kw = 90{extra} }}
+"""
+    found = {}
+    for rating, extra in (("10 kA", ""), ("50 kA", ""), ("10 kA", ", fault_multiple = 0")):
+        path = write_scenario(tmp_path, nodes.format(rating=rating, extra=extra),
+                              rules="iec", currency="EUR", energy_price="0.2 EUR/kWh",
+                              voltage="400 V", materials='["Cu"]')
+        path.write_text(path.read_text().replace('terminals = "75 degC"\n', ""))
+        prep = prepare(load_scenario(path))
+        design = optimise(prep, Objective.LIFECYCLE)
+        ver = verify_design(prep, np.asarray(design.choice))
+        found[(rating, extra)] = (ver.fault_a[0],
+                                  [v for v in ver.findings if v.rule == "interrupting rating"])
+    # 22 kA source: above a 10 kA device, below a 50 kA one
+    assert len(found[("10 kA", "")][1]) == 1 and not found[("50 kA", "")][1]
+    # a drive-fed motor (fault_multiple = 0) feeds nothing: the maximum falls
+    assert found[("10 kA", ", fault_multiple = 0")][0] < found[("10 kA", "")][0]

@@ -749,7 +749,7 @@ class _Page:
 # The unit of a finding's value and limit, by rule (sizer.optimize and sizer.workflow).
 _RULE_UNITS = {"ampacity": "A", "protection": "A", "branch drop": "%", "feeder drop": "%",
                "total drop": "%", "short-circuit withstand": "kA", "motor-start dip": "%",
-               "disconnection": "A"}
+               "disconnection": "A", "interrupting rating": "kA"}
 
 
 def fault_assumptions(p: RuleProfile) -> list[tuple[str, str]]:
