@@ -36,11 +36,12 @@ no coarser discretisation.
 
 from __future__ import annotations
 
+import dataclasses
 import time
 
 import numpy as np
 
-from sizer.engines.problem import Problem, Solution, SolveStatus
+from sizer.engines.problem import Problem, Solution, SolveStatus, path_totals
 from sizer.errors import InternalError
 
 __all__ = ["DEFAULT_MAX_FRONT", "DEFAULT_MAX_FRONT_MULTI", "DEFAULT_MAX_QUERIES",
@@ -275,8 +276,12 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
             "the tree engine takes no side constraints (budget caps, groups); use "
             "engine='milp'", field="engine")
     if problem.extra_paths():
-        return solve_tree_multi(problem, max_front=min(max_front, DEFAULT_MAX_FRONT_MULTI),
-                                tol_pct=tol_pct)
+        relaxed = _without_slack_paths(problem)
+        if relaxed.extra_paths():
+            return solve_tree_multi(relaxed,
+                                    max_front=min(max_front, DEFAULT_MAX_FRONT_MULTI),
+                                    tol_pct=tol_pct)
+        problem = relaxed  # every further limit holds whatever is chosen: drop alone
     n = problem.n_segments
     parent = problem.parent
     parent_list = parent.tolist()
@@ -483,12 +488,82 @@ def _leaf_fronts(children: list[list[int]], floor: np.ndarray, own_d: np.ndarray
 # --- several path resources -----------------------------------------------------------
 
 
+def _without_slack_paths(problem: Problem) -> Problem:
+    """The problem with every further path limit that no choice can break set to +inf.
+
+    A limit at segment s holds for every choice when the path to s, with the largest
+    value of every segment on it, stays within it; dropping it is exact. A resource left
+    with no finite limit drops out of ``extra_paths()``.
+    """
+    changes: dict[str, np.ndarray | None] = {}
+    for own, lim, names in ((problem.drop2_pct, problem.limit2_pct,
+                             ("drop2_pct", "limit2_pct")),
+                            (problem.loop_pu, problem.loop_limit_pu,
+                             ("loop_pu", "loop_limit_pu"))):
+        if own is None or lim is None:
+            continue
+        worst = path_totals(problem.parent, np.maximum.reduceat(own, problem.offsets[:-1]))
+        binding = np.isfinite(lim) & (worst > lim)
+        if not binding.any():
+            changes[names[0]] = changes[names[1]] = None
+        elif not np.array_equal(binding, np.isfinite(lim)):
+            changes[names[1]] = np.where(binding, lim, np.inf)
+    return dataclasses.replace(problem, **changes) if changes else problem  # type: ignore[arg-type]
+
+
+def _undominated_multi(cost: np.ndarray, req: np.ndarray, offsets: np.ndarray,
+                       chunk_cells: int = 4_000_000) -> np.ndarray:
+    """Mask of the rows no other row of the same segment beats in cost and every value.
+
+    All segments at once, padded to the widest: a row is dropped when another row needs
+    no more of anything and costs no more (of exact ties the first stays). Chunked so
+    the pairwise comparison stays within ``chunk_cells`` × resources booleans.
+    """
+    n = offsets.size - 1
+    counts = np.diff(offsets)
+    width = int(counts.max())
+    k = req.shape[1]
+    seg = np.repeat(np.arange(n), counts)
+    pos = np.arange(cost.size) - offsets[seg]
+    keep = np.zeros(cost.size, dtype=bool)
+    step = max(1, chunk_cells // max(1, width * width))
+    for a in range(0, n, step):
+        b = min(n, a + step)
+        rows = slice(int(offsets[a]), int(offsets[b]))
+        m = b - a
+        pc = np.full((m, width), np.inf)
+        pr = np.full((m, width, k), np.inf)
+        pc[seg[rows] - a, pos[rows]] = cost[rows]
+        pr[seg[rows] - a, pos[rows]] = req[rows]
+        # beats[s, i, j]: row j of segment s is no worse than row i everywhere
+        beats = pc[:, None, :] <= pc[:, :, None]
+        for r in range(k):
+            beats &= pr[:, None, :, r] <= pr[:, :, None, r]
+        same = (pc[:, None, :] == pc[:, :, None])
+        for r in range(k):
+            same &= pr[:, None, :, r] == pr[:, :, None, r]
+        # an exact twin beats only a later row; no row beats itself
+        j_after_i = np.triu(np.ones((width, width), dtype=bool))
+        beats &= ~(same & j_after_i[None, :, :])
+        dominated: np.ndarray = np.any(beats, axis=2)
+        keep[rows] = ~dominated[seg[rows] - a, pos[rows]]
+    return keep
+
+
 def _prune_multi(cost: np.ndarray, req: np.ndarray) -> np.ndarray:
     """Indices of the points no other point beats in cost and every requirement.
 
     Sorted by cost (then requirements), a point is dropped when an earlier one needs no
     more of every resource; of exact duplicates the first survives.
     """
+    if cost.size > 1 and np.all(req[:, 1:] == req[0, 1:]):
+        # one requirement varies (the others are equal): the 1-D staircase
+        order = np.lexsort((cost, req[:, 0]))
+        c = cost[order]
+        first = np.empty(c.size, dtype=bool)
+        first[0] = True
+        np.less(c[1:], np.minimum.accumulate(c)[:-1], out=first[1:])
+        return order[first]
     order = np.lexsort((*req.T[::-1], cost))
     r = req[order]
     keep = np.ones(order.size, dtype=bool)
@@ -528,8 +603,24 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
     limits = [problem.limit_pct] + [lim for _, lim in problem.extra_paths()]
     fixed = [problem.fixed_drop_pct] + [np.zeros(n)] * (len(values) - 1)
     k = len(values)
-    seg_rows = [np.arange(problem.offsets[s], problem.offsets[s + 1]) for s in range(n)]
-    own = np.column_stack([v for v in values])  # [rows, k]
+    seg_of = problem.segment_of_row
+    # A resource matters to a segment only when its subtree holds a finite limit of it;
+    # elsewhere its values never enter a constrained sum and are set to 0 (exact).
+    relevant = np.column_stack([np.isfinite(lim) for lim in limits])
+    for s in range(n - 1, -1, -1):
+        if parent[s] >= 0:
+            relevant[parent[s]] |= relevant[s]
+    own = np.column_stack(values) * relevant[seg_of]  # [rows, k]
+    multi: np.ndarray = np.any(relevant[:, 1:], axis=1)
+    usable = np.zeros(problem.n_candidates, dtype=bool)
+    rows_1d, _ = undominated_rows(problem)  # drop alone: the fast running minimum
+    usable[rows_1d] = ~multi[seg_of[rows_1d]]
+    if multi.any():
+        pick = np.flatnonzero(multi[seg_of])
+        sub_off = np.concatenate(([0], np.cumsum(np.diff(problem.offsets)[multi])))
+        usable[pick] = _undominated_multi(problem.cost[pick], own[pick], sub_off)
+    seg_rows = np.split(np.flatnonzero(usable),
+                        np.cumsum(np.bincount(seg_of[usable], minlength=n))[:-1])
     fix = np.column_stack(fixed)                 # [n, k]
     floor = -np.column_stack(limits)             # [n, k]: −limit (−inf: unconstrained)
     # least value above each segment, per resource: requirements beyond tol − that fail
