@@ -346,6 +346,7 @@ def _withstand_findings(prep: Prepared, choice: np.ndarray, near_a: np.ndarray):
         family = withstand_family(seg, prep.prices, MATERIALS[int(prep.table.material[rows[i]])])
         kind = f"{family}, " if family else ""
         limits = f"{kind}{ins:g} → {final[i]:g} degC, IEC 60949"
+        better = "" if final[i] >= p.family_final_c["thermoset"] else ", or thermoset insulation"
         let_through = seg.node.let_through_a2s
         if let_through is not None:
             if let_through > i2t[i]:
@@ -353,7 +354,7 @@ def _withstand_findings(prep: Prepared, choice: np.ndarray, near_a: np.ndarray):
                     seg.id, "short-circuit withstand", let_through, float(i2t[i]),
                     f"the device lets through {let_through:.3g} A²s, more than the "
                     f"conductor's {i2t[i]:.3g} A²s ({limits}); fix: a device that lets "
-                    "through less, a larger conductor, or thermoset insulation")
+                    f"through less, or a larger conductor{better}")
             continue
         if not math.isfinite(near_a[i]):
             continue
@@ -365,7 +366,7 @@ def _withstand_findings(prep: Prepared, choice: np.ndarray, near_a: np.ndarray):
                 f"{near_a[i] / 1e3:.1f} kA for {time_s:g} s exceeds the conductor's "
                 f"{capacity / 1e3:.1f} kA adiabatic limit ({limits}); fix: a device "
                 f"letting through at most {i2t[i]:.3g} A²s (give its let_through), a "
-                "shorter clearing time, a larger conductor, or thermoset insulation")
+                f"shorter clearing time, or a larger conductor{better}")
 
 
 @dataclass(frozen=True)
