@@ -197,7 +197,10 @@ def test_check_flags_a_hand_made_violating_design(tmp_path, capsys):
 
 
 def test_check_passes_a_compliant_pinned_design(tmp_path):
-    path = write_scenario(tmp_path, PINNED_TOO_SMALL.replace("10 AWG Cu", "4 AWG Cu"))
+    # 4 AWG Cu at the 22 kA source for one cycle: THHN-style thermoplastic (150 degC,
+    # ICEA P-32-382) would reach only 15 kA, so the run is XHHW-2 style thermoset.
+    path = write_scenario(tmp_path, PINNED_TOO_SMALL.replace(
+        "10 AWG Cu", '4 AWG Cu"\ninsulation_type = "thermoset'))
     out = tmp_path / "check.json"
     code = main(["check", str(path), "--json", str(out)])
     doc = json.loads(out.read_text())
