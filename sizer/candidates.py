@@ -12,7 +12,7 @@ from __future__ import annotations
 import csv
 import math
 from collections.abc import Callable
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, fields, replace
 from functools import cache
 from pathlib import Path
 
@@ -20,9 +20,14 @@ import numpy as np
 
 from sizer.catalogue import Catalogue
 from sizer.catalogue.prices import PriceList
-from sizer.conductors import impedance_ohm_per_m, operating_temperature_c
+from sizer.conductors import (
+    adiabatic_withstand_a,
+    impedance_ohm_per_m,
+    operating_temperature_c,
+)
 from sizer.drop import drop_pct, transformer_regulation_pct
 from sizer.errors import ScenarioError
+from sizer.faults import default_device, pe_impedance_ohm
 from sizer.model import CandidateTable, Segment
 from sizer.rules.ampacity import (
     ambient_factor,
@@ -38,6 +43,7 @@ from sizer.rules.protection import (
     egc_size_index_of_sizes,
     min_parallel_ok,
     next_size_up_allowed,
+    overload_factor,
     protects,
     small_conductor_ok,
     terminal_temperature_c,
@@ -92,6 +98,7 @@ class SegmentArrays:
     own_neutral: np.ndarray     # bool: a three-phase run with a neutral (sized on its own)
     neutral_size: np.ndarray    # area over the phase's (1.0 full, 2.0 double); 0: reduced
     triplen: np.ndarray         # declared third-harmonic share below the run
+    overload_factor: np.ndarray  # share of Iz the device may be rated at (IEC 60364-4-43)
     route: np.ndarray | None = None        # shared route index per segment, -1 none
     per_set_ccc: np.ndarray | None = None  # current-carrying conductors of one set
     refuse_oversize: np.ndarray | None = None  # bool: no reducing splice allowed
@@ -206,6 +213,10 @@ def segment_arrays(
         soil_factor=np.array([_soil(profile, seg) for seg in segments], dtype=float),
         one_raceway=np.array([seg.node.cable.sets_in_one_raceway for seg in segments],
                              dtype=bool),
+        overload_factor=np.array([
+            overload_factor(profile, seg.node.device or default_device(seg.ocpd_a,
+                                                                        profile.fault),
+                            seg.ocpd_a) for seg in segments]),
     )
 
 
@@ -410,9 +421,11 @@ def build_candidates(
                                    sa.required_adjusted_a[seg])
     motor = sa.motor_overload[seg]
     # 240.4(G): a motor branch's conductors are protected by the overload relay; the
-    # 430.52 device may exceed their ampacity and 240.4(D) does not apply.
-    protected = motor | protects(profile, np.where(valid, ampacity, 0.0), ocpd,
-                                 next_size_up_allowed(profile, sa.secondary[seg]))
+    # 430.52 device may exceed their ampacity and 240.4(D) does not apply. IEC 60364-4-43
+    # overload coordination rates the device at a share of Iz (overload_factor).
+    protected = motor | protects(
+        profile, np.where(valid, ampacity, 0.0) * sa.overload_factor[seg], ocpd,
+        next_size_up_allowed(profile, sa.secondary[seg]))
     small_ok = motor | _by_material(mat, lambda m, mask: small_conductor_ok(
         profile, MATERIALS[m], size[mask], ocpd[mask]), dtype=bool)
     parallel_ok = (min_parallel_ok(profile, size, sets) if sa.min_parallel is None
@@ -511,6 +524,8 @@ def build_candidates(
                 inst_names[code // 2], profile.frequency_hz)[0] * length[mask] / sets[mask]
         loss_w = loss_w + np.where(own_neutral, np.asarray(neutral_a2, float)[seg] * r_n, 0.0)
     loss_pv = loss_w * _per_row(loss_pv_per_w, seg)
+    loop = _fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc,
+                           sets, length)
 
     idx = np.flatnonzero(keep)
     counts = np.bincount(seg[idx], minlength=n)
@@ -540,6 +555,7 @@ def build_candidates(
         build_fail=np.where(build.terminal_ok, np.where(build.raceway_ok, 0, 2), 1)[idx],
         route_count=route_count[idx],
         route_top=route_top[idx],
+        loop_ohm=loop[idx],
     )
     return table, diagnosis
 
@@ -730,6 +746,78 @@ def _sets_together(profile: RuleProfile, installation: tuple[str, ...]) -> np.nd
     """
     trench = profile.raceway.trench if profile.raceway is not None else ("buried",)
     return np.array([inst in trench for inst in installation], dtype=bool)
+
+
+def withstand_family(seg: Segment, prices: PriceList, material: str) -> str | None:
+    """Insulation family of a run's conductors, or None (the profile decides by rating).
+
+    The node's ``insulation_type``, else the price list's product line for the metal.
+    """
+    return seg.node.insulation_type or prices.insulation_type.get(material)
+
+
+def withstand_i2t_a2s(profile: RuleProfile, catalogue: Catalogue, prices: PriceList,
+                      segments: tuple[Segment, ...], table: CandidateTable,
+                      rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Adiabatic I²t (A²s) each row's parallel sets withstand, and the final temperature.
+
+    IEC 60949: I²t = K² S² ln((θf + β)/(θi + β)), θi the insulation rating (the
+    conductor may be at it when the fault starts), θf by the insulation family
+    (``RuleProfile.withstand_final_c``); sets share the fault current, so the sets'
+    I²t is sets² times one conductor's.
+    """
+    rows = np.asarray(rows, dtype=np.int64)
+    i2t = np.empty(rows.size)
+    final = np.empty(rows.size)
+    for k, r in enumerate(rows.tolist()):
+        seg = segments[int(table.segment[r])]
+        material = MATERIALS[int(table.material[r])]
+        ins = seg.node.cable.insulation_c
+        final[k] = profile.withstand_final_c(ins, withstand_family(seg, prices, material))
+        one_s = float(adiabatic_withstand_a(catalogue.area_mm2[int(table.size_index[r])], 1.0,
+                                            material, ins, final[k]))
+        i2t[k] = (one_s * int(table.sets[r])) ** 2
+    return i2t, final
+
+
+def take_rows(table: CandidateTable, keep: np.ndarray) -> CandidateTable:
+    """The table with only the rows where ``keep`` is True (offsets rebuilt)."""
+    idx = np.flatnonzero(keep)
+    n = table.offsets.size - 1
+    counts = np.bincount(table.segment[idx], minlength=n)
+    offsets = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+    arrays = {f.name: getattr(table, f.name)[idx] for f in fields(table)
+              if isinstance(getattr(table, f.name), np.ndarray) and f.name != "offsets"}
+    return replace(table, offsets=offsets, **arrays)
+
+
+def loop_temperature_c(profile: RuleProfile, insulation_c: np.ndarray) -> np.ndarray:
+    """Conductor temperature of the minimum fault loop (degC).
+
+    The insulation rating, or the final short-circuit temperature, as the profile's
+    ``[fault] loop_temperature`` says.
+    """
+    if profile.fault.loop_temperature == "end_of_fault":
+        return np.array([profile.final_temperature_c(float(t)) for t in insulation_c])
+    return np.asarray(insulation_c, dtype=float)
+
+
+def _fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc, sets,
+                    length) -> np.ndarray:
+    """Line + protective conductor impedance of every row at the fault-loop temperature."""
+    temp = loop_temperature_c(profile, sa.insulation_c)[seg]
+    loop = np.zeros(seg.shape[0], dtype=np.complex128)
+    imp_code = inst_code[seg] * 2 + mat
+    for code in np.unique(imp_code).tolist():
+        mask = imp_code == code
+        material, inst = MATERIALS[code % 2], inst_names[code // 2]
+        r, x = impedance_ohm_per_m(catalogue, material, size[mask], temp[mask], inst,
+                                   profile.frequency_hz)
+        loop[mask] = ((r + 1j * x) * length[mask] / sets[mask]
+                      + pe_impedance_ohm(catalogue, material, egc[mask], sets[mask],
+                                         length[mask], temp[mask], inst,
+                                         profile.frequency_hz))
+    return loop
 
 
 def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes, row_grouping):

@@ -314,6 +314,33 @@ FIELDS: tuple[Field, ...] = (
        default_text="auto: the profile's reference (iec 0.7 m; nec and cec do not correct)",
        bounds="0.2 to 5 m, or \"auto\"", attr="depth_m", also_defaults=True,
        example='"0.9 m"'),
+    _F("node", "device", "the run's overcurrent device, for the disconnection rule: B, C "
+       "or D (miniature breaker curve), breaker (moulded case) or fuse", r.auto(r.read_device),
+       default_text="auto: the profile's", bounds=" | ".join(r.DEVICE_WORDS) + ', or "auto"',
+       attr="device", also_defaults=True, example='"C"'),
+    _F("node", "trip_multiple", "current that disconnects the device within the required "
+       "time, × its rating (from its curve; replaces the device's default)",
+       r.auto(r.read_trip_multiple), default_text="auto: by the device",
+       bounds=f'1 to {r.MAX_TRIP_MULTIPLE:g}, or "auto"', attr="trip_multiple",
+       also_defaults=True, example="5"),
+    _F("node", "insulation_type", "insulation family for the short-circuit withstand: "
+       "thermoplastic (PVC, THHN style) or thermoset (XLPE, EPR, XHHW-2 style)",
+       r.auto(r.read_insulation_type), default_text="auto: the price list's product line, "
+       "else by the insulation rating", bounds='thermoplastic | thermoset, or "auto"',
+       attr="insulation_type", also_defaults=True, example='"thermoplastic"'),
+    _F("node", "let_through", "the device's let-through energy I²t (current-limiting "
+       "devices); replaces I² × clearing time in the withstand check", r.read_let_through,
+       unit="A²s", default_text="none: I² × clearing_time", bounds="above 0",
+       attr="let_through_a2s", also_defaults=True, example='"50000 A2s"'),
+    _F("node", "withstand", "short-circuit withstand: a finding in the results, or "
+       "enforced (conductors that fail it are not offered)", r.read_withstand,
+       default="finding", bounds="finding | enforce", attr="withstand", also_defaults=True,
+       example='"enforce"'),
+    _F("node", "interrupting", "interrupting (breaking) rating of the run's device, "
+       "checked against the maximum fault where it sits", r.read_fault_current, unit="A",
+       default_text="none: not checked", bounds=f"{MIN_FAULT_A:g} A to "
+       f"{MAX_CURRENT_A / 1e3:g} kA", attr="interrupting_a", also_defaults=True,
+       example='"22 kA"'),
     _F("node", "transformer", "the node is a transformer: a table of the keys below",
        attr="transformer", subtable=True, example='{ rating = "75 kVA", ... }'),
     _F("node", "motor", "the node's load is a motor: a table of the keys below",
@@ -344,6 +371,10 @@ FIELDS: tuple[Field, ...] = (
        default=6.0, attr="start_multiple", example="6"),
     _F("motor", "start_pf", "power factor while starting", r.read_fraction, default=0.3,
        bounds="(0, 1]", attr="start_pf", example="0.3"),
+    _F("motor", "fault_multiple", "locked-rotor current over rated current this running "
+       "motor feeds into a three-phase fault; 0 for none (a drive without regeneration)",
+       r.read_number, default_text="the profile's (5)", bounds="0 to 20",
+       attr="fault_multiple", example="0"),
 )
 
 # Spellings read as another key.

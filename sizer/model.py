@@ -121,6 +121,7 @@ class Motor:
     power_w: float             # rating, taken as the running input power (see loads.py)
     start_multiple: float = 6.0
     start_pf: float = 0.3
+    fault_multiple: float | None = None  # locked-rotor × rated feeding a fault (None: profile's)
 
     def __post_init__(self) -> None:
         _check(finite_positive(self.power_w), "must be a positive power", None, "motor")
@@ -128,6 +129,9 @@ class Motor:
                "must be between 1 and 20", None, "motor.start_multiple")
         _check(math.isfinite(self.start_pf) and 0 < self.start_pf <= 1, "must be in (0, 1]",
                None, "motor.start_pf")
+        _check(self.fault_multiple is None
+               or (math.isfinite(self.fault_multiple) and 0 <= self.fault_multiple <= 20),
+               "must be between 0 and 20", None, "motor.fault_multiple")
 
 
 @dataclass(frozen=True)
@@ -250,6 +254,12 @@ class Node:
     device_100_percent: bool = False  # device listed for 100 % continuous operation
     route: str = ""               # a shared route: runs in it derate from its whole content
     load_terminal_max: str = ""   # largest conductor the load end takes ("": as the device)
+    device: str | None = None     # overcurrent device for disconnection (None: profile's)
+    trip_multiple: float | None = None  # × rating that disconnects in time (None: device's)
+    insulation_type: str | None = None  # thermoplastic | thermoset (None: price list / rating)
+    let_through_a2s: float | None = None  # device let-through I²t (None: I² × clearing time)
+    withstand: str = "finding"          # finding | enforce
+    interrupting_a: float | None = None  # device interrupting rating (None: not checked)
     description: str = ""         # free text from the scenario, shown in reports
     operating: Operating = field(default_factory=Operating)  # how the load runs (losses)
     phase: str | None = None      # "A" | "B" | "C" | "AB" | "BC" | "CA"; None: assigned
@@ -375,6 +385,7 @@ class CandidateTable:
     capex: np.ndarray
     loss_pv: np.ndarray
     egc_size_index: np.ndarray
+    loop_ohm: np.ndarray        # complex: line + protective conductor at the fault-loop temp
     rejected: tuple[str, ...] = field(default=())
     # table ampacity before adjustment (terminal-limited column, sets summed), for the
     # first ampacity test (NEC 210.19(A)(1)(a)); empty when not built
@@ -421,7 +432,6 @@ class SegmentResult:
     phases: int
     pinned: bool = False
     loadflow_drop_pct: float | None = None
-    fault_ka: float | None = None
     bonding_jumper: str | None = None  # service conductors: supply-side bonding jumper
     operating_a: float = 0.0          # peak operating current used for losses
     phase: str | None = None          # single-phase runs on a three-phase system
@@ -438,6 +448,10 @@ class SegmentResult:
     raceway_capex: float = 0.0
     route: str = ""               # the shared route, if any
     route_conductors: int = 0     # current-carrying conductors its derating counts
+    fault_ka: float | None = None        # maximum three-phase fault (c_max, R at 20 degC, motors)
+    fault_min_ka: float | None = None    # minimum three-phase fault (c_min, R hot, no motors)
+    earth_fault_a: float | None = None   # minimum line-to-earth fault at the cable's far end
+    trip_a: float | None = None          # current that disconnects the device in time
 
 
 @dataclass(frozen=True)

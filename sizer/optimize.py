@@ -21,13 +21,16 @@ from sizer.candidates import (
     LocalDiagnosis,
     build_candidates,
     route_indices,
+    take_rows,
     transformer_drops_pct,
+    withstand_i2t_a2s,
 )
 from sizer.catalogue import Catalogue, load_catalogue
 from sizer.catalogue.prices import PriceList, load_price_list, resolve_price_list
 from sizer.economics import EconomicParams, demand_charge_per_w_year
 from sizer.engines import Problem, Solution, SolveStatus, solve
 from sizer.engines.problem import path_totals
+from sizer.faults import S_BASE_VA, default_device, loop_pu, source_loop_ohm, trip_current_a
 from sizer.loads import design_segments
 from sizer.model import (
     CandidateTable,
@@ -81,11 +84,34 @@ class Prepared:
     leaf_limit_pct: np.ndarray
     runs: RunProfiles            # operating peaks and loss profiles (sizer.operating)
     phases: PhaseState           # phase assignment, phase and neutral currents
+    earth: EarthFaultTerms
+    withstand_removed: np.ndarray   # rows per segment removed by withstand = "enforce"
 
     @property
     def parent(self) -> np.ndarray:
         """Parent segment of every segment (-1: fed from the source), parents first."""
         return self.topology.parent
+
+
+@dataclass(frozen=True)
+class EarthFaultTerms:
+    """What the disconnection constraint needs per segment (see ``sizer.faults``).
+
+    ``u0_v``: voltage to earth of the run's line conductors; ``trip_a``: the current that
+    disconnects its device in time; ``source_pu`` and ``xfmr_pu`` (complex, per unit on
+    ``S_BASE_VA`` and each point's U0): the source's share of every loop, and each node's
+    transformer's share of the loops below it; ``limit_pu``: the most loop impedance
+    the run's own path of cables may add, from c_min · U0 / trip_a less |source| and the
+    |transformers| above (magnitudes added: conservative, so a design within it passes
+    the complex check).
+    """
+
+    u0_v: np.ndarray
+    trip_a: np.ndarray
+    source_pu: complex
+    xfmr_pu: np.ndarray
+    limit_pu: np.ndarray
+    c_min: float
 
 
 def economic_params(scenario: Scenario) -> EconomicParams:
@@ -144,8 +170,138 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
     )
     topology = Topology(np.array([s.parent_index for s in segments], dtype=np.int64))
     limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)
+    removed = np.zeros(len(segments), dtype=np.int64)
+    if any(seg.node.withstand == "enforce" for seg in segments):
+        table, removed = enforce_withstand(scenario, segments, profile, catalogue,
+                                           price_list, table, keep_pins=keep_pins)
     return Prepared(scenario, profile, catalogue, price_list, econ, segments, table, local,
-                    transformer_drops_pct(segments), topology, limit, runs, phase_state)
+                    transformer_drops_pct(segments), topology, limit, runs, phase_state,
+                    earth_fault_terms(scenario, segments, profile, topology.parent), removed)
+
+
+def near_fault_bound_a(scenario: Scenario, segments: tuple[Segment, ...],
+                       profile: RuleProfile) -> np.ndarray:
+    """A three-phase fault current no run's near end can exceed, whatever is chosen (A).
+
+    The source's level (or, below a transformer, the transformer's own level on an
+    infinite primary, S/(√3·V·z)) plus the locked-rotor current of every running motor
+    of the tree as if all were at that bus: cables only lower it, so the bound is
+    conservative and needs no choice. Infinite where the source level is not given.
+    """
+    rule = profile.fault
+    motors_va = sum(
+        rule.motor_multiple * (abs(seg.own_load_va) or seg.node.motor.power_w
+                               / max(seg.power_factor, 1e-6))
+        for seg in segments if seg.node.motor is not None and seg.phases == 3)
+    src = scenario.source
+    src_a = math.inf if src.fault_current_a is None else src.fault_current_a
+    bus = [0.0] * len(segments)
+    out = np.empty(len(segments))
+    for i, seg in enumerate(segments):
+        p = seg.parent_index
+        feed = src_a + motors_va / (math.sqrt(3.0) * src.voltage_v) if p < 0 else bus[p]
+        out[i] = feed
+        tx = seg.node.transformer
+        if tx is not None:
+            bus[i] = (tx.rating_va / (math.sqrt(3.0) * tx.secondary_v * tx.impedance_pct / 100)
+                      + motors_va / (math.sqrt(3.0) * tx.secondary_v))
+        else:
+            bus[i] = feed * (1.0 if seg.phases == 3 else math.sqrt(3.0))  # L-N: √3 I at U0
+    return out
+
+
+def enforce_withstand(scenario: Scenario, segments: tuple[Segment, ...],
+                      profile: RuleProfile, catalogue: Catalogue, prices: PriceList,
+                      table: CandidateTable, *, keep_pins: bool = False
+                      ) -> tuple[CandidateTable, np.ndarray]:
+    """Drop the rows of ``withstand = "enforce"`` runs that fail the adiabatic withstand.
+
+    Segment-local: each row's I²t (``withstand_i2t_a2s``) against the device's
+    let-through, or against ``near_fault_bound_a``² × clearing time. Returns the table
+    and the rows removed per segment.
+    """
+    bound = near_fault_bound_a(scenario, segments, profile)
+    seg_of = table.segment
+    enforce = np.array([s.node.withstand == "enforce" for s in segments])[seg_of]
+    rows = np.flatnonzero(enforce)
+    i2t, _ = withstand_i2t_a2s(profile, catalogue, prices, segments, table, rows)
+    need = np.array([
+        s.node.let_through_a2s if s.node.let_through_a2s is not None
+        else bound[i] ** 2 * (s.node.clearing_time_s or profile.default_clearing_time_s)
+        for i, s in enumerate(segments)])[seg_of[rows]]
+    keep = np.ones(len(table), dtype=bool)
+    keep[rows] = ~(i2t < need)  # an infinite need (no source level) is never met
+    if keep_pins:
+        pinned = np.array([s.node.pin is not None for s in segments])[seg_of]
+        keep |= pinned
+    removed = np.bincount(seg_of[~keep], minlength=len(segments))
+    return take_rows(table, keep), removed
+
+
+def earth_voltages_v(scenario: Scenario, segments: tuple[Segment, ...]) -> np.ndarray:
+    """U0 of every run: the voltage to earth of its line conductors (V).
+
+    The neutral voltage of the bus feeding it (V/√3 on a three-phase bus, V/2 on a
+    centre-tapped single-phase one), or the circuit voltage where the bus has none.
+    """
+    def neutral(volts: float, phases: int) -> float:
+        return volts / math.sqrt(3.0) if phases == 3 else volts / 2.0
+
+    src = scenario.source
+    bus = [0.0] * len(segments)  # neutral voltage of each node's own bus (0: none)
+    u0 = np.empty(len(segments))
+    for i, seg in enumerate(segments):
+        p = seg.parent_index
+        feed = neutral(src.voltage_v, src.phases) if p < 0 else bus[p]
+        u0[i] = feed if feed > 0 else seg.voltage_v
+        tx = seg.node.transformer
+        if tx is not None:
+            bus[i] = neutral(tx.secondary_v, tx.secondary_phases)
+        elif seg.phases == 3:
+            bus[i] = neutral(seg.voltage_v, 3)
+        elif seg.line_to_neutral:
+            bus[i] = 0.0
+        else:
+            bus[i] = feed if 0 < feed < seg.voltage_v else 0.0
+    return u0
+
+
+def earth_fault_terms(scenario: Scenario, segments: tuple[Segment, ...],
+                      profile: RuleProfile, parent: np.ndarray) -> EarthFaultTerms:
+    """Per-segment U0, trip current and loop-impedance budget of the disconnection rule."""
+    rule = profile.fault
+    src = scenario.source
+    n = len(segments)
+    u0 = earth_voltages_v(scenario, segments)
+    trip = np.array([trip_current_a(seg.node.device or default_device(seg.ocpd_a, rule),
+                                    seg.ocpd_a, seg.is_leaf, rule, seg.node.trip_multiple)
+                     for seg in segments])
+    src_u0 = src.voltage_v / (math.sqrt(3.0) if src.phases == 3 else 2.0)
+    z_src = source_loop_ohm(src.fault_current_a, src.voltage_v, src.phases, src.x_r,
+                            rule.c_max)
+    source_pu = complex(loop_pu(z_src, src_u0, S_BASE_VA))
+    xfmr = np.zeros(n, dtype=np.complex128)
+    for i, seg in enumerate(segments):
+        tx = seg.node.transformer
+        if tx is None:
+            continue
+        # Zero sequence equal to positive (a Dyn transformer, common practice): the loop
+        # share is the per-phase impedance, ohm at the secondary.
+        z_ohm = tx.impedance_pct / 100.0 * tx.secondary_v**2 / tx.rating_va
+        sec_u0 = tx.secondary_v / (math.sqrt(3.0) if tx.secondary_phases == 3 else 2.0)
+        angle = math.atan(tx.x_r)
+        z = complex(z_ohm * math.cos(angle), z_ohm * math.sin(angle))
+        xfmr[i] = complex(loop_pu(z, sec_u0, S_BASE_VA))
+    above = path_totals(parent, np.abs(xfmr)) - np.abs(xfmr)  # transformers strictly above
+    allowed = rule.c_min * S_BASE_VA / (u0 * trip)
+    limit = allowed - abs(source_pu) - above
+    return EarthFaultTerms(u0, trip, source_pu, xfmr, limit, rule.c_min)
+
+
+def loop_pu_of_rows(prep: Prepared) -> np.ndarray:
+    """|line + protective conductor| of every candidate row, per unit on its U0."""
+    t = prep.table
+    return np.abs(loop_pu(t.loop_ohm, prep.earth.u0_v[t.segment], S_BASE_VA))
 
 
 def objective_costs(table: CandidateTable, objective: Objective,
@@ -159,8 +315,13 @@ def objective_costs(table: CandidateTable, objective: Objective,
 
 
 def build_problem(prep: Prepared, objective: Objective, *, loss_weight: float | None = None,
-                  limit_pct: np.ndarray | None = None, **side: object) -> Problem:
-    """The engine-facing statement: costs and drops per candidate, limits per segment."""
+                  limit_pct: np.ndarray | None = None, disconnection: bool = True,
+                  **side: object) -> Problem:
+    """The engine-facing statement: costs and drops per candidate, limits per segment.
+
+    ``disconnection``: keep every run's far-end earth-fault loop within the budget that
+    lets its device disconnect in time (False: left out, to see what it costs).
+    """
     t = prep.table
     return Problem(
         parent=prep.parent,
@@ -172,6 +333,8 @@ def build_problem(prep: Prepared, objective: Objective, *, loss_weight: float | 
         capex=t.capex,
         loss_pv=t.loss_pv,
         **_route_terms(prep),  # type: ignore[arg-type]
+        loop_pu=loop_pu_of_rows(prep) if disconnection else None,
+        loop_limit_pu=prep.earth.limit_pu if disconnection else None,
         **side,  # type: ignore[arg-type]
     )
 
@@ -347,10 +510,12 @@ def design_from_solution(prep: Prepared, solution: Solution, objective: str, *,
 def optimise(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
              engine: str = "auto", solver: str = "cbc", time_limit_s: float | None = None,
              limit_pct: np.ndarray | None = None, loss_weight: float | None = None,
-             motor_start: bool = False, **side: object) -> Design:
+             motor_start: bool = False, disconnection: bool = True,
+             **side: object) -> Design:
     """Solve for the cheapest compliant design; infeasible problems come back diagnosed.
 
-    ``motor_start`` adds each motor's starting dip as a second path constraint (MILP).
+    ``motor_start`` adds each motor's starting dip as a further path constraint;
+    ``disconnection`` (default) the earth-fault loop of every run.
     """
     if motor_start and any(seg.node.motor is not None for seg in prep.segments):
         side["drop2_pct"], side["limit2_pct"] = motor_start_terms(prep)
@@ -359,13 +524,17 @@ def optimise(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
         return empty_design(prep, DesignStatus.INFEASIBLE, objective.value,
                             tuple(diagnose(prep)))
     problem = build_problem(prep, objective, loss_weight=loss_weight, limit_pct=limit_pct,
-                            **side)
+                            disconnection=disconnection, **side)
     solution = solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
 
     def why() -> list[str]:
         lines = diagnose(prep, limit_pct)
         if "drop2_pct" in side:
             lines = [*_motor_start_diagnosis(prep), *lines[:-1]] or lines
+        earth = disconnection_diagnosis(prep) if disconnection else []
+        if earth:
+            generic = ["no design satisfies the combined constraints"]
+            lines = earth + [line for line in lines if line not in generic]
         return lines
 
     return design_from_solution(prep, solution, objective.value, diagnosis=why)
@@ -384,7 +553,13 @@ def diagnose(prep: Prepared, limit_pct: np.ndarray | None = None) -> list[str]:
         if t.offsets[s + 1] > t.offsets[s]:
             continue
         cable = seg.node.cable
-        if local.pinned_fails[s]:
+        if prep.withstand_removed[s]:
+            lines.append(
+                f"segment '{seg.id}': no allowed conductor withstands the short circuit "
+                f"(withstand = \"enforce\"); fix: a current-limiting device (give its "
+                f"let_through), a shorter clearing_time, more parallel sets (max_sets), or "
+                f"thermoset insulation (insulation_type)")
+        elif local.pinned_fails[s]:
             lines.append(f"segment '{seg.id}': the pinned conductor {seg.node.pin} breaks the "
                          f"{local.pinned_fails[s]} rule; unpin it or pin a larger one")
         elif local.build_limits and local.build_limits[s]:
@@ -425,6 +600,35 @@ def diagnose(prep: Prepared, limit_pct: np.ndarray | None = None) -> list[str]:
             f"lowest-drop conductors, limit {limits[s]:g} %; largest share on '{seg.id}' "
             f"({best[worst]:.2f} %); fix: {fixes}")
     return lines or ["no design satisfies the combined constraints"]
+
+
+def disconnection_diagnosis(prep: Prepared) -> list[str]:
+    """Paths whose far-end earth fault stays below the trip current whatever is chosen.
+
+    With the lowest-impedance conductors everywhere: the path, the best current, the fix.
+    """
+    t = prep.table
+    loop = loop_pu_of_rows(prep)
+    best = np.full(len(prep.segments), np.inf)
+    np.minimum.at(best, t.segment, loop)
+    path = path_totals(prep.parent, best)
+    e = prep.earth
+    lines = []
+    for s in np.flatnonzero(path > e.limit_pu + 1e-9).tolist():
+        chain = prep.topology.path(s)
+        seg = prep.segments[s]
+        names = " → ".join([prep.scenario.source.id] + [prep.segments[k].id for k in chain])
+        fixed = e.limit_pu[s] - e.c_min * S_BASE_VA / (e.u0_v[s] * e.trip_a[s])  # −source…
+        best_a = e.c_min * S_BASE_VA / (e.u0_v[s] * (path[s] - fixed))
+        worst = max(chain, key=lambda k: best[k])
+        lines.append(
+            f"path {names}: the far-end earth fault reaches at best {best_a:.0f} A with the "
+            f"lowest-impedance conductors, below the {e.trip_a[s]:.0f} A that disconnects "
+            f"the {seg.ocpd_a:g} A device in time (largest share on "
+            f"'{prep.segments[worst].id}'); fix: a device that trips at a lower current "
+            f"(curve B, a lower instantaneous setting), residual-current protection, more "
+            f"parallel sets (max_sets), or a shorter run")
+    return lines
 
 
 def _motor_start_diagnosis(prep: Prepared) -> list[str]:
@@ -481,7 +685,8 @@ def check(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",
     solution = solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
     if solution.status is not SolveStatus.OPTIMAL:
         # The pins break a path limit: fill the rest without path limits and report.
-        relaxed = replace(problem, limit_pct=np.full_like(problem.limit_pct, np.inf))
+        relaxed = replace(problem, limit_pct=np.full_like(problem.limit_pct, np.inf),
+                          loop_pu=None, loop_limit_pu=None)
         solution = solve(relaxed, engine=engine, solver=solver, time_limit_s=time_limit_s)
     design = design_from_solution(prep, solution, "check", status=DesignStatus.COMPLIANT)
     if not design.segments:

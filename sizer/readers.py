@@ -341,6 +341,70 @@ def read_depth(value: Any, text: bool = False) -> float:
     if not (math.isfinite(x) and 0.2 <= x <= 5.0):
         raise ScenarioError(f"must be a depth between 0.2 m and 5 m, got {show(value)}")
     return x
+DEVICE_WORDS = ("B", "C", "D", "breaker", "fuse")
+"""Overcurrent devices for the disconnection rule: miniature breakers by IEC 60898-1
+curve, a moulded-case breaker, a fuse (sizer.rules.profile.DEVICES)."""
+MAX_TRIP_MULTIPLE = 50.0
+
+
+def read_device(value: Any, text: bool = False) -> str:
+    """The run's overcurrent device: B, C, D (miniature breaker curves), breaker, fuse."""
+    word = read_text(value)
+    for known in DEVICE_WORDS:
+        if word.lower() == known.lower():
+            return known
+    raise ScenarioError(f"unknown device {word!r}{suggest(word, DEVICE_WORDS)} "
+                        f"(use {', '.join(DEVICE_WORDS)}, or \"auto\")")
+
+
+def read_trip_multiple(value: Any, text: bool = False) -> float:
+    """Current that disconnects the device in time, as a multiple of its rating."""
+    x = read_number(value, text)
+    if not 1 <= x <= MAX_TRIP_MULTIPLE:
+        raise ScenarioError(f"must be from 1 to {MAX_TRIP_MULTIPLE:g} (× the device "
+                            f"rating), got {show(value)}")
+    return x
+
+
+INSULATION_TYPES = ("thermoplastic", "thermoset")
+WITHSTAND_WORDS = ("finding", "enforce")
+_I2T_SCALE = {"a2s": 1.0, "ka2s": 1e6, "ma2s": 1e12}
+
+
+def read_insulation_type(value: Any, text: bool = False) -> str:
+    """The insulation family: thermoplastic (PVC, THHN) or thermoset (XLPE, EPR, XHHW-2)."""
+    word = read_text(value).lower()
+    if word not in INSULATION_TYPES:
+        raise ScenarioError(f"unknown insulation type {word!r}"
+                            f"{suggest(word, INSULATION_TYPES)} (use thermoplastic, "
+                            "thermoset, or \"auto\")")
+    return word
+
+
+def read_withstand(value: Any, text: bool = False) -> str:
+    """How the short-circuit withstand is used: a finding, or enforced on the candidates."""
+    word = read_text(value).lower()
+    if word not in WITHSTAND_WORDS:
+        raise ScenarioError(f"must be \"finding\" or \"enforce\", got {show(value)}")
+    return word
+
+
+def read_let_through(value: Any, text: bool = False) -> float:
+    """A device's let-through energy I²t in A²s: "50000 A2s", "1.2 kA2s", "3e4 A^2 s"."""
+    raw = read_text(value)
+    compact = raw.replace(" ", "").replace("²", "2").replace("^2", "2").replace("*", "")
+    for unit, scale in sorted(_I2T_SCALE.items(), key=lambda kv: -len(kv[0])):
+        if compact.lower().endswith(unit):
+            number = compact[: -len(unit)]
+            try:
+                x = float(number) * scale
+            except ValueError:
+                break
+            if not (math.isfinite(x) and x > 0):
+                break
+            return x
+    raise ScenarioError(f"must be a let-through energy like \"50000 A2s\" or "
+                        f"\"1.2 kA2s\", got {show(value)}")
 
 
 def read_installation(value: Any, text: bool = False) -> str:

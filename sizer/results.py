@@ -17,12 +17,14 @@ from sizer.model import Design, DesignStatus, Totals
 from sizer.optimize import Objective, Prepared
 from sizer.workflow import (
     LOADFLOW_DROP_RULE,
+    DisconnectionDriver,
     FrontierPoint,
     Option,
     Progress,
     Verification,
     check_verified,
     compare_options,
+    disconnection_drivers,
     frontier,
     frontier_designs,
     quiet,
@@ -54,6 +56,7 @@ class Results:
     frontier_points: tuple[FrontierPoint, ...] = ()
     notes: tuple[str, ...] = field(default=())
     frontier_designs: tuple[Design, ...] = ()
+    disconnection_drivers: tuple[DisconnectionDriver, ...] = ()
 
     @property
     def title(self) -> str:
@@ -126,10 +129,13 @@ def solve_results(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
                                               motor_start=motor_start)
     options: tuple[Option, ...] = ()
     points: tuple[FrontierPoint, ...] = ()
+    drivers: tuple[DisconnectionDriver, ...] = ()
     if compare and design.segments:
         options = tuple(compare_options(prep, engine=engine, solver=solver,
                                         time_limit_s=time_limit_s, progress=progress,
                                         solved=[design]))
+        progress("runs sized by disconnection rather than drop")
+        drivers = disconnection_drivers(prep, design)
     if frontier_points and design.segments:
         progress("frontier of upfront cost against losses")
         points = tuple(frontier(prep, frontier_points, engine=engine, solver=solver,
@@ -144,7 +150,8 @@ def solve_results(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
     kept = [(p, d) for p, d in zip(points, designs, strict=True)
             if not any(v.rule == LOADFLOW_DROP_RULE for v in d.violations)]
     return Results(prep, design, verification, options, tuple(p for p, _ in kept),
-                   frontier_designs=tuple(d for _, d in kept))
+                   frontier_designs=tuple(d for _, d in kept),
+                   disconnection_drivers=drivers)
 
 
 def check_results(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",

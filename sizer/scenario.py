@@ -637,9 +637,11 @@ def _read_motor(raw: Mapping[str, Any], parent: _Fields) -> Motor | None:
     start_multiple = f.get("start_multiple", read_number,
                            fields.field("motor", "start_multiple").default)
     start_pf = f.get("start_pf", read_fraction, fields.field("motor", "start_pf").default)
+    fault_multiple = f.get("fault_multiple", read_number, None)
     if f.bad or power is None:
         return None
-    return f.build(Motor, power_w=power, start_multiple=start_multiple, start_pf=start_pf)
+    return f.build(Motor, power_w=power, start_multiple=start_multiple, start_pf=start_pf,
+                   fault_multiple=fault_multiple)
 
 
 # --- from drafts to nodes --------------------------------------------------------------------
@@ -724,6 +726,12 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 operating=Operating(**{
                     name: v.get(key, defaults.get(key)) for key, name in _OPERATING_KEYS}),
                 route=v.get("route", ""), load_terminal_max=v.get("load_terminal_max", ""),
+                device=v.get("device", defaults["device"]),
+                trip_multiple=v.get("trip_multiple", defaults["trip_multiple"]),
+                insulation_type=v.get("insulation_type", defaults["insulation_type"]),
+                let_through_a2s=v.get("let_through", defaults["let_through"]),
+                withstand=v.get("withstand", defaults["withstand"]),
+                interrupting_a=v.get("interrupting", defaults["interrupting"]),
             ))
         except ScenarioError as exc:
             report.add_error(exc, node=d.id, file=d.file)
@@ -763,6 +771,12 @@ def _schedule_row(n: Node) -> dict[str, str]:
         "device_100_percent": "true" if n.device_100_percent else "",
         "clearing_time": ("auto" if n.clearing_time_s is None
                           else f"{_num(n.clearing_time_s)} s"),
+        "device": n.device or "auto",
+        "trip_multiple": "auto" if n.trip_multiple is None else _num(n.trip_multiple),
+        "insulation_type": n.insulation_type or "auto",
+        "let_through": "" if n.let_through_a2s is None else f"{_num(n.let_through_a2s)} A2s",
+        "withstand": n.withstand,
+        "interrupting": "" if n.interrupting_a is None else f"{_num(n.interrupting_a)} A",
         "materials": ", ".join(c.materials),
         "insulation": f"{_num(c.insulation_c)} degC",
         "terminals": "auto" if c.terminals_c is None else f"{_num(c.terminals_c)} degC",
@@ -799,7 +813,9 @@ def _schedule_row(n: Node) -> dict[str, str]:
     if (m := n.motor) is not None:
         row |= {"motor.power": f"{_num(m.power_w)} W",
                 "motor.start_multiple": _num(m.start_multiple),
-                "motor.start_pf": _num(m.start_pf)}
+                "motor.start_pf": _num(m.start_pf),
+                "motor.fault_multiple": ("" if m.fault_multiple is None
+                                         else _num(m.fault_multiple))}
     return row
 
 

@@ -32,9 +32,10 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from sizer.errors import InternalError
+from sizer.faults import S_BASE_VA
 
-S_BASE_VA = 1.0e6
-"""System power base (VA); results do not depend on it."""
+__all__ = ["S_BASE_VA", "LoadFlowResult", "Network", "fault_currents_a", "load_flow",
+           "motor_shunt_y_pu", "motor_start_dip_pct", "source_z_pu", "thevenin_z_pu"]
 
 _SQRT3 = math.sqrt(3.0)
 # A single-phase circuit whose voltage is below this fraction of its supply bus's
@@ -284,27 +285,95 @@ def load_flow(net: Network, tol_pu: float = 1e-8, max_iter: int = 100) -> LoadFl
     return _sweep(net, net.load_va / S_BASE_VA, tol_pu, max_iter)
 
 
+def source_z_pu(source_fault_a: float | None, source_v: float, source_x_r: float,
+                source_phases: int = 3, c: float = 1.0) -> complex:
+    """Source impedance in pu on ``S_BASE_VA``: ``|Z| = c / I_fault_pu`` at ``atan(X/R)``.
+
+    IEC 60909-0 network feeder ``Z_Q = c·U_n/(√3·I''_kQ)``: with ``c`` the factor the
+    given level was computed with, the fault at the source bus returns that level. The
+    level is three-phase when ``source_phases`` is 3, a single-phase loop level when 1.
+    None: an infinite bus (zero impedance).
+    """
+    if source_v is None or not (math.isfinite(source_v) and source_v > 0):
+        raise InternalError(f"must be a positive voltage, got {source_v}", field="source_v")
+    if source_phases not in (1, 3):
+        raise InternalError(f"must be 1 or 3, got {source_phases}", field="source_phases")
+    if source_fault_a is None:
+        return 0j
+    if not (math.isfinite(source_fault_a) and source_fault_a > 0):
+        raise InternalError(f"must be a positive current, got {source_fault_a}",
+                            field="source_fault_a")
+    if not source_x_r >= 0:
+        raise InternalError(f"must be >= 0, got {source_x_r}", field="source_x_r")
+    base_a = S_BASE_VA / ((_SQRT3 if source_phases == 3 else 1.0) * source_v)
+    angle = math.atan(source_x_r)  # atan(inf) = π/2: a pure reactance
+    return complex(math.cos(angle), math.sin(angle)) * c * base_a / source_fault_a
+
+
+def thevenin_z_pu(net: Network, z_src_pu: complex, shunt_y_pu: np.ndarray) -> np.ndarray:
+    """Thévenin impedance (pu) at every node's bus with shunt admittances at the buses.
+
+    Running motors feeding a fault are shunts (IEC 60909-0: a motor is its locked-rotor
+    impedance behind a zero source). Bottom-up, each subtree's admittance seen from its
+    parent's bus; top-down, the impedance looking up from each bus; the Thévenin
+    impedance is the two in parallel. Exact for the radial network.
+    """
+    n = net.n
+    z_t = (net.cable_z_pu() + net.xfmr_z_pu()).tolist()
+    par = net.parent.tolist()
+    y_down = [complex(v) for v in np.asarray(shunt_y_pu, dtype=np.complex128).tolist()]
+    y_branch = [0j] * n  # admittance of the branch (cable + subtree) seen from the parent bus
+    for i in range(n - 1, -1, -1):
+        y_branch[i] = 1.0 / (z_t[i] + 1.0 / y_down[i]) if y_down[i] != 0 else 0j
+        if par[i] >= 0:
+            y_down[par[i]] += y_branch[i]
+    y_src_bus = sum((y_branch[i] for i in range(n) if par[i] < 0), 0j)
+    z_up = [0j] * n
+    for i in range(n):
+        p = par[i]
+        if p < 0:
+            if z_src_pu == 0:
+                z_excl = 0j
+            else:
+                z_excl = 1.0 / (1.0 / z_src_pu + y_src_bus - y_branch[i])
+        else:
+            if z_up[p] == 0:
+                z_excl = 0j
+            else:
+                z_excl = 1.0 / (1.0 / z_up[p] + y_down[p] - y_branch[i])
+        z_up[i] = z_t[i] + z_excl
+    out = np.empty(n, dtype=np.complex128)
+    for i in range(n):
+        out[i] = 0j if z_up[i] == 0 else 1.0 / (1.0 / z_up[i] + y_down[i])
+    return out
+
+
 def fault_currents_a(
     net: Network,
     source_fault_a: float | None,
     source_v: float,
     source_x_r: float,
     source_phases: int = 3,
+    *,
+    c: float = 1.0,
+    source_c: float | None = None,
+    shunt_y_pu: np.ndarray | None = None,
 ) -> np.ndarray:
-    """Prospective bolted fault current (A) at each node's bus, prefault voltage 1 pu.
+    """Prospective bolted fault current (A) at each node's bus: ``c·I_base/|Z|``.
 
-    Source impedance: ``|Z| = 1 / I_fault_pu`` at angle ``atan(source_x_r)``, from the
-    available current ``source_fault_a`` at ``source_v`` (three-phase level when
-    ``source_phases`` is 3, the single-phase loop level when 1). ``source_fault_a=None``
-    means an infinite bus: zero source impedance (the caller says so in its report);
-    a node with no impedance between it and an infinite bus gets ``inf``.
+    Source impedance from ``source_z_pu`` with ``source_c`` (default ``c``), so the
+    source bus returns the level given. ``c`` is the IEC 60909-0 voltage factor (1.0: a
+    plain 1 pu prefault voltage; c_max with conductor R at 20 degC for the maximum,
+    c_min with R hot for the minimum). ``shunt_y_pu``: admittance at each bus of running
+    motors that feed the fault (None: none). ``source_fault_a=None`` means an infinite
+    bus; a node with no impedance between it and an infinite bus gets ``inf``.
 
-    Three-phase nodes: ``I = S_base / (√3·V_bus) / |Z_source + Σ Z_path|``, cables and
-    transformers on the way, at the node's own bus voltage.
+    Three-phase nodes: ``I = c·S_base / (√3·V_bus) / |Z_th|``, cables and transformers
+    on the way, motors in parallel.
 
     Single-phase nodes: a line-to-neutral (bolted, far-end) estimate
-    ``I = V / |Z_up + 2·z|``: the circuit's loop impedance (both conductors, and any
-    single-phase segments and transformers above it) plus the upstream per-phase
+    ``I = c·V / |Z_up + 2·z|``: the circuit's loop impedance (both conductors, and any
+    single-phase segments and transformers above it) plus the upstream Thévenin
     impedance of the three-phase bus the single-phase part hangs on, which is taken once
     for a circuit fed line-to-neutral (so at zero length it equals that bus's
     three-phase level) and twice for one fed line-to-line (``√3/2`` of it).
@@ -312,26 +381,13 @@ def fault_currents_a(
     single-phase source (``source_phases=1``) the source level is already a loop level
     and is only referred to each circuit's voltage.
     """
-    if source_v is None or not (math.isfinite(source_v) and source_v > 0):
-        raise InternalError(f"must be a positive voltage, got {source_v}", field="source_v")
-    if source_phases not in (1, 3):
-        raise InternalError(f"must be 1 or 3, got {source_phases}", field="source_phases")
-    if source_fault_a is None:
-        z_src = 0j
-    else:
-        if not (math.isfinite(source_fault_a) and source_fault_a > 0):
-            raise InternalError(f"must be a positive current, got {source_fault_a}",
-                                field="source_fault_a")
-        if not source_x_r >= 0:
-            raise InternalError(f"must be >= 0, got {source_x_r}", field="source_x_r")
-        base_a = S_BASE_VA / ((_SQRT3 if source_phases == 3 else 1.0) * source_v)
-        angle = math.atan(source_x_r)  # atan(inf) = π/2: a pure reactance
-        z_src = complex(math.cos(angle), math.sin(angle)) * base_a / source_fault_a
-
+    z_src = source_z_pu(source_fault_a, source_v, source_x_r, source_phases,
+                        c if source_c is None else source_c)
     z_path = z_src + net._tree.path_sum(net.cable_z_pu() + net.xfmr_z_pu())
+    z_bus = z_path if shunt_y_pu is None else thevenin_z_pu(net, z_src, shunt_y_pu)
     bus_v = net.bus_v
     one_phase = net.phases == 1
-    z_fault = z_path.copy()
+    z_fault = z_bus.copy()
 
     # Single-phase parts: re-count the upstream impedance at the point of entry.
     par = net.parent.tolist()
@@ -347,16 +403,32 @@ def fault_currents_a(
         safe_feed = np.where(from_source, 0, feed)
         feed_v = np.where(from_source, source_v, bus_v[safe_feed])
         z_feed = np.where(from_source, z_src, z_path[safe_feed])
+        z_feed_th = np.where(from_source, z_src, z_bus[safe_feed])
         ratio2 = (feed_v / net.circuit_v[top]) ** 2
         if source_phases == 1:
             times = np.where(from_source, 1.0, _times_upstream(net.circuit_v[top], feed_v))
         else:
             times = _times_upstream(net.circuit_v[top], feed_v)
-        z_fault[idx] = z_path[idx] + (times * ratio2 - 1.0) * z_feed
+        z_fault[idx] = (z_path[idx] - z_feed) + times * ratio2 * z_feed_th
 
     base_a = S_BASE_VA / (np.where(one_phase, 1.0, _SQRT3) * bus_v)
     with np.errstate(divide="ignore"):
-        return base_a / np.abs(z_fault)
+        return c * base_a / np.abs(z_fault)
+
+
+def motor_shunt_y_pu(running_va: np.ndarray, multiple: np.ndarray, r_x: float) -> np.ndarray:
+    """Admittance (pu on ``S_BASE_VA``) of running motors feeding a three-phase fault.
+
+    IEC 60909-0: ``Z_M = (1/(I_LR/I_rM)) · U_rM² / S_rM`` at ``R_M/X_M = r_x``; in pu on
+    the motor bus's voltage ``Z_M = S_base / (multiple · S_rM)``. Zero where there is
+    no motor (``running_va`` or ``multiple`` 0).
+    """
+    s = np.asarray(running_va, dtype=float) * np.asarray(multiple, dtype=float)
+    x = 1.0 / math.hypot(1.0, r_x)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        z_mag = S_BASE_VA / s
+        y = 1.0 / (z_mag * complex(r_x * x, x))
+    return np.where(s > 0, y, 0j)
 
 
 def _times_upstream(circuit_v: np.ndarray, feed_v: np.ndarray) -> np.ndarray:

@@ -13,9 +13,17 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from sizer.conductors import adiabatic_withstand_a
+from sizer.candidates import (
+    MATERIALS,
+    loop_temperature_c,
+    withstand_family,
+    withstand_i2t_a2s,
+)
+from sizer.conductors import impedance_ohm_per_m
 from sizer.engines import solve
+from sizer.engines.problem import path_totals
 from sizer.errors import InternalError
+from sizer.faults import S_BASE_VA, disconnection_time_s, earth_fault_a, loop_pu
 from sizer.model import Design, DesignStatus, Scenario, Violation
 from sizer.optimize import (
     Objective,
@@ -28,7 +36,13 @@ from sizer.optimize import (
 )
 from sizer.spare import has_spare, without_spare
 from sizer.topology import Topology
-from sizer.verify import Network, fault_currents_a, load_flow, motor_start_dip_pct
+from sizer.verify import (
+    Network,
+    fault_currents_a,
+    load_flow,
+    motor_shunt_y_pu,
+    motor_start_dip_pct,
+)
 
 Progress = Callable[[str], None]
 
@@ -136,12 +150,15 @@ class Verification:
     converged: bool
     iterations: int
     loadflow_drop_pct: np.ndarray     # per segment, at its far end (after a transformer)
-    fault_a: np.ndarray               # per segment: bolted fault current at its far end
+    fault_a: np.ndarray               # per segment: maximum three-phase fault at its far end
     fault_near_a: np.ndarray          # per segment: at its near end (what the cable must withstand)
     infinite_source: bool
     findings: tuple[Violation, ...]
     motor_dips: tuple[tuple[str, float], ...]
     rounds: int = 0                   # re-solves of the closed loop
+    fault_min_a: np.ndarray | None = None    # minimum three-phase fault at the far end
+    earth_fault_a: np.ndarray | None = None  # minimum line-to-earth fault at the cable's far end
+    trip_a: np.ndarray | None = None         # current that disconnects the device in time
 
 
 def network_of(prep: Prepared, choice: np.ndarray) -> Network:
@@ -173,17 +190,89 @@ def network_of(prep: Prepared, choice: np.ndarray) -> Network:
     )
 
 
+def chosen_impedance_ohm(prep: Prepared, choice: np.ndarray, temp_c: np.ndarray) -> np.ndarray:
+    """Complex per-phase impedance of each chosen run (sets combined) at ``temp_c``."""
+    t = prep.table
+    rows = np.asarray(choice, dtype=np.int64)
+    out = np.empty(rows.size, dtype=np.complex128)
+    inst = np.array([s.node.cable.installation for s in prep.segments])
+    mat = t.material[rows]
+    length = np.array([s.length_m for s in prep.segments])
+    for name in np.unique(inst).tolist():
+        for m in (0, 1):
+            mask = (inst == name) & (mat == m)
+            if not mask.any():
+                continue
+            r, x = impedance_ohm_per_m(prep.catalogue, MATERIALS[m], t.size_index[rows[mask]],
+                                       temp_c[mask], name, prep.profile.frequency_hz)
+            out[mask] = (r + 1j * x) * length[mask] / t.sets[rows[mask]]
+    return out
+
+
+def motor_contribution_y_pu(prep: Prepared) -> np.ndarray:
+    """Admittance of each running three-phase motor feeding a fault (0 where none)."""
+    rule = prep.profile.fault
+    running = np.zeros(len(prep.segments))
+    multiple = np.full(running.size, rule.motor_multiple)
+    for i, seg in enumerate(prep.segments):
+        motor = seg.node.motor
+        if motor is None or seg.phases != 3:  # single-phase motors are left out
+            continue
+        running[i] = abs(seg.own_load_va) or motor.power_w / max(seg.power_factor, 1e-6)
+        if motor.fault_multiple is not None:
+            multiple[i] = motor.fault_multiple
+    return motor_shunt_y_pu(running, multiple, rule.motor_r_x)
+
+
+def fault_networks(prep: Prepared, choice: np.ndarray) -> tuple[Network, Network]:
+    """The networks of the maximum and minimum fault calculations of IEC 60909-0.
+
+    Maximum: conductor R at 20 degC; minimum: at the fault-loop temperature.
+    """
+    net = network_of(prep, choice)
+    n = len(prep.segments)
+    cold = chosen_impedance_ohm(prep, choice, np.full(n, 20.0))
+    hot_c = loop_temperature_c(prep.profile, np.array(
+        [s.node.cable.insulation_c for s in prep.segments]))
+    hot = chosen_impedance_ohm(prep, choice, hot_c)
+    return replace(net, z_ohm=cold), replace(net, z_ohm=hot)
+
+
+def earth_faults_a(prep: Prepared, choice: np.ndarray) -> np.ndarray:
+    """Minimum line-to-earth fault current (A) at each cable's far end.
+
+    ``c_min · U0 / |Z_source + Σ_path (line + protective conductor) + transformers above|``,
+    complex sums, conductors at the fault-loop temperature (see ``sizer.faults``).
+    """
+    e = prep.earth
+    own = loop_pu(prep.table.loop_ohm[np.asarray(choice, dtype=np.int64)], e.u0_v, S_BASE_VA)
+    cables = path_totals(prep.parent, own.real) + 1j * path_totals(prep.parent, own.imag)
+    xf = path_totals(prep.parent, e.xfmr_pu.real) + 1j * path_totals(prep.parent,
+                                                                        e.xfmr_pu.imag)
+    return earth_fault_a(e.c_min, e.u0_v, e.source_pu + cables + (xf - e.xfmr_pu), S_BASE_VA)
+
+
 def verify_design(prep: Prepared, choice: np.ndarray) -> Verification:
     """Load flow, fault levels, short-circuit withstand and motor-start dip of a choice."""
     net = network_of(prep, choice)
     lf = load_flow(net)
     src = prep.scenario.source
-    fault = fault_currents_a(net, src.fault_current_a, src.voltage_v, src.x_r,
-                             source_phases=src.phases)
+    rule = prep.profile.fault
+    net_max, net_min = fault_networks(prep, choice)
+    fault = fault_currents_a(net_max, src.fault_current_a, src.voltage_v, src.x_r,
+                             source_phases=src.phases, c=rule.c_max,
+                             shunt_y_pu=motor_contribution_y_pu(prep))
+    # Minimum: no motors (IEC 60909-0), the source impedance for c_max (conservative).
+    fault_min = fault_currents_a(net_min, src.fault_current_a, src.voltage_v, src.x_r,
+                                 source_phases=src.phases, c=rule.c_min, source_c=rule.c_max)
     # A fault just past the near end of a cable sees the parent bus's level.
     source_level = src.fault_current_a if src.fault_current_a is not None else math.inf
     near = np.array([fault[p] if p >= 0 else source_level for p in prep.parent.tolist()])
+    earth = earth_faults_a(prep, choice)
+    trip = prep.earth.trip_a
     findings = list(_withstand_findings(prep, choice, near))
+    findings += list(_interrupting_findings(prep, near))
+    findings += list(disconnection_findings(prep, earth, trip))
     drop = np.asarray(lf.drop_pct, dtype=float)
     over = np.flatnonzero(drop > prep.leaf_limit_pct + 1e-6)
     findings += [Violation(prep.segments[i].id, LOADFLOW_DROP_RULE, float(drop[i]),
@@ -210,34 +299,126 @@ def verify_design(prep: Prepared, choice: np.ndarray) -> Verification:
         loadflow_drop_pct=np.asarray(lf.drop_pct, dtype=float), fault_a=np.asarray(fault),
         fault_near_a=near, infinite_source=src.fault_current_a is None,
         findings=tuple(findings), motor_dips=tuple(dips),
+        fault_min_a=np.asarray(fault_min), earth_fault_a=earth, trip_a=trip,
     )
 
 
-def _withstand_findings(prep: Prepared, choice: np.ndarray, near_a: np.ndarray):
-    t = prep.table
-    p = prep.profile
-    final = dict(p.short_circuit_final_c)
+def disconnection_findings(prep: Prepared, earth_a: np.ndarray, trip_a: np.ndarray):
+    """A ``disconnection`` violation for every run whose far-end earth fault is below trip."""
+    rule = prep.profile.fault
     for i, seg in enumerate(prep.segments):
-        r = int(choice[i])
+        if earth_a[i] >= trip_a[i] * (1 - 1e-9):
+            continue
+        time_s = disconnection_time_s(seg.ocpd_a, seg.is_leaf, rule)
+        yield Violation(
+            seg.id, "disconnection", float(earth_a[i]), float(trip_a[i]),
+            f"the minimum earth fault at the far end is {earth_a[i]:.0f} A, below the "
+            f"{trip_a[i]:.0f} A that disconnects the {seg.ocpd_a:g} A device within "
+            f"{time_s:g} s; fix: a larger line or protective conductor on this path, a "
+            f"device that trips at a lower current (curve B, a lower instantaneous "
+            f"setting), or residual-current protection")
+
+
+def _interrupting_findings(prep: Prepared, near_a: np.ndarray):
+    """Devices whose interrupting rating is below the maximum fault where they sit."""
+    for i, seg in enumerate(prep.segments):
+        rating = seg.node.interrupting_a
+        if rating is None or not near_a[i] > rating:
+            continue
+        yield Violation(
+            seg.id, "interrupting rating", near_a[i] / 1e3, rating / 1e3,
+            f"the maximum fault where the {seg.ocpd_a:g} A device sits is "
+            f"{near_a[i] / 1e3:.1f} kA (c_max, motors contributing), above its "
+            f"{rating / 1e3:g} kA interrupting rating; fix: a device rated for the fault, "
+            "or a series-rated combination listed for it")
+
+
+def _withstand_findings(prep: Prepared, choice: np.ndarray, near_a: np.ndarray):
+    """Runs whose conductors would pass their final temperature in a fault at the near end.
+
+    Adiabatic I²t of the chosen sets (IEC 60949, final temperature by insulation family,
+    ``withstand_i2t_a2s``) against the device's let-through I²t when the node gives one,
+    else against I² × clearing time with I the maximum fault at the run's near end.
+    """
+    p = prep.profile
+    rows = np.asarray(choice, dtype=np.int64)
+    i2t, final = withstand_i2t_a2s(p, prep.catalogue, prep.prices, prep.segments,
+                                   prep.table, rows)
+    for i, seg in enumerate(prep.segments):
+        ins = seg.node.cable.insulation_c
+        family = withstand_family(seg, prep.prices, MATERIALS[int(prep.table.material[rows[i]])])
+        kind = f"{family}, " if family else ""
+        limits = f"{kind}{ins:g} → {final[i]:g} degC, IEC 60949"
+        better = "" if final[i] >= p.family_final_c["thermoset"] else ", or thermoset insulation"
+        let_through = seg.node.let_through_a2s
+        if let_through is not None:
+            if let_through > i2t[i]:
+                yield Violation(
+                    seg.id, "short-circuit withstand", let_through, float(i2t[i]),
+                    f"the device lets through {let_through:.3g} A²s, more than the "
+                    f"conductor's {i2t[i]:.3g} A²s ({limits}); fix: a device that lets "
+                    f"through less, or a larger conductor{better}")
+            continue
         if not math.isfinite(near_a[i]):
             continue
-        ins = seg.node.cable.insulation_c
-        final_c = final.get(ins, max(final.values()))
         time_s = seg.node.clearing_time_s or p.default_clearing_time_s
-        material = "Cu" if t.material[r] == 0 else "Al"
-        area = prep.catalogue.area_mm2[int(t.size_index[r])]
-        # Conservative: the conductor starts the fault at its rated temperature.
-        per_set = float(adiabatic_withstand_a(area, time_s, material, ins, final_c))
-        capacity = per_set * int(t.sets[r])
+        capacity = math.sqrt(i2t[i] / time_s)
         if capacity < near_a[i]:
-            # What the device must hold its let-through to: the adiabatic I²t of the sets.
-            allowed_i2t = capacity**2 * time_s
             yield Violation(
                 seg.id, "short-circuit withstand", near_a[i] / 1e3, capacity / 1e3,
                 f"{near_a[i] / 1e3:.1f} kA for {time_s:g} s exceeds the conductor's "
-                f"{capacity / 1e3:.1f} kA adiabatic limit ({ins:g} → {final_c:g} degC, "
-                f"IEC 60949); it needs a device letting through at most "
-                f"{allowed_i2t:.3g} A²s, a shorter clearing time, or a larger conductor")
+                f"{capacity / 1e3:.1f} kA adiabatic limit ({limits}); fix: a device "
+                f"letting through at most {i2t[i]:.3g} A²s (give its let_through), a "
+                f"shorter clearing time, or a larger conductor{better}")
+
+
+@dataclass(frozen=True)
+class DisconnectionDriver:
+    """A run the disconnection rule made larger than drop and ampacity alone would."""
+
+    segment: str
+    without: str          # the conductor chosen without the rule ("50 mm2 Al")
+    chosen: str           # the conductor chosen with it
+    earth_fault_a: float  # minimum far-end earth fault with the chosen conductors
+    trip_a: float
+    ocpd_a: float
+    time_s: float
+
+
+def disconnection_drivers(prep: Prepared, design: Design) -> tuple[DisconnectionDriver, ...]:
+    """Runs upsized by the disconnection rule, not by drop.
+
+    Re-solves the design's objective without the rule and names every run whose
+    conductor (area × sets) is larger with it. Empty for objectives other than capex
+    and lifecycle, and when either solve has no design.
+    """
+    if design.objective not in (o.value for o in Objective) or not design.choice:
+        return ()
+    base = optimise(prep, Objective(design.objective), disconnection=False)
+    if not base.choice:
+        return ()
+    t = prep.table
+    area = prep.catalogue.area_mm2
+    chosen = np.asarray(design.choice, dtype=np.int64)
+    earth = earth_faults_a(prep, chosen)
+    rule = prep.profile.fault
+    out = []
+    for i, (seg, r, b) in enumerate(zip(prep.segments, chosen.tolist(), base.choice,
+                                        strict=True)):
+        grown = area[t.size_index[r]] * t.sets[r] > area[t.size_index[b]] * t.sets[b] * (1 + 1e-9)
+        if not grown:
+            continue
+        s_new, s_old = design.segments[i], base.segments[i]
+        out.append(DisconnectionDriver(
+            seg.id, f"{s_old.sets}x {s_old.size} {s_old.material}".removeprefix("1x "),
+            f"{s_new.sets}x {s_new.size} {s_new.material}".removeprefix("1x "),
+            float(earth[i]), float(prep.earth.trip_a[i]), seg.ocpd_a,
+            disconnection_time_s(seg.ocpd_a, seg.is_leaf, rule)))
+    return tuple(out)
+
+
+def _ka(current_a: float) -> float | None:
+    return float(current_a) / 1e3 if math.isfinite(current_a) else None
 
 
 def with_verification(prep: Prepared, design: Design, choice: np.ndarray,
@@ -245,8 +426,12 @@ def with_verification(prep: Prepared, design: Design, choice: np.ndarray,
     """The design with load-flow drops, fault levels and findings filled in."""
     segments = tuple(
         replace(s, loadflow_drop_pct=float(ver.loadflow_drop_pct[i]),
-                fault_ka=(float(ver.fault_a[i]) / 1e3 if math.isfinite(ver.fault_a[i])
-                          else None))
+                fault_ka=_ka(ver.fault_a[i]),
+                fault_min_ka=None if ver.fault_min_a is None else _ka(ver.fault_min_a[i]),
+                earth_fault_a=(None if ver.earth_fault_a is None
+                               or not math.isfinite(ver.earth_fault_a[i])
+                               else float(ver.earth_fault_a[i])),
+                trip_a=None if ver.trip_a is None else float(ver.trip_a[i]))
         for i, s in enumerate(design.segments))
     notes = list(design.notes)
     if not ver.converged:

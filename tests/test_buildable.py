@@ -527,7 +527,7 @@ def test_terminal_table_beside_the_price_list_replaces_the_profiles(tmp_path: Pa
 
 
 def test_report_prices_the_whole_installation_and_names_refusals(tmp_path: Path) -> None:
-    from sizer.report.html import render_report
+    from sizer.report.html import landing_text, render_report
     from sizer.report.tables import option_row
     from sizer.results import solve_results
     refused = LONG_BRANCH.replace('ocpd = "20 A"\n', 'ocpd = "20 A"\noversize_termination = '
@@ -536,9 +536,11 @@ def test_report_prices_the_whole_installation_and_names_refusals(tmp_path: Path)
                                                 voltage="208 V")))
     results = solve_results(prep, Objective.LIFECYCLE, compare=True)
     text = render_report(results)
-    for header in ("Conductors USD", "Splices USD", "Raceways USD", "Terminal takes", "Lands",
-                   "Raceway"):
+    for header in ("Conductors USD", "Splices USD", "Raceways USD", "Lands", "Raceway"):
         assert header in text, header
+    # the landing cell names the terminal's largest size when a splice is needed
+    assert landing_text("reducing splice", "8 AWG") == "splice to 8 AWG"
+    assert landing_text("direct", "8 AWG") == "direct"
     assert "REC: terminal limit: the 20 A device takes at most 8 AWG per terminal" in text
     row = option_row("lifecycle", "x", results.design, prep.economics, 0.4)
     assert row.capex == pytest.approx(row.conductor_capex + row.termination_capex

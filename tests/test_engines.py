@@ -47,6 +47,8 @@ def brute_force(p: Problem, tol: float = TOL) -> tuple[float, np.ndarray | None]
     feasible &= np.all(path(p.drop_pct[grid] + p.fixed_drop_pct) <= p.limit_pct + tol, axis=1)
     if p.drop2_pct is not None:
         feasible &= np.all(path(p.drop2_pct[grid]) <= p.limit2_pct + tol, axis=1)
+    if p.loop_pu is not None:
+        feasible &= np.all(path(p.loop_pu[grid]) <= p.loop_limit_pu + tol, axis=1)
     if p.capex_cap is not None:
         feasible &= p.capex[grid].sum(axis=1) <= p.capex_cap + tol
     if p.loss_pv_cap is not None:
@@ -95,7 +97,7 @@ def tiny_problems(draw, side: bool = False) -> Problem:
                                          min_size=n, max_size=n))),
     )
     if side:
-        kind = draw(st.sampled_from(["capex", "loss_pv", "group", "drop2", "all"]))
+        kind = draw(st.sampled_from(["capex", "loss_pv", "group", "drop2", "loop", "all"]))
         if kind in ("capex", "all"):
             kwargs["capex"] = np.array(values(0, 40, m))
             kwargs["capex_cap"] = draw(eighths(0, 40 * n))
@@ -111,6 +113,10 @@ def tiny_problems(draw, side: bool = False) -> Problem:
         if kind in ("drop2", "all"):
             kwargs["drop2_pct"] = np.array(values(0, 24, m))
             kwargs["limit2_pct"] = np.array(draw(st.lists(
+                st.one_of(st.just(np.inf), eighths(0, 56)), min_size=n, max_size=n)))
+        if kind in ("loop", "all"):  # the earth-fault loop: a third path resource
+            kwargs["loop_pu"] = np.array(values(0, 24, m))
+            kwargs["loop_limit_pu"] = np.array(draw(st.lists(
                 st.one_of(st.just(np.inf), eighths(0, 56)), min_size=n, max_size=n)))
     return Problem(**kwargs)
 
@@ -253,12 +259,14 @@ def test_milp_equals_exhaustive_enumeration(p: Problem) -> None:
 @given(tiny_problems(side=True))
 def test_side_constraints_equal_exhaustive_enumeration(p: Problem) -> None:
     expected, _ = brute_force(p)
-    sol = solve(p)  # auto: the MILP whenever a side constraint is present
+    sol = solve(p)  # auto: the MILP whenever a cap or a group is present
     if p.has_side_constraints:
         assert sol.engine.startswith("milp")
     assert_matches(sol, expected)
     if sol.has_solution:
         assert p.violations(sol.choice) == []
+    if not p.has_side_constraints:  # path constraints only: the tree engine takes them
+        assert_matches(tree_engine.solve_tree(p), expected)
 
 
 @pytest.mark.parametrize("solver", SOLVERS)

@@ -1175,6 +1175,7 @@ load_factor = 0.5
 
 [defaults]
 materials = ["Cu"]
+trip_multiple = 1      # keeps the least-cost fill that the bug needed (issue 14 rule)
 
 [source]
 id = "S"

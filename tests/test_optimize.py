@@ -13,7 +13,7 @@ from builders import write_scenario
 
 from sizer.cli import main
 from sizer.economics import economic_size_index
-from sizer.optimize import Objective, optimise, prepare
+from sizer.optimize import Objective, loop_pu_of_rows, optimise, prepare
 from sizer.rules.protection import (
     bonding_jumper_size_index,
     egc_size_index,
@@ -135,18 +135,22 @@ def test_path_limit_trades_feeder_against_branches(tmp_path):
     # 208 V, a 60 A feeder of 300 ft and two 30 A branches of 250 ft, copper, one set: each
     # run at its cheapest compliant size drops about 2.6 %, so the paths would reach 5.2 %
     # against the 5 % total. Upsizing the one feeder is cheaper than upsizing both branches:
-    # the optimum must do exactly that, and equal the brute-force optimum.
+    # the optimum must do exactly that, and equal the brute-force optimum (which also
+    # keeps the earth-fault loop of every run within its disconnection budget).
     path = write_scenario(tmp_path, FEEDER_AND_TWO_BRANCHES.format(feeder=300, branch=250),
                           voltage="208 V", max_sets=1)
     prep = prepare(load_scenario(path))
     d = optimise(prep, Objective.CAPEX)
     t = prep.table
+    loop, budget = loop_pu_of_rows(prep), prep.earth.limit_pu
     rows = [range(t.offsets[s], t.offsets[s + 1]) for s in range(3)]
     best = math.inf
     for f in rows[0]:
         for a in rows[1]:
             for b in rows[2]:
-                if max(t.vd_pct[f] + t.vd_pct[a], t.vd_pct[f] + t.vd_pct[b]) <= 5 + 1e-12:
+                if (max(t.vd_pct[f] + t.vd_pct[a], t.vd_pct[f] + t.vd_pct[b]) <= 5 + 1e-12
+                        and loop[f] <= budget[0] and loop[f] + loop[a] <= budget[1]
+                        and loop[f] + loop[b] <= budget[2]):
                     best = min(best, t.capex[f] + t.capex[a] + t.capex[b])
     assert d.totals.capex == pytest.approx(best, rel=1e-12)
     assert max(s.path_vd_pct for s in d.segments) <= 5 + 1e-9
@@ -216,7 +220,10 @@ def test_check_flags_a_hand_made_violating_design(tmp_path, capsys):
 
 
 def test_check_passes_a_compliant_pinned_design(tmp_path):
-    path = write_scenario(tmp_path, PINNED_TOO_SMALL.replace("10 AWG Cu", "4 AWG Cu"))
+    # 4 AWG Cu at the 22 kA source for one cycle: THHN-style thermoplastic (150 degC,
+    # ICEA P-32-382) would reach only 15 kA, so the run is XHHW-2 style thermoset.
+    path = write_scenario(tmp_path, PINNED_TOO_SMALL.replace(
+        "10 AWG Cu", '4 AWG Cu"\ninsulation_type = "thermoset'))
     out = tmp_path / "check.json"
     code = main(["check", str(path), "--json", str(out)])
     doc = json.loads(out.read_text())

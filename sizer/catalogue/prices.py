@@ -13,7 +13,7 @@ from __future__ import annotations
 import csv
 import math
 import re
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, replace
 from dataclasses import field as _field
 from pathlib import Path
@@ -77,6 +77,9 @@ class PriceList:
         """Price of one reducing splice on one conductor, over the catalogue's sizes."""
         got = self.splice_each.get(_material(material))
         return got if got is not None else np.full(len(self.sizes), np.nan)
+    # insulation family of the product line by material ("thermoplastic" | "thermoset"),
+    # from the header's ``insulation_type``; a material not named is not stated
+    insulation_type: Mapping[str, str] = _field(default_factory=lambda: MappingProxyType({}))
 
     def conductor(self, material: str) -> FloatArray:
         """Price of one conductor per metre over the catalogue's sizes."""
@@ -300,6 +303,7 @@ def load_price_list(
     race_path = raceway_list_path(path)
     raceways = load_raceway_prices(race_path, currency) if race_path.is_file() else None
     term_path = Path(path).with_name(f"{Path(path).stem}.terminals.csv")
+    families = _insulation_types(header.get("insulation_type"), fail)
     as_listed = PriceList(
         currency=currency,
         source=f"{Path(path).name}: {described}" if described else Path(path).name,
@@ -312,6 +316,7 @@ def load_price_list(
         splice_each=MappingProxyType(splice_each),
         raceways=raceways,
         terminals_path=term_path if term_path.is_file() else None,
+        insulation_type=MappingProxyType(families),
     )
     new = {mat: value for mat, value in (("Cu", copper_per_kg), ("Al", aluminium_per_kg))
            if value is not None}
@@ -457,3 +462,26 @@ def resolve_price_list(text: str, scenario_dir: str | Path) -> Path:
         raise ScenarioError(f"price list {text!r} not found in {Path(scenario_dir)} "
                             f"nor among the bundled lists ({exc.message})",
                             field="catalogue") from None
+
+
+_FAMILIES = ("thermoplastic", "thermoset")
+
+
+def _insulation_types(text: str | None,
+                      fail: Callable[[str, str], ScenarioError]) -> dict[str, str]:
+    """``# insulation_type: thermoset`` or ``Cu thermoplastic, Al thermoset``."""
+    if text is None:
+        return {}
+    words = text.replace(",", " ").split()
+    if len(words) == 1 and words[0].lower() in _FAMILIES:
+        return {"Cu": words[0].lower(), "Al": words[0].lower()}
+    out: dict[str, str] = {}
+    if len(words) % 2 == 0:
+        for mat, fam in zip(words[::2], words[1::2], strict=True):
+            if mat not in ("Cu", "Al") or fam.lower() not in _FAMILIES:
+                break
+            out[mat] = fam.lower()
+        else:
+            return out
+    raise fail(f"insulation_type must be thermoplastic or thermoset, or per material like "
+               f"'Cu thermoplastic, Al thermoset'; got {text!r}", "insulation_type")

@@ -14,7 +14,8 @@ Model, with x_c ∈ {0, 1} per candidate row c, rows R(s) of segment s, parent p
 u_s bounds the cumulative drop at s's far end from above; it exists only for segments
 with a finite limit at or below them, so the model stays sparse (one row per segment, no
 per-path rows); least_s is the least cumulative drop any choice gives. The second
-drop constraint repeats the path rows with drop2/limit2. Caps are single rows over
+drop constraint (drop2/limit2) and the earth-fault loop (loop_pu/loop_limit_pu) repeat
+the path rows with their own values and limits. Caps are single rows over
 all x. A group G with keys K: y_{G,k} ∈ {0, 1}, Σ_k y_{G,k} = 1 and
 Σ_{c ∈ R(s), key_c = k} x_c = y_{G,k} for every s ∈ G, k ∈ K.
 """
@@ -260,9 +261,9 @@ def build_model(problem: Problem) -> tuple[pulp.LpProblem, list[pulp.LpVariable]
         _add(prob, [(v, 1.0) for v in x[a:b]], pulp.LpConstraintEQ, 1.0, f"one{s}")
     add_path_drop_constraints(prob, x, problem, problem.drop_pct, problem.fixed_drop_pct,
                               problem.limit_pct, "d1")
-    if problem.drop2_pct is not None and problem.limit2_pct is not None:
-        add_path_drop_constraints(prob, x, problem, problem.drop2_pct,
-                                  np.zeros(problem.n_segments), problem.limit2_pct, "d2")
+    for k, (own, limit) in enumerate(problem.extra_paths(), start=2):
+        add_path_drop_constraints(prob, x, problem, own, np.zeros(problem.n_segments), limit,
+                                  f"d{k}")
     for name, cap in (("capex", problem.capex_cap), ("loss_pv", problem.loss_pv_cap)):
         if cap is not None:
             coef = getattr(problem, name).tolist()

@@ -9,6 +9,10 @@ that for every segment ``s`` with a finite ``limit_pct[s]``
         ≤ limit_pct[s].
 
 Segments are ordered parents first (``parent[s] < s``; ``-1`` = fed from the source).
+
+Further path constraints of the same additive form may be given: ``drop2_pct`` with
+``limit2_pct`` (motor-start dip) and ``loop_pu`` with ``loop_limit_pu`` (earth-fault loop
+impedance for disconnection). Both engines honour them.
 """
 
 from __future__ import annotations
@@ -86,8 +90,13 @@ class Problem:
     Side constraints (the MILP engine only; the tree engine refuses them):
     ``capex ≤ capex_cap`` and ``loss_pv ≤ loss_pv_cap`` summed over chosen rows;
     ``same_choice_groups``: each group's segments choose rows with equal
-    ``choice_key``; ``drop2_pct``/``limit2_pct``: a second path-drop constraint of the
-    same form (no fixed term: fold a constant into every row of that segment).
+    ``choice_key``.
+
+    Further path constraints (both engines): ``drop2_pct``/``limit2_pct``, a second
+    path-drop constraint of the same form (no fixed term: fold a constant into every
+    row of that segment or into the limits), and ``loop_pu``/``loop_limit_pu``, the
+    earth-fault loop impedance (per unit, see ``sizer.faults``) summed along the path
+    within each segment's limit.
 
     Shared routes (the MILP directly; the tree engine by iteration, see
     ``sizer.engines.routes``): ``route_of[s]`` names the route of segment ``s`` (-1
@@ -116,6 +125,8 @@ class Problem:
     route_of: np.ndarray | None = None
     route_count: np.ndarray | None = None
     route_top: np.ndarray | None = None
+    loop_pu: np.ndarray | None = None
+    loop_limit_pu: np.ndarray | None = None
 
     def __post_init__(self) -> None:
         put = object.__setattr__
@@ -176,14 +187,15 @@ class Problem:
             raise InternalError("same_choice_groups needs choice_key per candidate",
                                 field="choice_key")
 
-        if (self.drop2_pct is None) != (self.limit2_pct is None):
-            raise InternalError("drop2_pct and limit2_pct go together", field="drop2_pct")
-        if self.drop2_pct is not None:
-            put(self, "drop2_pct", _as_float("drop2_pct", self.drop2_pct, m))
-            limit2 = _as_float("limit2_pct", self.limit2_pct, n, finite=False)
-            if np.any(limit2 == -np.inf):
-                raise InternalError("must be a number or +inf, not -inf", field="limit2_pct")
-            put(self, "limit2_pct", limit2)
+        for own, lim in (("drop2_pct", "limit2_pct"), ("loop_pu", "loop_limit_pu")):
+            if (getattr(self, own) is None) != (getattr(self, lim) is None):
+                raise InternalError(f"{own} and {lim} go together", field=own)
+            if getattr(self, own) is not None:
+                put(self, own, _as_float(own, getattr(self, own), m))
+                limit = _as_float(lim, getattr(self, lim), n, finite=False)
+                if np.any(limit == -np.inf):
+                    raise InternalError("must be a number or +inf, not -inf", field=lim)
+                put(self, lim, limit)
 
         given = [a is not None for a in (self.route_of, self.route_count, self.route_top)]
         if any(given) and not all(given):
@@ -238,14 +250,24 @@ class Problem:
 
     @property
     def has_side_constraints(self) -> bool:
-        """True when anything beyond the path-drop limits constrains the choice."""
+        """True when anything but path constraints constrains the choice (caps, groups)."""
         return (
             self.capex_cap is not None
             or self.loss_pv_cap is not None
             or any(g.size > 1 for g in self.same_choice_groups)
-            or (self.limit2_pct is not None and bool(np.any(np.isfinite(self.limit2_pct))))
             or self.has_routes
         )
+
+    def extra_paths(self) -> list[tuple[np.ndarray, np.ndarray]]:
+        """The path constraints beyond the first drop: (value per row, limit per segment).
+
+        Only those with at least one finite limit.
+        """
+        out = []
+        for own, lim in ((self.drop2_pct, self.limit2_pct), (self.loop_pu, self.loop_limit_pu)):
+            if own is not None and lim is not None and bool(np.any(np.isfinite(lim))):
+                out.append((own, lim))
+        return out
 
     def path_sum(self, per_row: np.ndarray, choice: np.ndarray,
                  per_segment: np.ndarray | None = None) -> np.ndarray:
@@ -271,11 +293,12 @@ class Problem:
         drop = self.path_drop_pct(choice)
         for s in seg[drop > self.limit_pct + tol_pct]:
             out.append(f"segment {s}: path drop {drop[s]:.6g} % > {self.limit_pct[s]:.6g} %")
-        if self.drop2_pct is not None and self.limit2_pct is not None:
-            drop2 = self.path_sum(self.drop2_pct, choice)
-            for s in seg[drop2 > self.limit2_pct + tol_pct]:
-                out.append(f"segment {s}: second path drop {drop2[s]:.6g} % > "
-                           f"{self.limit2_pct[s]:.6g} %")
+        for name, own, lim in (("second path drop", self.drop2_pct, self.limit2_pct),
+                               ("earth-fault loop", self.loop_pu, self.loop_limit_pu)):
+            if own is not None and lim is not None:
+                along = self.path_sum(own, choice)
+                for s in seg[along > lim + tol_pct]:
+                    out.append(f"segment {s}: {name} {along[s]:.6g} > {lim[s]:.6g}")
         for name, cap in (("capex", self.capex_cap), ("loss_pv", self.loss_pv_cap)):
             if cap is not None:
                 total = float(np.sum(getattr(self, name)[choice]))

@@ -53,6 +53,7 @@ def restrict(problem: Problem, keep: np.ndarray) -> tuple[Problem, np.ndarray] |
         capex_cap=problem.capex_cap, loss_pv_cap=problem.loss_pv_cap,
         same_choice_groups=problem.same_choice_groups, choice_key=take(problem.choice_key),
         drop2_pct=take(problem.drop2_pct), limit2_pct=problem.limit2_pct,
+        loop_pu=take(problem.loop_pu), loop_limit_pu=problem.loop_limit_pu,
     )
     return sub, rows
 

@@ -36,17 +36,19 @@ no coarser discretisation.
 
 from __future__ import annotations
 
+import dataclasses
 import time
 
 import numpy as np
 
-from sizer.engines.problem import Problem, Solution, SolveStatus
+from sizer.engines.problem import Problem, Solution, SolveStatus, path_totals
 from sizer.errors import InternalError
 
-__all__ = ["DEFAULT_MAX_FRONT", "DEFAULT_MAX_QUERIES", "exact_grid_pct", "solve_tree",
-           "undominated_rows"]
+__all__ = ["DEFAULT_MAX_FRONT", "DEFAULT_MAX_FRONT_MULTI", "DEFAULT_MAX_QUERIES",
+           "exact_grid_pct", "solve_tree", "solve_tree_multi", "undominated_rows"]
 
 DEFAULT_MAX_FRONT = 100_000
+DEFAULT_MAX_FRONT_MULTI = 4_000
 DEFAULT_MAX_QUERIES = 1024
 _ENGINE = "tree"
 
@@ -271,8 +273,15 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
     t0 = time.perf_counter()
     if problem.has_side_constraints:
         raise InternalError(
-            "the tree engine takes no side constraints (budget caps, groups, second drop "
-            "limit); use engine='milp'", field="engine")
+            "the tree engine takes no side constraints (budget caps, groups); use "
+            "engine='milp'", field="engine")
+    if problem.extra_paths():
+        relaxed = _without_slack_paths(problem)
+        if relaxed.extra_paths():
+            return solve_tree_multi(relaxed,
+                                    max_front=min(max_front, DEFAULT_MAX_FRONT_MULTI),
+                                    tol_pct=tol_pct)
+        problem = relaxed  # every further limit holds whatever is chosen: drop alone
     n = problem.n_segments
     parent = problem.parent
     parent_list = parent.tolist()
@@ -474,3 +483,232 @@ def _leaf_fronts(children: list[list[int]], floor: np.ndarray, own_d: np.ndarray
         f_row[s] = row_k[a:b]
         f_below[s] = floor_list[s]
     return int(sizes.max()) if sizes.size else 0
+
+
+# --- several path resources -----------------------------------------------------------
+
+
+def _without_slack_paths(problem: Problem) -> Problem:
+    """The problem with every further path limit that no choice can break set to +inf.
+
+    A limit at segment s holds for every choice when the path to s, with the largest
+    value of every segment on it, stays within it; dropping it is exact. A resource left
+    with no finite limit drops out of ``extra_paths()``.
+    """
+    changes: dict[str, np.ndarray | None] = {}
+    for own, lim, names in ((problem.drop2_pct, problem.limit2_pct,
+                             ("drop2_pct", "limit2_pct")),
+                            (problem.loop_pu, problem.loop_limit_pu,
+                             ("loop_pu", "loop_limit_pu"))):
+        if own is None or lim is None:
+            continue
+        worst = path_totals(problem.parent, np.maximum.reduceat(own, problem.offsets[:-1]))
+        binding = np.isfinite(lim) & (worst > lim)
+        if not binding.any():
+            changes[names[0]] = changes[names[1]] = None
+        elif not np.array_equal(binding, np.isfinite(lim)):
+            changes[names[1]] = np.where(binding, lim, np.inf)
+    return dataclasses.replace(problem, **changes) if changes else problem  # type: ignore[arg-type]
+
+
+def _undominated_multi(cost: np.ndarray, req: np.ndarray, offsets: np.ndarray,
+                       chunk_cells: int = 4_000_000) -> np.ndarray:
+    """Mask of the rows no other row of the same segment beats in cost and every value.
+
+    All segments at once, padded to the widest: a row is dropped when another row needs
+    no more of anything and costs no more (of exact ties the first stays). Chunked so
+    the pairwise comparison stays within ``chunk_cells`` × resources booleans.
+    """
+    n = offsets.size - 1
+    counts = np.diff(offsets)
+    width = int(counts.max())
+    k = req.shape[1]
+    seg = np.repeat(np.arange(n), counts)
+    pos = np.arange(cost.size) - offsets[seg]
+    keep = np.zeros(cost.size, dtype=bool)
+    step = max(1, chunk_cells // max(1, width * width))
+    for a in range(0, n, step):
+        b = min(n, a + step)
+        rows = slice(int(offsets[a]), int(offsets[b]))
+        m = b - a
+        pc = np.full((m, width), np.inf)
+        pr = np.full((m, width, k), np.inf)
+        pc[seg[rows] - a, pos[rows]] = cost[rows]
+        pr[seg[rows] - a, pos[rows]] = req[rows]
+        # beats[s, i, j]: row j of segment s is no worse than row i everywhere
+        beats = pc[:, None, :] <= pc[:, :, None]
+        for r in range(k):
+            beats &= pr[:, None, :, r] <= pr[:, :, None, r]
+        same = (pc[:, None, :] == pc[:, :, None])
+        for r in range(k):
+            same &= pr[:, None, :, r] == pr[:, :, None, r]
+        # an exact twin beats only a later row; no row beats itself
+        j_after_i = np.triu(np.ones((width, width), dtype=bool))
+        beats &= ~(same & j_after_i[None, :, :])
+        dominated: np.ndarray = np.any(beats, axis=2)
+        keep[rows] = ~dominated[seg[rows] - a, pos[rows]]
+    return keep
+
+
+def _prune_multi(cost: np.ndarray, req: np.ndarray) -> np.ndarray:
+    """Indices of the points no other point beats in cost and every requirement.
+
+    Sorted by cost (then requirements), a point is dropped when an earlier one needs no
+    more of every resource; of exact duplicates the first survives.
+    """
+    if cost.size > 1 and np.all(req[:, 1:] == req[0, 1:]):
+        # one requirement varies (the others are equal): the 1-D staircase
+        order = np.lexsort((cost, req[:, 0]))
+        c = cost[order]
+        first = np.empty(c.size, dtype=bool)
+        first[0] = True
+        np.less(c[1:], np.minimum.accumulate(c)[:-1], out=first[1:])
+        return order[first]
+    order = np.lexsort((*req.T[::-1], cost))
+    r = req[order]
+    keep = np.ones(order.size, dtype=bool)
+    block = 256
+    # Dominance is transitive, so comparing with the earlier kept points is enough.
+    for start in range(0, order.size, block):
+        stop = min(start + block, order.size)
+        blk = r[start:stop]
+        prev = r[:start][keep[:start]]
+        dom = np.zeros(stop - start, dtype=bool)
+        if prev.size:
+            dom = np.any(np.all(prev[None, :, :] <= blk[:, None, :], axis=2), axis=1)
+        inner = np.tril(np.all(blk[None, :, :] <= blk[:, None, :], axis=2), -1)
+        dom |= inner.any(axis=1)
+        keep[start:stop] = ~dom
+    return order[keep]
+
+
+def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MULTI,
+                     tol_pct: float = 1e-9) -> Solution:
+    """Exact bottom-up program with several additive path resources.
+
+    The same recursion as :func:`solve_tree`, with a requirement vector per point: for
+    each resource (the drop with its fixed term, then each of ``problem.extra_paths()``)
+    the largest excess over a limit of the path from the subtree's top down to a
+    constrained segment (−inf where none). Children merge by cost sum and elementwise
+    maximum; a segment's row adds its own values; points beaten in cost and every
+    requirement are pruned. A point whose requirement exceeds what the least-value
+    path above can leave is dropped. Past ``max_front`` points at any segment the solve
+    stops with status ERROR (``solve(engine="auto")`` then falls back to the MILP).
+    """
+    t0 = time.perf_counter()
+    n = problem.n_segments
+    parent = problem.parent.tolist()
+    children = _children(problem.parent)
+    values = [problem.drop_pct] + [own for own, _ in problem.extra_paths()]
+    limits = [problem.limit_pct] + [lim for _, lim in problem.extra_paths()]
+    fixed = [problem.fixed_drop_pct] + [np.zeros(n)] * (len(values) - 1)
+    k = len(values)
+    seg_of = problem.segment_of_row
+    # A resource matters to a segment only when its subtree holds a finite limit of it;
+    # elsewhere its values never enter a constrained sum and are set to 0 (exact).
+    relevant = np.column_stack([np.isfinite(lim) for lim in limits])
+    for s in range(n - 1, -1, -1):
+        if parent[s] >= 0:
+            relevant[parent[s]] |= relevant[s]
+    own = np.column_stack(values) * relevant[seg_of]  # [rows, k]
+    multi: np.ndarray = np.any(relevant[:, 1:], axis=1)
+    usable = np.zeros(problem.n_candidates, dtype=bool)
+    rows_1d, _ = undominated_rows(problem)  # drop alone: the fast running minimum
+    usable[rows_1d] = ~multi[seg_of[rows_1d]]
+    if multi.any():
+        pick = np.flatnonzero(multi[seg_of])
+        sub_off = np.concatenate(([0], np.cumsum(np.diff(problem.offsets)[multi])))
+        usable[pick] = _undominated_multi(problem.cost[pick], own[pick], sub_off)
+    seg_rows = np.split(np.flatnonzero(usable),
+                        np.cumsum(np.bincount(seg_of[usable], minlength=n))[:-1])
+    fix = np.column_stack(fixed)                 # [n, k]
+    floor = -np.column_stack(limits)             # [n, k]: −limit (−inf: unconstrained)
+    # least value above each segment, per resource: requirements beyond tol − that fail
+    least_own = np.column_stack([np.minimum.reduceat(v, problem.offsets[:-1])
+                                 for v in values]) + fix
+    most_own = np.column_stack([np.maximum.reduceat(v, problem.offsets[:-1])
+                                for v in values]) + fix
+    above = np.zeros((n, k))
+    above_most = np.zeros((n, k))
+    for s, p in enumerate(parent):
+        if p >= 0:
+            above[s] = above[p] + least_own[p]
+            above_most[s] = above_most[p] + most_own[p]
+    cap = tol_pct - above
+    # A requirement the path above always leaves room for, whatever it chooses, is as
+    # good as any lower one: clamping to it lets such points collapse (exact).
+    low = -above_most  # (not tol − …: keeps the whole tolerance against rounding)
+
+    f_cost: list[np.ndarray] = [np.empty(0)] * n
+    f_req: list[np.ndarray] = [np.empty((0, k))] * n
+    f_row: list[np.ndarray] = [np.empty(0, dtype=np.int64)] * n
+    f_kid: list[np.ndarray] = [np.empty((0, 0), dtype=np.int64)] * n
+    largest = 0
+    for s in range(n - 1, -1, -1):
+        kids = children[s]
+        # merge the children: one point (cost 0, requirement floor) to start
+        m_cost = np.zeros(1)
+        m_req = floor[s][None, :].copy()
+        m_kid = np.zeros((1, 0), dtype=np.int64)
+        for c in kids:
+            a, b = m_cost.size, f_cost[c].size
+            ia = np.repeat(np.arange(a), b)
+            ib = np.tile(np.arange(b), a)
+            m_cost = m_cost[ia] + f_cost[c][ib]
+            m_req = np.maximum(m_req[ia], f_req[c][ib])
+            m_kid = np.column_stack((m_kid[ia], ib))
+            keep = _prune_multi(m_cost, m_req)
+            m_cost, m_req, m_kid = m_cost[keep], m_req[keep], m_kid[keep]
+            if m_cost.size > max_front:
+                return _failure(problem, SolveStatus.ERROR,
+                                _bound_message(f"segment {s}", max_front), t0)
+        rows = seg_rows[s]
+        ia = np.repeat(np.arange(rows.size), m_cost.size)
+        ib = np.tile(np.arange(m_cost.size), rows.size)
+        cost = problem.cost[rows][ia] + m_cost[ib]
+        with np.errstate(invalid="ignore"):  # −inf + value stays −inf
+            req = own[rows][ia] + fix[s] + m_req[ib]
+        ok = np.all(req <= cap[s], axis=1)
+        cost, req, row, kid = cost[ok], req[ok], rows[ia[ok]], m_kid[ib[ok]]
+        req = np.maximum(req, low[s])
+        keep = _prune_multi(cost, req)
+        cost, req, row, kid = cost[keep], req[keep], row[keep], kid[keep]
+        if cost.size == 0:
+            return _failure(
+                problem, SolveStatus.INFEASIBLE,
+                f"tree engine: no choice at or below segment {s} meets its path limits", t0)
+        if cost.size > max_front:
+            return _failure(problem, SolveStatus.ERROR,
+                            _bound_message(f"segment {s}", max_front), t0)
+        largest = max(largest, cost.size)
+        f_cost[s], f_req[s], f_row[s], f_kid[s] = cost, req, row, kid
+        for c in kids:  # children's fronts are only needed through the back pointers
+            f_req[c] = np.empty((0, k))
+
+    point = [0] * n
+    choice = np.empty(n, dtype=np.int64)
+    for s, p in enumerate(parent):
+        if p < 0:
+            feasible = np.flatnonzero(np.all(f_req[s] <= tol_pct, axis=1))
+            if not feasible.size:
+                return _failure(problem, SolveStatus.INFEASIBLE,
+                                f"tree engine: the subtree fed by segment {s} cannot meet "
+                                "its path limits", t0)
+            point[s] = int(feasible[np.argmin(f_cost[s][feasible])])
+        i = point[s]
+        choice[s] = f_row[s][i]
+        for j, c in enumerate(children[s]):
+            point[c] = int(f_kid[s][i, j])
+
+    broken = problem.violations(choice, tol_pct=tol_pct * 10)
+    if broken:  # pragma: no cover - a guard against a bug, never expected
+        return _failure(problem, SolveStatus.ERROR,
+                        "tree engine: internal check failed: " + "; ".join(broken[:3]), t0)
+    return Solution(
+        status=SolveStatus.OPTIMAL, choice=choice,
+        objective=float(np.sum(problem.cost[choice])), proven_optimal=True, gap=0.0,
+        engine=_ENGINE,
+        message=(f"tree engine: {n} segments, {problem.n_candidates} candidates, "
+                 f"{k} path resources, largest front {largest} points"),
+        seconds=time.perf_counter() - t0,
+    )

@@ -119,7 +119,7 @@ def explorer_data(points: Sequence[DesignPoint], shown: int, reference: int,
     out_points = []
     for p in points:
         d = p.design
-        pick, est, lf, fk, up, bind = [], [], [], [], [], []
+        pick, est, lf, fk, ef, up, bind = [], [], [], [], [], [], []
         for i, s in enumerate(d.segments):
             row = (conductor(s), s.egc, round(s.ampacity_a, 1), round(s.vd_pct, 4),
                    round(s.capex, 2), round(s.loss_kw, 5), round(s.loss_pv, 2),
@@ -132,6 +132,7 @@ def explorer_data(points: Sequence[DesignPoint], shown: int, reference: int,
             est.append(_h(s.path_vd_pct))
             lf.append(_h(s.loadflow_drop_pct))
             fk.append(_h(s.fault_ka))
+            ef.append(None if s.earth_fault_a is None else round(s.earth_fault_a))
             if upsized(s, base_by_id.get(s.id)):
                 up.append(i)
             if binds(s, limits[i]):
@@ -148,7 +149,7 @@ def explorer_data(points: Sequence[DesignPoint], shown: int, reference: int,
             "worst": round(max(worst_lf), 4) if len(worst_lf) == len(d.segments) and worst_lf
             else round(d.worst_path_drop_pct(), 4),
             "basis": drop_basis(d),
-            "pick": pick, "est": est, "lf": lf, "fk": fk, "up": up, "bind": bind,
+            "pick": pick, "est": est, "lf": lf, "fk": fk, "ef": ef, "up": up, "bind": bind,
         })
     return {
         "currency": currency, "years": years, "costPerW": cost_per_w_year,
@@ -156,6 +157,7 @@ def explorer_data(points: Sequence[DesignPoint], shown: int, reference: int,
         "reference": reference,
         "codeMinimum": code_minimum,
         "runs": [{"id": s.id, "alts": [list(a) for a in alts[i]],
+                  "trip": None if s.trip_a is None else round(s.trip_a),
                   "lim": [limits[i].own_pct,
                           limits[i].path_pct if math.isfinite(limits[i].path_pct) else None]}
                  for i, s in enumerate(first.segments)],

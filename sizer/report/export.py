@@ -143,9 +143,9 @@ def _fmt(value: Any) -> Any:
 SCHEDULE_COLUMNS = (
     "id", "parent", "kind", "voltage_v", "phases", "length_m", "current_a", "ocpd_a",
     "material", "size", "sets", "egc", "bonding_jumper", "ampacity_a", "temp_c", "vd_pct",
-    "path_vd_pct", "loadflow_drop_pct", "fault_ka", "r_ohm", "x_ohm", "capex", "loss_kw",
-    "loss_pv", "pinned", "terminal_max", "termination", "raceway", "conductor_capex",
-    "termination_capex", "raceway_capex",
+    "path_vd_pct", "loadflow_drop_pct", "fault_ka", "fault_min_ka", "earth_fault_a",
+    "trip_a", "r_ohm", "x_ohm", "capex", "loss_kw", "loss_pv", "pinned", "terminal_max",
+    "termination", "raceway", "conductor_capex", "termination_capex", "raceway_capex",
 )
 
 
@@ -183,6 +183,7 @@ _ZIP_EPOCH = (1980, 1, 1, 0, 0, 0)
 _XLSX_NUMBER_FORMATS = {
     "length_m": "0.0", "current_a": "0.0", "ocpd_a": "0", "ampacity_a": "0", "temp_c": "0.0",
     "vd_pct": "0.00", "path_vd_pct": "0.00", "loadflow_drop_pct": "0.00", "fault_ka": "0.0",
+    "fault_min_ka": "0.0", "earth_fault_a": "0", "trip_a": "0",
     "r_ohm": "0.00000", "x_ohm": "0.00000", "capex": "#,##0", "loss_kw": "0.000",
     "loss_pv": "#,##0", "voltage_v": "0",
 }

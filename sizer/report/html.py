@@ -29,8 +29,9 @@ from sizer.report import tables as tb
 from sizer.report.export import atomic_write
 from sizer.report.tree import node_kind, tree_html
 from sizer.results import Results
+from sizer.rules.profile import RuleProfile
 from sizer.units import M_PER_FT
-from sizer.workflow import FrontierPoint, Option, Progress, Verification, quiet
+from sizer.workflow import DisconnectionDriver, FrontierPoint, Option, Progress, Verification, quiet
 
 # --- small HTML helpers ------------------------------------------------------------------
 
@@ -132,7 +133,8 @@ def render_report(results: Results, *, progress: Progress = quiet,
     prep = results.prep
     progress("report: tables and figures")
     page = _Page(prep, results.design, list(results.options), list(results.frontier_points),
-                 results.verification, results.frontier_designs)
+                 results.verification, results.frontier_designs,
+                 results.disconnection_drivers)
     body = page.body(today or _dt.date.today(), extra_sections)
     template = Template(resources.files("sizer.report").joinpath("template.html")
                         .read_text(encoding="utf-8"))
@@ -150,7 +152,8 @@ class _Page:
 
     def __init__(self, prep: Prepared, design: Design, options: list[Option],
                  points: list[FrontierPoint], ver: Verification | None,
-                 point_designs: Sequence[Design] = ()) -> None:
+                 point_designs: Sequence[Design] = (),
+                 drivers: Sequence[DisconnectionDriver] = ()) -> None:
         self.prep = prep
         self.design = design
         self.options = options
@@ -173,6 +176,7 @@ class _Page:
         self.parent = [int(g.parent_index) for g in prep.segments]
         self.kinds = self._kinds()
         self.descriptions = [g.node.description for g in prep.segments]
+        self.drivers = tuple(drivers)
         self._explorer_points(list(point_designs), points)
 
     def _limits(self) -> list[ex.RunLimits]:
@@ -425,6 +429,7 @@ class _Page:
             ("Load unknown", f"{100 * p.unknown_load_factor:g} % of the device rating"),
             ("Motor-start dip limit", f"{p.motor_start_dip_pct:g} %"),
             ("Fault clearing time", f"{p.default_clearing_time_s:g} s unless a node gives one"),
+            *fault_assumptions(p),
         ]
         given_llf = se.loss_load_factor is not None
         econ = [
@@ -667,10 +672,11 @@ class _Page:
         cols = [("From", "", False), ("Run (to)", "", False), ("Kind", "", False),
                 ("Circuit", "", False), (length, "", True), ("Current A", "", True),
                 ("Device A", "", True), ("Conductor", "c", False), ("EGC/bond", "e", False),
-                ("Terminal takes", "t", False), ("Lands", "g", False), ("Raceway", "r", False),
+                ("Lands", "n", False), ("Raceway", "r", False),
                 ("Ampacity A", "a", True), ("Use %", "u", True), ("Own drop %", "v", True),
                 ("Path drop % linear estimate", "p", True),
                 ("Path drop % load flow", "l", True), ("Fault kA", "f", True),
+                ("Earth fault A / trip A", "g", True),
                 (f"Upfront {cur}", "x", True), ("Loss kW", "w", True),
                 (f"Loss PV {cur}", "q", True)]
         head = "".join(
@@ -692,13 +698,15 @@ class _Page:
                 ("", span, True),
                 ("", num(r.current_a, 1), True), ("", num(r.ocpd_a), True),
                 ("c", esc(cond), False), ("e", esc(r.egc).replace(" ", "\u00a0"), False),
-                ("t", esc(r.terminal_max), False), ("g", esc(r.termination), False),
+                ("n", esc(landing_text(r.termination, r.terminal_max)), False),
                 ("r", esc(r.raceway), False),
                 ("a", num(r.ampacity_a), True), ("u", num(r.utilisation_pct, 0), True),
                 ("v", _flag_html(r.vd_pct, own_limit), True),
                 ("p", _flag_html(r.path_vd_pct, total_limit), True),
                 ("l", _flag_html(r.loadflow_drop_pct, total_limit), True),
-                ("f", num(r.fault_ka, 1), True), ("x", num(r.capex), True),
+                ("f", num(r.fault_ka, 1), True),
+                ("g", _earth_html(r.earth_fault_a, r.trip_a), True),
+                ("x", num(r.capex), True),
                 ("w", num(r.loss_kw, 2), True), ("q", num(r.loss_pv), True)]
             tds = "".join(
                 f'<td{_cls(k, n)}{f" data-k={k}" if k else ""}>{v}</td>' for k, v, n in cells)
@@ -722,14 +730,21 @@ class _Page:
                    "Drops are in % of each circuit's nominal voltage; path drops run from the "
                    "source to the run's far end, transformers included: the linear estimate "
                    "is what the optimiser holds to the limits, the AC load flow checks it. "
-                   "Marked cells exceed their limit. EGC: equipment grounding conductor; "
-                   "Device: the overcurrent device rating.</p>")
+                   "Earth fault: the minimum line-to-earth fault current at the run's far "
+                   "end (IEC 60909 minimum conditions) against the current that disconnects "
+                   "its device in time. Marked cells exceed their limit. EGC: equipment "
+                   "grounding conductor; Device: the overcurrent device rating.</p>")
         out.append(controls)
         out.append(f'<table class="schedule" id="schedule-table"><thead><tr>{head}</tr></thead>'
                    f'<tbody>{"".join(body)}</tbody></table>')
         out.append(f'<p class="note" id="schedule-totals">Totals: upfront {tb.money(t.capex)} '
                    f"{cur}, loss PV {tb.money(t.loss_pv)} {cur}, "
-                   f"{tb.money(t.loss_kwh_per_year)} kWh lost in the first year.</p></section>")
+                   f"{tb.money(t.loss_kwh_per_year)} kWh lost in the first year.</p>")
+        if self.drivers:
+            out.append("<h3>Sized by disconnection, not by drop</h3><ul>"
+                       + "".join(f"<li>{esc(tb.disconnection_sentence(x))}</li>"
+                                 for x in self.drivers) + "</ul>")
+        out.append("</section>")
         return "".join(out)
 
     def figures_section(self) -> str:
@@ -792,6 +807,19 @@ class _Page:
                          f"{hi[0]:.1f} kA ({hi[1]}) down to {lo[0]:.1f} kA ({lo[1]}); source "
                          + (f"{src.fault_current_a / 1e3:g} kA." if src.fault_current_a
                             else "level not given, infinite bus assumed."))
+        lows = [(s.fault_min_ka, s.id) for s in d.segments if s.fault_min_ka is not None]
+        if lows:
+            lo_min = min(lows)
+            items.append(f"Minimum three-phase fault (c_min, conductors hot, no motors): "
+                         f"down to {lo_min[0]:.2f} kA ({lo_min[1]}).")
+        margins = [(s.earth_fault_a / s.trip_a, s.id, s.earth_fault_a, s.trip_a)
+                   for s in d.segments if s.earth_fault_a is not None and s.trip_a]
+        if margins:
+            m = min(margins)
+            items.append(f"Disconnection: the smallest margin of far-end earth fault over "
+                         f"trip current is at {m[1]}, {m[2]:,.0f} A against {m[3]:,.0f} A "
+                         f"(× {m[0]:.2f}); {len(self.drivers)} run(s) sized by this rule "
+                         "rather than by drop.")
         if items:
             out.append("<ul>" + "".join(f"<li>{esc(x)}</li>" for x in items) + "</ul>")
         if d.violations:
@@ -803,14 +831,19 @@ class _Page:
                                                           sorted(counts.items())))
                        + ". Each needs a decision by the designer before the design is "
                        "used.</p>")
-            out.append(table(["Run", "Rule", "Value", "Limit", "What it means"],
-                             ([v.segment, v.rule, _with_unit(v.value, v.rule),
-                               _with_unit(v.limit, v.rule), v.message]
-                              for v in d.violations),
+            groups = tb.group_findings(d)
+            out.append(table(["Runs", "Rule", "Worst value", "Limit", "What it means"],
+                             ([Cell(g.title + ("" if len(g.segments) == 1 else
+                                               f" ({', '.join(g.segments)})")),
+                               g.rule, _with_unit(g.worst.value, g.rule),
+                               _with_unit(g.worst.limit, g.rule),
+                               (g.worst.message if len(g.segments) == 1 else
+                                f"worst at {g.worst.segment}: {g.worst.message}")]
+                              for g in groups),
                              numeric=[False, False, True, True, False]))
         else:
             out.append("<p>No findings from the checks run (ampacity, protection, drop, "
-                       "short-circuit withstand, motor-start dip).</p>")
+                       "disconnection, short-circuit withstand, motor-start dip).</p>")
         if ver is not None and ver.motor_dips:
             limit = self.prep.profile.motor_start_dip_pct
             out.append("<h3>Motor starting</h3>")
@@ -836,12 +869,55 @@ class _Page:
 
 # The unit of a finding's value and limit, by rule (sizer.optimize and sizer.workflow).
 _RULE_UNITS = {"ampacity": "A", "protection": "A", "branch drop": "%", "feeder drop": "%",
-               "total drop": "%", "short-circuit withstand": "kA", "motor-start dip": "%"}
+               "total drop": "%", "short-circuit withstand": "kA", "motor-start dip": "%",
+               "disconnection": "A", "interrupting rating": "kA"}
+
+
+def fault_assumptions(p: RuleProfile) -> list[tuple[str, str]]:
+    """The fault-level and disconnection assumptions of a profile, as report facts."""
+    f = p.fault
+    devices = (f"type {f.device} breakers up to {f.small_device_max_a:g} A, "
+               f"{f.large_device}s above" if f.small_device_max_a < 6000 else
+               f"{f.device}s, instantaneous trip at {f.trip_multiple:g} × rating")
+    temp = ("the insulation's maximum operating temperature"
+            if f.loop_temperature == "operating" else "the final short-circuit temperature")
+    return [
+        ("Maximum fault", f"IEC 60909: c_max {f.c_max:g}, conductors at 20 °C, running "
+                          f"motors at {f.motor_multiple:g} × rated current (R/X "
+                          f"{f.motor_r_x:g})"),
+        ("Minimum fault", f"IEC 60909: c_min {f.c_min:g}, conductors at {temp}, no "
+                          "motors; source impedance from the given level with c_max"),
+        ("Disconnection", f"earth fault at each run's far end (line + protective "
+                          f"conductor of every run on the path) ≥ the device's trip "
+                          f"current; {f.final_time_s:g} s for final circuits up to "
+                          f"{f.final_circuit_max_a:g} A, {f.distribution_time_s:g} s "
+                          "otherwise (IEC 60364-4-41)"),
+        ("Devices assumed", f"{devices}; B 5, C 10, D 20 × In (IEC 60898-1); fuses "
+                            f"{f.fuse_multiple_final:g} × (0.4 s) / "
+                            f"{f.fuse_multiple_distribution:g} × (5 s), from memory"),
+    ]
+
+
+def _earth_html(earth_a: float | None, trip_a: float | None) -> str:
+    """Earth fault against trip current, marked (bold, "over") when it does not reach it."""
+    if earth_a is None or trip_a is None:
+        return ""
+    text = f"{num(earth_a)} / {num(trip_a)}"
+    if earth_a < trip_a * (1 - 1e-9):
+        return f'<strong class="over">{text}</strong>'
+    return text
 
 
 def _with_unit(value: float, rule: str) -> str:
     unit = _RULE_UNITS.get(rule, "")
     return f"{num(value, 2)} {unit}".rstrip()
+
+
+def landing_text(termination: str, terminal_max: str) -> str:
+    """How a run lands on its device, in one schedule cell: "direct" or "splice to SIZE"."""
+    if termination == "reducing splice":
+        return f"splice to {terminal_max}" if terminal_max else "splice"
+    return termination
 
 
 def _flag(value: float | None, limit: float) -> object:

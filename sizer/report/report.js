@@ -71,11 +71,22 @@
         else if (k === "p") { node = flag(h(p.est[i]), run.lim[1]); }
         else if (k === "l") { node = flag(h(p.lf[i]), run.lim[1]); }
         else if (k === "f") { node = document.createTextNode(fixed(h(p.fk[i]), 1)); }
+        else if (k === "g") {
+          var ef = p.ef ? p.ef[i] : null;
+          var text = ef === null || run.trip === null ? "" : money(ef) + " / " + money(run.trip);
+          if (ef !== null && run.trip !== null && ef < run.trip) {
+            node = document.createElement("strong");
+            node.className = "over";
+            node.textContent = text;
+          } else { node = document.createTextNode(text); }
+        }
         else if (k === "x") { node = document.createTextNode(money(a[4])); }
         else if (k === "w") { node = document.createTextNode(fixed(a[5], 2)); }
         else if (k === "q") { node = document.createTextNode(money(a[6])); }
-        else if (k === "t") { node = document.createTextNode(a[8]); }
-        else if (k === "g") { node = document.createTextNode(a[9]); }
+        else if (k === "n") {   // as landing_text in html.py
+          node = document.createTextNode(a[9] === "reducing splice"
+            ? (a[8] ? "splice to " + a[8] : "splice") : a[9]);
+        }
         else if (k === "r") { node = document.createTextNode(a[10]); }
         if (node) { td.textContent = ""; td.appendChild(node); }
         td.classList.toggle("changed", k === "c" && changed);

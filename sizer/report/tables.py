@@ -16,11 +16,11 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 from sizer.economics import EconomicParams, npv, q_factor, simple_payback_years
-from sizer.model import Design, SegmentResult
+from sizer.model import Design, SegmentResult, Violation
 from sizer.operating import load_profiles
 from sizer.optimize import Prepared
 from sizer.units import conductor_label
-from sizer.workflow import FrontierPoint, Option
+from sizer.workflow import DisconnectionDriver, FrontierPoint, Option
 
 # --- labels ---------------------------------------------------------------------------
 
@@ -297,6 +297,8 @@ class ScheduleRow:
     path_vd_pct: float            # source to far end, estimate
     loadflow_drop_pct: float | None
     fault_ka: float | None
+    earth_fault_a: float | None
+    trip_a: float | None
     capex: float
     loss_kw: float
     loss_pv: float
@@ -324,10 +326,66 @@ def schedule_table(design: Design,
             terminal_max=s.terminal_max, termination=s.termination, raceway=s.raceway,
             utilisation_pct=100.0 * s.current_a / s.ampacity_a if s.ampacity_a > 0 else math.nan,
             vd_pct=s.vd_pct, path_vd_pct=s.path_vd_pct, loadflow_drop_pct=s.loadflow_drop_pct,
-            fault_ka=s.fault_ka, capex=s.capex, loss_kw=s.loss_kw, loss_pv=s.loss_pv,
+            fault_ka=s.fault_ka, earth_fault_a=s.earth_fault_a, trip_a=s.trip_a,
+            capex=s.capex, loss_kw=s.loss_kw, loss_pv=s.loss_pv,
             pinned=s.pinned,
         )
         for s in design.segments)
+
+
+@dataclass(frozen=True)
+class FindingGroup:
+    """Findings of one rule on the runs fed from one board: one line, not one per run."""
+
+    rule: str
+    board: str                    # the parent the runs hang on
+    kind: str                     # "branch circuit" | "feeder" (the first run's kind)
+    segments: tuple[str, ...]
+    worst: Violation              # the finding furthest over its limit (what resolves it)
+
+    @property
+    def title(self) -> str:
+        """"12 branch circuits on HP-1" or the run's own name when it is alone."""
+        if len(self.segments) == 1:
+            return self.segments[0]
+        return f"{len(self.segments)} {self.kind}s on {self.board}"
+
+
+def group_findings(design: Design, min_group: int = 2) -> tuple[FindingGroup, ...]:
+    """Findings grouped by (rule, board): identical problems read as one line.
+
+    Groups keep the order of their first finding; a group of fewer than ``min_group``
+    runs stays one line per run. Each group shows its worst finding (largest value over
+    limit), whose message says what resolves it.
+    """
+    by_id = {s.id: s for s in design.segments}
+    groups: dict[tuple[str, str], list[Violation]] = {}
+    for v in design.violations:
+        seg = by_id.get(v.segment)
+        board = seg.parent if seg is not None else ""
+        groups.setdefault((v.rule, board), []).append(v)
+    out: list[FindingGroup] = []
+    for (rule, board), found in groups.items():
+        parts = [found] if len(found) >= min_group else [[v] for v in found]
+        for part in parts:
+            seg = by_id.get(part[0].segment)
+            kind = "branch circuit" if seg is None or seg.kind == "branch" else "feeder"
+
+            def excess(v: Violation) -> float:
+                return v.value / v.limit if v.limit else math.inf
+
+            out.append(FindingGroup(rule, board, kind, tuple(v.segment for v in part),
+                                    max(part, key=excess)))
+    return tuple(out)
+
+
+def disconnection_sentence(driver: DisconnectionDriver) -> str:
+    """Why one run is larger than drop alone asks: its device must still disconnect."""
+    d = driver
+    return (f"{d.segment}: {d.chosen} instead of the {d.without} that drop and ampacity "
+            f"alone allow, so that the minimum earth fault at its far end "
+            f"({d.earth_fault_a:,.0f} A) reaches the {d.trip_a:,.0f} A that disconnects its "
+            f"{d.ocpd_a:g} A device within {d.time_s:g} s.")
 
 
 # --- voltage profile along the worst path -------------------------------------------------

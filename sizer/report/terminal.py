@@ -7,6 +7,7 @@ from os import PathLike
 
 from sizer import CAUTION
 from sizer.model import Design, DesignStatus
+from sizer.report.tables import group_findings
 from sizer.units import conductor_label
 
 
@@ -67,12 +68,14 @@ def summary(design: Design, title: str, *, max_rows: int | None = 40, max_findin
                      "linear estimate")
     for d in design.diagnosis:
         lines.append(f"  - {d}")
-    for v in design.violations[:max_findings]:
-        lines.append(f"  ! {v.segment}: {v.rule}: {v.message}")
-    if len(design.violations) > max_findings:
+    groups = group_findings(design)
+    for g in groups[:max_findings]:
+        at = g.title if len(g.segments) == 1 else f"{g.title} (worst {g.worst.segment})"
+        lines.append(f"  ! {at}: {g.rule}: {g.worst.message}")
+    if len(groups) > max_findings:
         where = (f"in {', '.join(str(w) for w in written)}" if written
                  else "not shown (--json writes every one)")
-        lines.append(f"  ! ... {len(design.violations) - max_findings} more findings {where}")
+        lines.append(f"  ! ... {len(groups) - max_findings} more findings {where}")
     for n in (*design.notes, *notes):
         lines.append(f"note: {n}")
     lines.append(CAUTION)

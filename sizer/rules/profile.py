@@ -75,6 +75,44 @@ class SoilCorrection:
     source: str
 
 
+@dataclass(frozen=True)
+class FaultRule:
+    """Fault levels and disconnection: IEC 60909 voltage factors, motors, trip currents.
+
+    ``c_max``/``c_min``: voltage factors for the maximum and minimum short-circuit
+    current (IEC 60909-0 Table 1). ``motor_multiple``: locked-rotor current of a running
+    induction motor over its rated current (its contribution to a three-phase fault);
+    ``motor_r_x``: its R/X. ``device``: the overcurrent device assumed where a node names
+    none, rated up to ``small_device_max_a``; ``large_device`` above; ``trip_multiple``:
+    current (x In) that disconnects a breaker in time when the node gives no curve.
+    Fuses: ``fuse_multiple_final`` (x In for ``final_time_s``) and
+    ``fuse_multiple_distribution`` (x In for ``distribution_time_s``). A final circuit is
+    one fed at most ``final_circuit_max_a``. ``loop_temperature``: conductor temperature
+    of the minimum fault loop, "operating" (the insulation's rating) or "end_of_fault".
+    """
+
+    c_max: float
+    c_min: float
+    motor_multiple: float
+    motor_r_x: float
+    device: str
+    small_device_max_a: float
+    large_device: str
+    trip_multiple: float
+    fuse_multiple_final: float
+    fuse_multiple_distribution: float
+    final_circuit_max_a: float
+    final_time_s: float
+    distribution_time_s: float
+    loop_temperature: str
+    source: str
+
+
+DEVICES: tuple[str, ...] = ("B", "C", "D", "breaker", "fuse")
+INSULATION_FAMILIES: tuple[str, ...] = ("thermoplastic", "thermoset")
+LOOP_TEMPERATURES: tuple[str, ...] = ("operating", "end_of_fault")
+
+
 @dataclass(frozen=True, eq=False)
 class RuleProfile:
     """An electrical code's sizing rules; every value comes from the profile's TOML and CSVs.
@@ -118,6 +156,10 @@ class RuleProfile:
     # protection
     standard_ratings_a: tuple[float, ...]    # ascending
     next_size_up_max_a: float | None         # None: device must not exceed the ampacity
+    # IEC 60364-4-43 433.1: I2 <= overload_i2_limit x Iz, I2 = multiple x In by device
+    # class ("breaker", "fuse", "fuse_small" below 16 A); empty: no such rule
+    overload_i2_multiple: Mapping[str, float]
+    overload_i2_limit: float
     small_conductor_max_ocpd_a: tuple[tuple[str, str, float], ...]  # (material, size, max device A)
     # equipment grounding (protective) conductor
     # "device_rating" (NEC 250.122) | "phase_area" (IEC 60364-5-54) | "conductor_ampacity"
@@ -132,7 +174,10 @@ class RuleProfile:
     min_parallel_size: str | None            # None: no minimum
     default_clearing_time_s: float
     short_circuit_final_c: tuple[tuple[float, float], ...]  # (insulation rating, final temp)
+    # final short-circuit temperature by insulation family (thermoplastic, thermoset)
+    family_final_c: Mapping[str, float]
     motor_start_dip_pct: float
+    fault: FaultRule
     min_parallel_overridable: bool = False   # the minimum is practice, not code: may be lowered
     soil: SoilCorrection | None = None       # soil resistivity and depth factors; None: none
     terminals: TerminalTable | None = None   # terminal ranges by device rating; None: any size
@@ -217,6 +262,16 @@ class RuleProfile:
             if math.isclose(rating, insulation_c):
                 return final
         raise ScenarioError(self._insulation_message(insulation_c))
+
+    def withstand_final_c(self, insulation_c: float, family: str | None) -> float:
+        """Final short-circuit temperature (degC) of an insulation family.
+
+        ``family`` "thermoplastic" or "thermoset" (the profile's value for it); None:
+        the profile's final temperature for the insulation rating (90 degC → thermoset).
+        """
+        if family is None:
+            return self.final_temperature_c(insulation_c)
+        return self.family_final_c[family]
 
     def check_insulation(self, insulation_c: float) -> float:
         """Return ``insulation_c`` if the profile allows it, else raise ScenarioError."""
@@ -362,6 +417,21 @@ def _problems(p: RuleProfile) -> list[str]:
             out.append(f"insulation {t:g} degC needs a short-circuit final temperature above it")
     if not 0 < p.motor_start_dip_pct < 100:
         out.append("motor_start_dip_pct must be in (0, 100)")
+    f = p.fault
+    if not 0.8 <= f.c_min <= 1.0 <= f.c_max <= 1.2:
+        out.append("[fault] needs 0.8 <= c_min <= 1 <= c_max <= 1.2")
+    if not (f.motor_multiple >= 0 and f.motor_r_x >= 0):
+        out.append("[fault] motor_multiple and motor_r_x must be >= 0")
+    if f.device not in DEVICES or f.large_device not in DEVICES:
+        out.append(f"[fault] device and large_device must be one of {', '.join(DEVICES)}")
+    if f.loop_temperature not in LOOP_TEMPERATURES:
+        out.append(f"[fault] loop_temperature must be one of {', '.join(LOOP_TEMPERATURES)}")
+    if not all(m >= 1 for m in (f.trip_multiple, f.fuse_multiple_final,
+                                f.fuse_multiple_distribution)):
+        out.append("[fault] trip multiples must be >= 1")
+    if not (f.final_circuit_max_a > 0 and 0 < f.final_time_s <= f.distribution_time_s):
+        out.append("[fault] needs final_circuit_max_a > 0 and 0 < final_time_s <= "
+                   "distribution_time_s")
     return out
 
 
@@ -565,6 +635,13 @@ def read_profile(path: str | Path) -> RuleProfile:
     ratings = prot.floats("standard_ratings_a")
     sources["standard_ratings"] = prot.take("standard_ratings_source", str)
     next_size_up = prot.take("next_size_up_max_a", float, None)
+    i2_multiple: dict[str, float] = {}
+    i2_limit = math.inf
+    if (ovl := prot.optional_sub("overload")) is not None:
+        i2_limit = ovl.take("i2_max_of_iz", float)
+        i2_multiple = {k: ovl.take(k, float) for k in ("breaker", "fuse", "fuse_small")}
+        sources["overload"] = ovl.take("source", str)
+        ovl.finish()
     sources["next_size_up"] = prot.take("next_size_up_source", str)
     sources["small_conductors"] = prot.take("small_conductors_source", str)
     small = []
@@ -599,6 +676,8 @@ def read_profile(path: str | Path) -> RuleProfile:
     sc = top.sub("short_circuit")
     clearing = sc.take("default_clearing_time_s", float)
     finals = _bands(sc.take("final_temperature_c", list), 2, "final temperatures", file)
+    family_final = {f: sc.take(f"{f}_final_c", float) for f in INSULATION_FAMILIES}
+    sources["insulation_family"] = sc.take("family_source", str)
     sources["short_circuit"] = sc.take("source", str)
     sc.finish()
 
@@ -639,6 +718,23 @@ def read_profile(path: str | Path) -> RuleProfile:
     ms.finish()
 
     extra = _read_circuit_rules(top, here, sizes, area, sources)
+    fl = top.sub("fault")
+    fault = FaultRule(
+        c_max=fl.take("c_max", float), c_min=fl.take("c_min", float),
+        motor_multiple=fl.take("motor_multiple", float),
+        motor_r_x=fl.take("motor_r_x", float), device=fl.take("device", str),
+        small_device_max_a=fl.take("small_device_max_a", float),
+        large_device=fl.take("large_device", str),
+        trip_multiple=fl.take("trip_multiple", float),
+        fuse_multiple_final=fl.take("fuse_multiple_final", float),
+        fuse_multiple_distribution=fl.take("fuse_multiple_distribution", float),
+        final_circuit_max_a=fl.take("final_circuit_max_a", float),
+        final_time_s=fl.take("final_time_s", float),
+        distribution_time_s=fl.take("distribution_time_s", float),
+        loop_temperature=fl.take("loop_temperature", str),
+        source=fl.take("source", str))
+    sources["fault"] = fault.source
+    fl.finish()
     top.finish()
 
     area.flags.writeable = False
@@ -657,13 +753,15 @@ def read_profile(path: str | Path) -> RuleProfile:
         grouping_bands=tuple((b[0], b[1]) for b in grouping),
         terminal_rule=terminal_rule,
         standard_ratings_a=ratings, next_size_up_max_a=next_size_up,
+        overload_i2_multiple=MappingProxyType(i2_multiple), overload_i2_limit=i2_limit,
         small_conductor_max_ocpd_a=tuple(small),
         egc_rule=egc_rule, egc_table=egc_table, egc_table_area_mm2=egc_areas,
         egc_proportional=egc_proportional,
         egc_phase_bands=tuple((b[0], b[1], b[2]) for b in phase_bands),
         min_parallel_size=min_parallel, default_clearing_time_s=clearing,
         short_circuit_final_c=tuple((b[0], b[1]) for b in finals),
-        motor_start_dip_pct=dip, continuous_after_adjustment=continuous_after,
+        family_final_c=MappingProxyType(family_final),
+        motor_start_dip_pct=dip, fault=fault, continuous_after_adjustment=continuous_after,
         terminals=terminals, raceway=raceway, min_parallel_overridable=overridable, soil=soil,
         **extra,
     )

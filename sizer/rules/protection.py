@@ -80,6 +80,20 @@ def bonding_jumper_size_index(profile: RuleProfile, material: str,
     pick = np.searchsorted(area, needed * (1 - 1e-9), side="left")
     pick = np.minimum(pick, phase)
     return np.where(ok & (pick < area.size), pick, NO_SIZE).astype(np.int64)
+def overload_factor(profile: RuleProfile, device: str, ocpd_a: float) -> float:
+    """Share of the ampacity a device may be rated at for overload coordination.
+
+    IEC 60364-4-43 433.1: I2 <= 1.45 Iz with I2 = k In, so In <= (1.45 / k) Iz; k by
+    device class (breakers 1.45, gG fuses 1.6 from 16 A and 1.9 below). 1.0 where the
+    profile has no such rule or the device needs no reduction.
+    """
+    if not profile.overload_i2_multiple:
+        return 1.0
+    if device == "fuse":
+        k = profile.overload_i2_multiple["fuse" if ocpd_a >= 16.0 - 1e-9 else "fuse_small"]
+    else:
+        k = profile.overload_i2_multiple["breaker"]
+    return min(1.0, profile.overload_i2_limit / k)
 
 
 def small_conductor_ok(

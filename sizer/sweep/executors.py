@@ -65,6 +65,7 @@ def _price_state(prices: PriceList) -> dict[str, Any]:
         "raceways": (None if prices.raceways is None else
                      (dict(prices.raceways.per_m), prices.raceways.trench_per_m,
                       prices.raceways.source)),
+        "insulation_type": dict(prices.insulation_type),
     }
 
 
@@ -88,6 +89,7 @@ def _price_list(state: Mapping[str, Any]) -> PriceList:
         raceways=(None if state["raceways"] is None else
                   RacewayPrices(MappingProxyType(state["raceways"][0]), state["raceways"][1],
                                 state["raceways"][2])),
+        insulation_type=MappingProxyType(dict(state["insulation_type"])),
     )
 
 
