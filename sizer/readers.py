@@ -48,7 +48,7 @@ def _unit_text(value: Any, example: str) -> str:
     return value
 
 
-# The installation words of the scenario format (CONTRACT.md); the catalogue decides.
+# The installation words of the scenario format; the catalogue decides what each means.
 INSTALLATION_WORDS = ("conduit", "steel_conduit", "tray", "buried", "direct_buried",
                       "free_air")
 # sizer sizes low-voltage cable: 1000 V AC is the top of the low-voltage range (IEC 60038).

@@ -74,7 +74,7 @@ class Results:
         return self.design.totals
 
     def document(self, extra: dict[str, Any] | None = None) -> dict[str, Any]:
-        """The JSON results document (DESIGN.md "Results")."""
+        """The JSON results document (the keys other tools read)."""
         from sizer.loads import circuit_notes
         from sizer.report.export import design_document
         from sizer.rules.profile import table_status

@@ -1,20 +1,10 @@
 """Read a scenario file into the model, checking every field; write a node schedule as CSV.
 
-A scenario is one TOML file (layout in DESIGN.md, "The scenario file"):
-
-- ``[project]``: ``title``, ``rules`` (nec | cec | iec), ``currency`` and, optionally,
-  ``schedule = "circuits.csv"``: a CSV node schedule, relative to the TOML file;
-- ``[economics]``: ``energy_price``, ``discount_rate``, ``lifetime``, ``load_factor``
-  (required), ``demand_charge``, ``escalation``, ``load_growth``, ``loss_load_factor``,
-  ``hours``, ``emission_factor``;
-- ``[prices]`` (optional): ``catalogue``, ``copper``, ``aluminium``;
-- ``[defaults]``: cable settings every node inherits (``ambient``, ``materials``,
-  ``insulation``, ``terminals``, ``installation``, ``grouping``, ``max_sets``) plus
-  ``power_factor`` and ``clearing_time``;
-- ``[source]``: ``id``, ``voltage``, ``phases``, ``fault_current``, ``x_r``;
-- ``[[node]]``: one table per node (keys in ``NODE_KEYS``), with the optional tables
-  ``transformer = { rating, secondary, impedance, x_r, secondary_phases, core_loss }``
-  and ``motor = { kw | hp | power, start_multiple, start_pf }``.
+A scenario is one TOML file: ``[project]``, ``[economics]``, optional ``[prices]``,
+``[defaults]`` (inherited by every node), ``[source]`` and one ``[[node]]`` table per
+node, each with optional ``transformer = {...}`` and ``motor = {...}`` tables. Every key,
+its reader, unit, default and bounds are defined once in ``sizer.fields``; the key
+reference ``scenarios/README.md`` is generated from it.
 
 A CSV schedule has one row per node and the node keys as column names; the nested
 tables are flattened into dotted columns (``transformer.rating``, ``motor.kw``, ...). A
@@ -28,11 +18,9 @@ scenario in this form, every field spelled out in SI units (inherited values inc
 so the file reads back to equal nodes.
 
 Quantities are strings with units (``"120 ft"``, ``"480 V"``, ``"20 A"``, ``"30 degC"``);
-plain numbers only where the key names the unit or there is none: ``phases``,
-``power_factor``, ``demand_factor``, ``max_sets``, ``grouping``, ``x_r``,
-``load_factor``, ``loss_load_factor``, ``start_multiple``, ``start_pf`` and a motor's
-``kw`` or ``hp``. ``terminals``, ``grouping`` and ``clearing_time`` also take ``"auto"``:
-the rule profile decides. Every problem is reported as one line
+plain numbers only where the key names the unit or there is none (see the reference).
+Keys whose default is "auto" (``terminals``, ``grouping``, ``clearing_time``, ...) let
+the rule profile decide. Every problem is reported as one line
 ``FILE: node 'X', field 'f': what is wrong``; all are collected and raised together as
 ``ScenarioErrors`` (one error alone is raised as itself).
 """

@@ -534,3 +534,24 @@ def test_real_time_limit_is_reported_honestly() -> None:
     if sol.has_solution:
         assert sol.objective >= exact.objective * (1 - 1e-9)
         assert p.violations(sol.choice, 1e-6) == []
+
+
+def test_route_subproblems_keep_every_path_resource() -> None:
+    # Found on merging shared routes with the earth-fault loop: the route iteration's
+    # sub-problems dropped the loop resource, so the tree engine broke disconnection.
+    from sizer.engines.routes import restrict
+
+    p = feeder_and_two_branches()
+    m = p.n_candidates
+    full = Problem(p.parent, p.offsets, p.cost, p.drop_pct, limit_pct=p.limit_pct,
+                   drop2_pct=np.ones(m), limit2_pct=np.full(3, 10.0),
+                   loop_pu=np.arange(m, dtype=float), loop_limit_pu=np.full(3, 50.0),
+                   route_of=np.array([-1, 0, 0]), route_count=np.full(m, 3),
+                   route_top=np.full(m, np.inf))
+    keep = np.ones(m, dtype=bool)
+    keep[p.offsets[1]] = False
+    sub, rows = restrict(full, keep)
+    assert sub.route_of is None
+    for name in ("cost", "drop_pct", "drop2_pct", "loop_pu"):
+        np.testing.assert_array_equal(getattr(sub, name), getattr(full, name)[rows])
+    np.testing.assert_array_equal(sub.loop_limit_pu, full.loop_limit_pu)

@@ -79,6 +79,11 @@ def path_totals(parent: np.ndarray, own: np.ndarray) -> np.ndarray:
     return Topology(parent).path_sum(own)
 
 
+# The fields of a Problem that hold one value per candidate row.
+ROW_ARRAYS = ("cost", "drop_pct", "capex", "loss_pv", "choice_key", "drop2_pct", "loop_pu",
+              "route_count", "route_top")
+
+
 @dataclass(frozen=True, eq=False)  # arrays inside: compare by identity
 class Problem:
     """One candidate per segment, least cost, path voltage-drop limits.

@@ -24,7 +24,7 @@ import time
 
 import numpy as np
 
-from sizer.engines.problem import Problem, Solution, SolveStatus
+from sizer.engines.problem import ROW_ARRAYS, Problem, Solution, SolveStatus
 
 MAX_ROUNDS = 20
 MAX_COMBINATIONS = 64   # routes' band combinations the bound visits
@@ -46,15 +46,11 @@ def restrict(problem: Problem, keep: np.ndarray) -> tuple[Problem, np.ndarray] |
     def take(a: np.ndarray | None) -> np.ndarray | None:
         return None if a is None else a[rows]
 
-    sub = Problem(
-        parent=problem.parent, offsets=offsets, cost=problem.cost[rows],
-        drop_pct=problem.drop_pct[rows], fixed_drop_pct=problem.fixed_drop_pct,
-        limit_pct=problem.limit_pct, capex=take(problem.capex), loss_pv=take(problem.loss_pv),
-        capex_cap=problem.capex_cap, loss_pv_cap=problem.loss_pv_cap,
-        same_choice_groups=problem.same_choice_groups, choice_key=take(problem.choice_key),
-        drop2_pct=take(problem.drop2_pct), limit2_pct=problem.limit2_pct,
-        loop_pu=take(problem.loop_pu), loop_limit_pu=problem.loop_limit_pu,
-    )
+    # Every per-row array is sliced (so no further resource is forgotten); routes go.
+    sub = dataclasses.replace(
+        problem, offsets=offsets, route_of=None, route_count=None, route_top=None,
+        **{name: take(getattr(problem, name)) for name in ROW_ARRAYS  # type: ignore[arg-type]
+           if name not in ("route_count", "route_top")})
     return sub, rows
 
 

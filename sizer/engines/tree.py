@@ -430,18 +430,23 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
         for k in children[s]:
             point[k] = int(np.searchsorted(f_req[k], rb, side="right")) - 1
 
-    broken = problem.violations(choice, tol_pct=tol_pct + (depth + 1) * step)
+    return _checked(problem, choice, tol_pct + (depth + 1) * step, t0,
+                    f"tree engine: {n} segments, {problem.n_candidates} candidates "
+                    f"({n_undominated} undominated, {rows.size} usable), largest front "
+                    f"{largest} points")
+
+
+def _checked(problem: Problem, choice: np.ndarray, tol_pct: float, t0: float,
+             message: str) -> Solution:
+    """The optimum found, once the problem's own check confirms it meets every limit."""
+    broken = problem.violations(choice, tol_pct=tol_pct)
     if broken:  # pragma: no cover - a guard against a bug, never expected
         return _failure(problem, SolveStatus.ERROR,
                         "tree engine: internal check failed: " + "; ".join(broken[:3]), t0)
     return Solution(
         status=SolveStatus.OPTIMAL, choice=choice,
         objective=float(np.sum(problem.cost[choice])), proven_optimal=True, gap=0.0,
-        engine=_ENGINE,
-        message=(f"tree engine: {n} segments, {problem.n_candidates} candidates "
-                 f"({n_undominated} undominated, {rows.size} usable), largest front "
-                 f"{largest} points"),
-        seconds=time.perf_counter() - t0,
+        engine=_ENGINE, message=message, seconds=time.perf_counter() - t0,
     )
 
 
@@ -700,15 +705,6 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
         for j, c in enumerate(children[s]):
             point[c] = int(f_kid[s][i, j])
 
-    broken = problem.violations(choice, tol_pct=tol_pct * 10)
-    if broken:  # pragma: no cover - a guard against a bug, never expected
-        return _failure(problem, SolveStatus.ERROR,
-                        "tree engine: internal check failed: " + "; ".join(broken[:3]), t0)
-    return Solution(
-        status=SolveStatus.OPTIMAL, choice=choice,
-        objective=float(np.sum(problem.cost[choice])), proven_optimal=True, gap=0.0,
-        engine=_ENGINE,
-        message=(f"tree engine: {n} segments, {problem.n_candidates} candidates, "
-                 f"{k} path resources, largest front {largest} points"),
-        seconds=time.perf_counter() - t0,
-    )
+    return _checked(problem, choice, tol_pct * 10, t0,
+                    f"tree engine: {n} segments, {problem.n_candidates} candidates, "
+                    f"{k} path resources, largest front {largest} points")

@@ -61,7 +61,7 @@ _ONLY_WHERE_SET = frozenset({"phase", "phase_currents_a", "neutral_a", "neutral_
 
 
 def design_document(design: Design, extra: Mapping[str, Any] | None = None) -> dict[str, Any]:
-    """The stable JSON document of DESIGN.md "Results" for a design."""
+    """The stable JSON results document of a design (the keys other tools read)."""
     doc: dict[str, Any] = {
         "status": design.status,
         "objective": design.objective,
