@@ -108,6 +108,23 @@ class SegmentArrays:
     one_raceway: np.ndarray | None = None    # bool: all parallel sets in one raceway
 
 
+@dataclass(frozen=True)
+class PeFaultTerms:
+    """What the adiabatic protective-conductor rule (IEC 60364-5-54 543.1.2) needs.
+
+    Per segment: ``upstream_ohm`` (complex, ohm at the run's U0) the least loop impedance
+    above the run's near end whatever is chosen (the source and the transformers above;
+    cables only add to it), ``u0_v`` the run's voltage to earth, ``time_s`` the
+    disconnection time it must meet (IEC 60364-4-41 Table 41.1); ``c_min`` the IEC 60909
+    minimum voltage factor.
+    """
+
+    upstream_ohm: np.ndarray
+    u0_v: np.ndarray
+    time_s: np.ndarray
+    c_min: float
+
+
 def conductors_per_set(phases: np.ndarray, neutral: np.ndarray) -> np.ndarray:
     """Phase and neutral conductors in one parallel set (the EGC apart): 2, 3 or 4."""
     return np.where(phases == 1, 2, 3 + neutral.astype(np.int64))
@@ -378,6 +395,7 @@ def build_candidates(
     loss_a2: np.ndarray | None = None,
     neutral_a: np.ndarray | None = None,
     neutral_a2: np.ndarray | None = None,
+    pe_fault: PeFaultTerms | None = None,
 ) -> tuple[CandidateTable, LocalDiagnosis]:
     """Every compliant candidate of every segment, and what the rejected rows could reach.
 
@@ -386,7 +404,8 @@ def build_candidates(
     peak, A², from ``sizer.operating``) when given, else the sizing current on every
     conductor. ``loss_pv_per_w`` is F (money per W of peak loss): one value, or one per
     segment. With ``keep_pins`` a pinned row stays in the table even when it breaks a
-    segment-local rule (``sizer check`` reports it as a violation).
+    segment-local rule (``sizer check`` reports it as a violation). ``pe_fault`` is
+    needed when the profile sizes the protective conductor adiabatically.
     """
     sa = segment_arrays(segments, profile, catalogue)
     n = len(segments)
@@ -481,6 +500,12 @@ def build_candidates(
     if service.any() and profile.service_bonding:
         egc[service] = _by_material(mat[service], lambda m, mask: bonding_jumper_size_index(
             profile, MATERIALS[m], size[service][mask]), dtype=np.int64)
+    if profile.pe_rule == "adiabatic":
+        if pe_fault is None:
+            raise ValueError("the adiabatic PE rule needs the earth-fault terms (pe_fault)")
+        pe = adiabatic_pe_size_index(profile, catalogue, prices, segments, sa, inst_names,
+                                     inst_code, seg, mat, size, sets, pe_fault)
+        egc = np.where(service, egc, pe)
     egc_ok = egc >= 0
     egc = np.where(egc_ok, egc, 0)
 
@@ -802,6 +827,54 @@ def loop_temperature_c(profile: RuleProfile, insulation_c: np.ndarray) -> np.nda
     return np.asarray(insulation_c, dtype=float)
 
 
+def pe_k(material: str, insulation_c: float, final_c: float) -> float:
+    """The k of IEC 60364-5-54 543.1.2 (A·s^0.5/mm2) for a PE core starting at ``insulation_c``.
+
+    From the IEC 60949 adiabatic constants: k = K · sqrt(ln((θf + β)/(θi + β))), which
+    gives Table A.54.3's 115 (Cu, PVC 70 -> 160 degC) and 143 (Cu, XLPE 90 -> 250 degC).
+    """
+    return float(adiabatic_withstand_a(1.0, 1.0, material, insulation_c, final_c))
+
+
+def adiabatic_pe_size_index(profile, catalogue, prices, segments, sa, inst_names, inst_code,
+                            seg, mat, size, sets, pe_fault: PeFaultTerms) -> np.ndarray:
+    """Smallest PE size of every row meeting S >= sqrt(I² t) / k (IEC 60364-5-54 543.1.2).
+
+    I is the far-end line-to-earth current per parallel set under IEC 60909 minimum
+    conditions (c_min, conductors at the fault-loop temperature) with the row's own line
+    and PE and only ``pe_fault.upstream_ohm`` above: cables above only lower it, so the
+    size also holds for the run's actual far-end current. A larger PE lowers the loop and
+    raises I, so sizes are tried in ascending order. -1: no catalogue size suffices.
+    """
+    temp = loop_temperature_c(profile, sa.insulation_c)[seg]
+    length = sa.length_m[seg]
+    k_pair = np.array([[pe_k(m, float(s.node.cable.insulation_c), profile.withstand_final_c(
+        s.node.cable.insulation_c, withstand_family(s, prices, m))) for m in MATERIALS]
+        for s in segments]).reshape(-1, len(MATERIALS))
+    need_k = k_pair[seg, mat] / np.sqrt(pe_fault.time_s[seg])   # A per mm2 allowed
+    out = np.full(seg.shape[0], -1, dtype=np.int64)
+    imp_code = inst_code[seg] * 2 + mat
+    for code in np.unique(imp_code).tolist():
+        rows = np.flatnonzero(imp_code == code)
+        material, inst = MATERIALS[code % 2], inst_names[code // 2]
+        r, x = impedance_ohm_per_m(catalogue, material, size[rows], temp[rows], inst,
+                                   profile.frequency_hz)
+        above = (pe_fault.upstream_ohm[seg[rows]]
+                 + (r + 1j * x) * length[rows] / sets[rows])
+        u0 = pe_fault.u0_v[seg[rows]]
+        for s in range(len(catalogue.sizes)):
+            todo = out[rows] < 0
+            if not todo.any():
+                break
+            z_pe = pe_impedance_ohm(catalogue, material, np.full(rows.size, s), sets[rows],
+                                    length[rows], temp[rows], inst, profile.frequency_hz)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                per_set_a = pe_fault.c_min * u0 / np.abs(above + z_pe) / sets[rows]
+                ok = todo & (catalogue.area_mm2[s] * need_k[rows] >= per_set_a)
+            out[rows[ok]] = s
+    return out
+
+
 def _fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc, sets,
                     length) -> np.ndarray:
     """Line + protective conductor impedance of every row at the fault-loop temperature."""
@@ -838,7 +911,11 @@ def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes
         terminal_c[auto] = terminal_temperature_c(profile, sa.ocpd_a[seg[auto]], size[auto])
     terminal_c = np.where(np.isnan(terminal_c), -1.0, terminal_c)  # -1: no terminal limit
     soil = sa.soil_factor if sa.soil_factor is not None else np.ones(len(inst_code))
-    settings = np.column_stack([sa.insulation_c, sa.ambient_c, inst_code, soil])
+    # Loaded conductors of the circuit: iec tabulates whole circuits, two loaded
+    # (single-phase) above three (IEC 60364-5-52 Annex B); nec/cec tables are per conductor.
+    ccc = sa.per_set_ccc if sa.per_set_ccc is not None else np.where(sa.phases == 1, 2, 3)
+    loaded = np.where(ccc == 2, 2, 3) if profile.ampacity_two_loaded_a else np.full(len(ccc), 3)
+    settings = np.column_stack([sa.insulation_c, sa.ambient_c, inst_code, soil, loaded])
     uniq_settings, seg_group = np.unique(settings, axis=0, return_inverse=True)
     terms, term_code = np.unique(terminal_c, return_inverse=True)
     group = (seg_group.ravel()[seg] * 2 + mat) * len(terms) + term_code.ravel()
@@ -849,9 +926,10 @@ def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes
     for g in np.unique(group).tolist():
         t = g % len(terms)
         m = (g // len(terms)) % 2
-        ins, amb, inst, ground = uniq_settings[g // len(terms) // 2]
+        ins, amb, inst, ground, n_loaded = uniq_settings[g // len(terms) // 2]
         inst_name = inst_names[int(inst)]
-        plain = table_ampacity_a(profile, MATERIALS[m], all_sizes, float(ins), inst_name)
+        plain = table_ampacity_a(profile, MATERIALS[m], all_sizes, float(ins), inst_name,
+                                 int(n_loaded))
         # The insulation column corrected for ambient (and soil): with the grouping factor,
         # the current at which the conductor reaches its rated temperature (terminals do
         # not heat it).
@@ -859,7 +937,7 @@ def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes
                             * float(ground))
         if terms[t] >= 0:
             limit_tab[g] = table_ampacity_a(profile, MATERIALS[m], all_sizes, float(terms[t]),
-                                            inst_name)
+                                            inst_name, int(n_loaded))
         # Before any adjustment or correction, at the lower of the two columns: the value
         # the first test of NEC 210.19(A)(1)/215.2(A)(1) compares with 125 % of the load.
         before_tab[g] = np.minimum(plain, limit_tab[g])

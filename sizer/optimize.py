@@ -19,6 +19,7 @@ import numpy as np
 from sizer.candidates import (
     MATERIALS,
     LocalDiagnosis,
+    PeFaultTerms,
     build_candidates,
     route_indices,
     take_rows,
@@ -30,7 +31,14 @@ from sizer.catalogue.prices import PriceList, load_price_list, resolve_price_lis
 from sizer.economics import EconomicParams, demand_charge_per_w_year
 from sizer.engines import Problem, Solution, SolveStatus, solve
 from sizer.engines.problem import path_totals
-from sizer.faults import S_BASE_VA, default_device, loop_pu, source_loop_ohm, trip_current_a
+from sizer.faults import (
+    S_BASE_VA,
+    default_device,
+    disconnection_time_s,
+    loop_pu,
+    source_loop_ohm,
+    trip_current_a,
+)
 from sizer.loads import design_segments
 from sizer.model import (
     CandidateTable,
@@ -161,14 +169,17 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
     phase_state = assign_phases(scenario, segments, runs)
     segments = with_spare_capacity(sized_by_worst_phase(segments, phase_state, profile),
                                    profile)
+    topology = Topology(np.array([s.parent_index for s in segments], dtype=np.int64))
+    earth = earth_fault_terms(scenario, segments, profile, topology.parent)
     table, local = build_candidates(
         segments, profile, catalogue, price_list, runs.loss_pv_per_w(econ),
         keep_pins=keep_pins,
         loss_a2=loss_current_squared_by_phase(segments, runs, phase_state),
         neutral_a=phase_state.neutral_a,
         neutral_a2=neutral_current_squared(segments, phase_state),
+        pe_fault=pe_fault_terms(segments, profile, earth, topology.parent)
+        if profile.pe_rule == "adiabatic" else None,
     )
-    topology = Topology(np.array([s.parent_index for s in segments], dtype=np.int64))
     limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)
     removed = np.zeros(len(segments), dtype=np.int64)
     if any(seg.node.withstand == "enforce" for seg in segments):
@@ -176,7 +187,7 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
                                            price_list, table, keep_pins=keep_pins)
     return Prepared(scenario, profile, catalogue, price_list, econ, segments, table, local,
                     transformer_drops_pct(segments), topology, limit, runs, phase_state,
-                    earth_fault_terms(scenario, segments, profile, topology.parent), removed)
+                    earth, removed)
 
 
 def near_fault_bound_a(scenario: Scenario, segments: tuple[Segment, ...],
@@ -236,6 +247,23 @@ def enforce_withstand(scenario: Scenario, segments: tuple[Segment, ...],
         keep |= pinned
     removed = np.bincount(seg_of[~keep], minlength=len(segments))
     return take_rows(table, keep), removed
+
+
+def pe_fault_terms(segments: tuple[Segment, ...], profile: RuleProfile,
+                   earth: EarthFaultTerms, parent: np.ndarray) -> PeFaultTerms:
+    """What the adiabatic PE rule needs: least loop above each run, its U0 and time.
+
+    The source and every transformer strictly above the run (complex, referred to the
+    run's U0 from the common per-unit base); the disconnection time of IEC 60364-4-41
+    Table 41.1 for the run (``sizer.faults.disconnection_time_s``).
+    """
+    above = np.zeros(len(segments), dtype=np.complex128)
+    for i in range(len(segments)):
+        p = int(parent[i])
+        above[i] = earth.source_pu if p < 0 else above[p] + earth.xfmr_pu[p]
+    time = np.array([disconnection_time_s(seg.ocpd_a, seg.is_leaf, profile.fault)
+                     for seg in segments])
+    return PeFaultTerms(above * earth.u0_v**2 / S_BASE_VA, earth.u0_v, time, earth.c_min)
 
 
 def earth_voltages_v(scenario: Scenario, segments: tuple[Segment, ...]) -> np.ndarray:

@@ -76,13 +76,14 @@ def conductor_reach(
         terminal_c = float(terminal_temperature_c(profile, np.array([device_a]), k)[0])
     grouping = 2 if phases == 1 else 3
     per_set = ampacity_a(profile, conductor.material, k, insulation_c, terminal_c, ambient_c,
-                         grouping, installation)
+                         grouping, installation, loaded=grouping)
     amp = float(per_set[0]) * conductor.sets
     if not np.isfinite(amp) or amp <= 0:
         raise ScenarioError(f"{conductor} has no ampacity in the {profile.name} profile at "
                             f"{insulation_c:g} degC insulation", field="conductor")
     if conductor_temperature_c is None:
-        thermal = table_ampacity_a(profile, conductor.material, k, insulation_c, installation)
+        thermal = table_ampacity_a(profile, conductor.material, k, insulation_c, installation,
+                                   loaded=grouping)
         thermal = (thermal * ambient_factor(profile, insulation_c, ambient_c, installation)
                    * grouping_factor(profile, grouping) * conductor.sets)
         conductor_temperature_c = float(operating_temperature_c(

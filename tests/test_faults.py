@@ -363,3 +363,122 @@ motor = {{ kw = 90{extra} }}
     assert len(found[("10 kA", "")][1]) == 1 and not found[("50 kA", "")][1]
     # a drive-fed motor (fault_multiple = 0) feeds nothing: the maximum falls
     assert found[("10 kA", ", fault_multiple = 0")][0] < found[("10 kA", "")][0]
+
+
+# --- protective conductor by the adiabatic equation (IEC 60364-5-54 543.1.2) ------------------
+
+ADIABATIC_PE = """
+[[node]]
+id = "SHORT"
+parent = "SRC"
+length = "12 m"
+phases = 1
+voltage = "230 V"
+load = "1 kW"
+power_factor = 1.0
+ocpd = "16 A"
+insulation_type = "thermoplastic"
+conductor = "2.5 mm2 Cu"
+
+[[node]]
+id = "FEEDER"
+parent = "SRC"
+length = "130 m"
+load = "40 kW"
+power_factor = 1.0
+ocpd = "160 A"
+insulation_type = "thermoplastic"
+conductor = "95 mm2 Cu"
+"""
+
+# IEC 60228 Table 2, class 2 copper, maximum R20 (ohm/km) [C]
+_R20_CU = {"1.5 mm2": 12.1, "2.5 mm2": 7.41, "4 mm2": 4.61, "6 mm2": 3.08, "10 mm2": 1.83,
+           "16 mm2": 1.15, "25 mm2": 0.727, "35 mm2": 0.524, "50 mm2": 0.387, "70 mm2": 0.268,
+           "95 mm2": 0.193}
+
+
+def _hand_adiabatic_pe(length_m: float, line: str, time_s: float) -> tuple[str, float]:
+    """Smallest PE with S·k/√t >= I, by hand; and its margin: the lesser of allowed /
+    needed at that size and needed / allowed at the size below.
+
+    I = c_min·U0/|Z_Q + Z_line + Z_pe| (IEC 60909-0 minimum conditions, c_min 0.90 and
+    Z_Q = c_max·U_n/(√3·I_k) at X/R 6, from memory); conductors at 70 degC (alpha 0.00393,
+    IEC 60228), X 0.08 ohm/km per conductor (common practice); k = 115 for a PVC-insulated
+    copper PE core, 70 -> 160 degC (IEC 60364-5-54 Table A.54.3, from memory).
+    """
+    zq = 1.1 * 400 / (math.sqrt(3) * 10e3)
+    ang = math.atan(6.0)
+    hot = 1 + 0.00393 * (70 - 20)
+    u0 = 400 / math.sqrt(3)
+    below = math.inf
+    for pe, r_pe in _R20_CU.items():
+        r = zq * math.cos(ang) + (_R20_CU[line] + r_pe) * hot * length_m / 1e3
+        x = zq * math.sin(ang) + 2 * 0.08 * length_m / 1e3
+        current = 0.90 * u0 / math.hypot(r, x)
+        allowed = float(pe.split()[0]) * 115.0 / math.sqrt(time_s)
+        if allowed >= current:
+            return pe, min(allowed / current, below)
+        below = current / allowed
+    raise AssertionError("no size")
+
+
+def _pe_of_rule(tmp_path, monkeypatch, rule: str) -> dict[str, str]:
+    import dataclasses
+
+    import sizer.optimize
+
+    iec = load_profile("iec")
+    monkeypatch.setattr(sizer.optimize, "load_profile",
+                        lambda name: dataclasses.replace(iec, pe_rule=rule))
+    path = write_scenario(tmp_path, ADIABATIC_PE, rules="iec", currency="EUR",
+                          energy_price="0.2 EUR/kWh", voltage="400 V", insulation="70 degC",
+                          max_sets=1)
+    text = path.read_text().replace('terminals = "75 degC"\n', "")
+    path.write_text(text.replace('fault_current = "22 kA"', 'fault_current = "10 kA"'))
+    prep = prepare(load_scenario(path), keep_pins=True)
+    choice = np.asarray(check(prep).choice)
+    return {seg.node.id: prep.catalogue.sizes[prep.table.egc_size_index[choice[s]]]
+            for s, seg in enumerate(prep.segments)}
+
+
+def test_pe_by_table_54_2_is_the_default():
+    # IEC 60364-5-54 Table 54.2 (from memory): S <= 16 -> S; S > 35 -> S/2 (95 -> 50 mm2)
+    assert load_profile("iec").pe_rule == "table"
+
+
+def test_pe_by_the_adiabatic_equation_by_hand(tmp_path, monkeypatch):
+    assert _pe_of_rule(tmp_path, monkeypatch, "table") == {"SHORT": "2.5 mm2",
+                                                           "FEEDER": "50 mm2"}
+    # SHORT: final circuit <= 32 A, 0.4 s (IEC 60364-4-41 Table 41.1); 12 m from a 10 kA
+    # source leaves about 1.6 kA, which a 2.5 mm2 PE cannot take for 0.4 s.
+    # FEEDER: distribution circuit, 5 s; 130 m keeps the current low, so less than the
+    # table's 50 mm2 is enough.
+    short, short_margin = _hand_adiabatic_pe(12.0, "2.5 mm2", 0.4)
+    feeder, feeder_margin = _hand_adiabatic_pe(130.0, "95 mm2", 5.0)
+    assert (short, feeder) == ("10 mm2", "35 mm2")
+    assert short_margin > 1.03 and feeder_margin > 1.03  # clear of sizer's X model (2 %)
+    assert _pe_of_rule(tmp_path, monkeypatch, "adiabatic") == {"SHORT": short,
+                                                               "FEEDER": feeder}
+
+
+def test_pe_k_reproduces_table_a_54_3():
+    # IEC 60364-5-54 Table A.54.3 (PE core in a cable, from memory): Cu PVC 70 -> 160 degC
+    # 115, Al 76; Cu XLPE 90 -> 250 degC 143, Al 94; 90 degC thermoplastic Cu 100.
+    from sizer.candidates import pe_k
+
+    assert pe_k("Cu", 70.0, 160.0) == pytest.approx(115, abs=0.5)
+    assert pe_k("Al", 70.0, 160.0) == pytest.approx(76, abs=0.5)
+    assert pe_k("Cu", 90.0, 250.0) == pytest.approx(143, abs=0.5)
+    assert pe_k("Al", 90.0, 250.0) == pytest.approx(94, abs=0.6)
+    assert pe_k("Cu", 90.0, 160.0) == pytest.approx(100, abs=0.5)
+
+
+def test_an_unknown_pe_rule_is_refused():
+    import dataclasses
+
+    from sizer.errors import ScenarioError
+
+    with pytest.raises(ScenarioError, match="pe_rule"):
+        dataclasses.replace(load_profile("iec"), pe_rule="guess")
+    with pytest.raises(ScenarioError, match="phase_area"):
+        dataclasses.replace(load_profile("nec"), pe_rule="adiabatic")

@@ -325,3 +325,109 @@ def test_more_sets_never_fail_what_fewer_pass(case: tuple, current: float, sets:
     table = table_ampacity_a(p, material, idx, insulation, installation)
     ok_defined = fewer[~np.isnan(table)]
     assert np.all(np.diff(ok_defined.astype(int)) >= 0)
+
+
+# --- IEC: two loaded conductors (single-phase) against three (three-phase) -------------------
+
+# IEC 60364-5-52:2009 [M] (from memory): Table B.52.2 (PVC, two loaded conductors) and
+# B.52.4 (PVC, three loaded); B.52.3 / B.52.5 for XLPE; B.52.10 / B.52.12 method E.
+IEC_TWO_AGAINST_THREE = [
+    # (material, size, insulation degC, installation, two loaded A, three loaded A)
+    ("Cu", "2.5 mm2", 70, "tray", 27.0, 24.0),      # method C, B.52.2 / B.52.4 [M]
+    ("Cu", "2.5 mm2", 70, "conduit", 24.0, 21.0),   # method B1 [M]
+    ("Cu", "2.5 mm2", 90, "tray", 33.0, 30.0),      # method C, B.52.3 / B.52.5 [M]
+    ("Cu", "16 mm2", 70, "free_air", 94.0, 80.0),   # method E, B.52.10 [M]
+    ("Cu", "95 mm2", 70, "buried", 204.0, 169.0),   # method D1, 2009 edition [M]
+    ("Al", "50 mm2", 90, "tray", 154.0, 136.0),     # method C, Al, B.52.3 / B.52.5 [M]
+]
+
+
+@pytest.mark.parametrize(("material", "size", "insulation", "installation", "two", "three"),
+                         IEC_TWO_AGAINST_THREE)
+def test_iec_single_phase_takes_the_two_loaded_column(material, size, insulation, installation,
+                                                      two, three) -> None:
+    p = load_profile("iec")
+    k = p.size_index(size)
+    assert float(table_ampacity_a(p, material, k, insulation, installation, 2)) == two
+    assert float(table_ampacity_a(p, material, k, insulation, installation, 3)) == three
+    assert float(table_ampacity_a(p, material, k, insulation, installation)) == three
+    # vectorised over the count, through the corrected value as well
+    both = ampacity_a(p, material, np.array([k, k]), insulation, None, 30 if installation !=
+                      "buried" else 20, 2, installation, loaded=np.array([2, 3]))
+    assert both.tolist() == [two, three]
+
+
+def test_iec_two_loaded_falls_back_to_three_and_nec_ignores_the_count() -> None:
+    p = load_profile("iec")
+    # D1 aluminium has no two-loaded value kept: the three-loaded one (lower, safe side)
+    k = p.size_index("95 mm2")
+    assert float(table_ampacity_a(p, "Al", k, 70, "buried", 2)) == 132.0
+    # 630 mm2 E: only three loaded kept
+    assert float(table_ampacity_a(p, "Cu", p.size_index("630 mm2"), 90, "free_air", 2)) == 995.0
+    # NEC 310.16 is per conductor: the count enters by 310.15(C)(1) adjustment only
+    n = load_profile("nec")
+    i = n.size_index("12 AWG")
+    assert (float(table_ampacity_a(n, "Cu", i, 90, "conduit", 2))
+            == float(table_ampacity_a(n, "Cu", i, 90, "conduit", 3)) == 30.0)
+    assert not n.ampacity_two_loaded_a and not load_profile("cec").ampacity_two_loaded_a
+
+
+def test_iec_two_loaded_tables_are_monotone_and_above_three() -> None:
+    p = load_profile("iec")
+    assert p.ampacity_two_loaded_a
+    for key, two in p.ampacity_two_loaded_a.items():
+        three = p.ampacity_tables_a[key]
+        both = ~np.isnan(two) & ~np.isnan(three)
+        # fewer loaded conductors heat less: always more current, by at most 30 %
+        assert np.all(two[both] > three[both]) and np.all(two[both] < 1.3 * three[both]), key
+        for row in two:
+            defined = row[~np.isnan(row)]
+            assert np.all(np.diff(defined) > 0), key
+
+
+ONE_AND_THREE_PHASE = """
+[[node]]
+id = "ONE"
+parent = "SRC"
+length = "20 m"
+phases = 1
+voltage = "230 V"
+load = "1 kW"
+power_factor = 1.0
+ocpd = "16 A"
+installation = "tray"
+conductor = "2.5 mm2 Cu"
+
+[[node]]
+id = "THREE"
+parent = "SRC"
+length = "20 m"
+load = "3 kW"
+power_factor = 1.0
+ocpd = "16 A"
+installation = "tray"
+conductor = "2.5 mm2 Cu"
+"""
+
+
+def test_candidate_table_gives_single_phase_iec_runs_the_two_loaded_column(tmp_path) -> None:
+    # IEC 60364-5-52:2009 [M]: 2.5 mm2 Cu PVC, method C (clipped / unperforated tray), 30
+    # degC: 27 A with two loaded conductors (Table B.52.2), 24 A with three (B.52.4). The
+    # candidate table feeds both engines, so both see these values.
+    from builders import write_scenario
+
+    from sizer.optimize import prepare
+    from sizer.scenario import load_scenario
+
+    path = write_scenario(tmp_path, ONE_AND_THREE_PHASE, rules="iec", currency="EUR",
+                          energy_price="0.2 EUR/kWh", voltage="400 V", insulation="70 degC",
+                          max_sets=1)
+    path.write_text(path.read_text().replace('terminals = "75 degC"\n', ""))
+    prep = prepare(load_scenario(path), keep_pins=True)
+    k = prep.catalogue.index("2.5 mm2")
+    got = {}
+    for s, seg in enumerate(prep.segments):
+        rows = np.flatnonzero((prep.table.segment == s) & (prep.table.size_index == k)
+                              & (prep.table.material == 0) & (prep.table.sets == 1))
+        got[seg.node.id] = float(prep.table.ampacity_a[rows[0]])
+    assert got == {"ONE": 27.0, "THREE": 24.0}

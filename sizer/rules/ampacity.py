@@ -32,11 +32,17 @@ def _column_rows(profile: RuleProfile, column_c: np.ndarray) -> np.ndarray:
 
 
 def table_ampacity_a(
-    profile: RuleProfile, material: str, size_index: object, column_c: object, installation: str
+    profile: RuleProfile, material: str, size_index: object, column_c: object, installation: str,
+    loaded: object = 3,
 ) -> np.ndarray:
     """Uncorrected table ampacity in A at a temperature column; NaN where the table has none.
 
     ``column_c`` may be an array broadcast against ``size_index`` (NaN gives NaN).
+    ``loaded`` is the number of loaded conductors of the circuit (2 single-phase, 3
+    three-phase; may be an array): where the profile tabulates whole circuits (iec, IEC
+    60364-5-52 Annex B) a circuit of 2 takes the two-loaded-conductor column, or the
+    three-loaded value where that column has none. Profiles with per-conductor tables
+    (nec, cec) ignore it: their count enters through the adjustment factor.
     """
     check_material(material)
     method = profile.method(installation)
@@ -47,7 +53,12 @@ def table_ampacity_a(
     if table is None:
         return np.full(safe.shape, np.nan)
     rows = _column_rows(profile, col)
-    return np.where(valid & ~np.isnan(col), table[rows, safe], np.nan)
+    value = table[rows, safe]
+    two = profile.ampacity_two_loaded_a.get((method, material))
+    if two is not None:
+        two_value = two[rows, safe]
+        value = np.where((np.asarray(loaded) == 2) & ~np.isnan(two_value), two_value, value)
+    return np.where(valid & ~np.isnan(col), value, np.nan)
 
 
 def ambient_factor(
@@ -154,6 +165,7 @@ def ampacity_a(
     ambient_c: float,
     grouping: int,
     installation: str,
+    loaded: object = 3,
 ) -> np.ndarray:
     """Ampacity in A of one conductor (one parallel set), corrected and terminal-limited.
 
@@ -163,16 +175,18 @@ def ampacity_a(
 
     ``terminal_c`` may be None or NaN (no terminal limit, e.g. the iec profile) or an
     array broadcast with ``size_index`` (e.g. from ``terminal_temperature_c``);
-    ``grouping`` is the number of current-carrying conductors in the raceway (>= 1).
+    ``grouping`` is the number of current-carrying conductors in the raceway (>= 1);
+    ``loaded`` the loaded conductors of the circuit (``table_ampacity_a``).
     """
     insulation = profile.check_insulation(insulation_c)
-    corrected = (table_ampacity_a(profile, material, size_index, insulation, installation)
+    corrected = (table_ampacity_a(profile, material, size_index, insulation, installation,
+                                  loaded)
                  * ambient_factor(profile, insulation, ambient_c, installation)
                  * grouping_factor(profile, grouping))
     if terminal_c is None:
         return corrected
     term = np.asarray(terminal_c, dtype=float)
-    limit = table_ampacity_a(profile, material, size_index, term, installation)
+    limit = table_ampacity_a(profile, material, size_index, term, installation, loaded)
     limit = np.where(np.isnan(term), np.inf, limit)
     return np.minimum(corrected, limit)
 
@@ -184,6 +198,7 @@ def unadjusted_ampacity_a(
     insulation_c: float,
     terminal_c: object,
     installation: str,
+    loaded: object = 3,
 ) -> np.ndarray:
     """Table ampacity in A at the lower of insulation and terminal columns, uncorrected.
 
@@ -195,7 +210,7 @@ def unadjusted_ampacity_a(
     if terminal_c is not None:
         term = np.asarray(terminal_c, dtype=float)
         column = np.where(np.isnan(term), insulation, np.minimum(term, insulation))
-    return table_ampacity_a(profile, material, size_index, column, installation)
+    return table_ampacity_a(profile, material, size_index, column, installation, loaded)
 
 
 def ampacity_ok(
@@ -211,6 +226,7 @@ def ampacity_ok(
     current_a: object,
     continuous_a: object = 0.0,
     sets: object = 1,
+    loaded: object = 3,
 ) -> np.ndarray:
     """Whether ``sets`` parallel conductors carry the load (both NEC checks, applied apart).
 
@@ -229,9 +245,9 @@ def ampacity_ok(
     if n_sets.dtype.kind not in "iu" or np.any(n_sets < 1):
         raise ScenarioError(f"parallel sets must be whole numbers >= 1, got {sets!r}")
     before = unadjusted_ampacity_a(profile, material, size_index, insulation_c, terminal_c,
-                                   installation)
+                                   installation, loaded)
     after = ampacity_a(profile, material, size_index, insulation_c, terminal_c, ambient_c,
-                       grouping, installation)
+                       grouping, installation, loaded)
     need_before = current + (profile.continuous_factor - 1.0) * continuous
     return carries_load(n_sets * before, n_sets * after, need_before, current)
 

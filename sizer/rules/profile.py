@@ -40,6 +40,9 @@ INSTALLATIONS: tuple[str, ...] = ("conduit", "steel_conduit", "tray", "buried", 
                                   "free_air")
 CATALOGUES: tuple[str, ...] = ("awg", "metric")
 EGC_RULES: tuple[str, ...] = ("device_rating", "phase_area", "conductor_ampacity")
+# protective conductor size (iec): IEC 60364-5-54 Table 54.2 by the phase size, or the
+# adiabatic equation of 543.1.2 with the run's earth-fault current and disconnection time
+PE_RULES: tuple[str, ...] = ("table", "adiabatic")
 DROP_KINDS: tuple[str, ...] = ("branch", "feeder", "total")
 
 _HERE = Path(__file__).parent
@@ -203,6 +206,13 @@ class RuleProfile:
     # share of non-linear load from which a wye system's neutral counts as a
     # current-carrying conductor (NEC 310.15(E)(3): "major portion"); None: never
     neutral_nonlinear_share: float | None = None
+    # ampacity of a circuit with two loaded conductors (single-phase), same shape as
+    # ampacity_tables_a, NaN where the three-loaded value applies; empty: the tables are
+    # per conductor (NEC, CEC) or the profile has no such column
+    ampacity_two_loaded_a: Mapping[tuple[str, str], np.ndarray] = field(
+        default_factory=lambda: MappingProxyType({}))
+    # "table" (the egc_rule) or "adiabatic" (IEC 60364-5-54 543.1.2, phase_area rule only)
+    pe_rule: str = "table"
 
     def __post_init__(self) -> None:
         lookup = {s: i for i, s in enumerate(self.sizes)}
@@ -361,7 +371,7 @@ def _problems(p: RuleProfile) -> list[str]:
         elif not p.ambient_credit_min_c < ref < min(p.column_temps_c):
             out.append(f"method {m!r}: reference ambient must lie between the credit floor "
                        "and the lowest column temperature")
-    for (m, mat), table in p.ampacity_tables_a.items():
+    for (m, mat), table in [*p.ampacity_tables_a.items(), *p.ampacity_two_loaded_a.items()]:
         if m not in p.methods or mat not in MATERIALS:
             out.append(f"ampacity table for unknown method/material {m!r}/{mat!r}")
         if table.shape != (len(p.column_temps_c), n):
@@ -407,6 +417,10 @@ def _problems(p: RuleProfile) -> list[str]:
             out.append("EGC phase-area bands must ascend and end with inf")
         if p.egc_proportional:
             out.append("the proportional EGC increase applies to the device_rating rule only")
+    if p.pe_rule not in PE_RULES:
+        out.append(f"pe_rule must be one of {', '.join(PE_RULES)}, got {p.pe_rule!r}")
+    elif p.pe_rule == "adiabatic" and p.egc_rule != "phase_area":
+        out.append("pe_rule = \"adiabatic\" (IEC 60364-5-54 543.1.2) needs the phase_area EGC rule")
     if p.min_parallel_size is not None and p.min_parallel_size not in p.sizes:
         out.append(f"min_parallel_size {p.min_parallel_size!r} is not a profile size")
     if not 0 < p.default_clearing_time_s <= 5:
@@ -606,6 +620,13 @@ def read_profile(path: str | Path) -> RuleProfile:
     sizes, area, sources["sizes"] = _read_sizes(here / amp.take("sizes", str))
     temps, methods, tables, sources["ampacity_table"] = _read_ampacity(
         here / amp.take("table", str), sizes)
+    two_loaded: dict[tuple[str, str], np.ndarray] = {}
+    if (two_file := amp.take("table_two_loaded", str, None)) is not None:
+        two_temps, _, two_loaded, sources["ampacity_two_loaded"] = _read_ampacity(
+            here / two_file, sizes)
+        if two_temps != temps or not set(two_loaded) <= set(tables):
+            raise ScenarioError("the two-loaded-conductor table must have the columns of the "
+                                "main ampacity table", file=str(here / two_file))
     insulation = amp.floats("insulation_temps_c")
     credit_min = amp.take("ambient_credit_min_c", float)
     sources["ampacity"] = amp.take("source", str)
@@ -663,6 +684,9 @@ def read_profile(path: str | Path) -> RuleProfile:
             here / egc.take("table", str), sizes, area)
     elif egc_rule == "phase_area":
         phase_bands = _bands(egc.take("bands", list), 3, "EGC bands", file)
+    pe_rule = egc.take("pe_rule", str, "table")
+    if (pe_source := egc.take("pe_adiabatic_source", str, None)) is not None:
+        sources["pe_adiabatic"] = pe_source
     egc.finish()
 
     min_parallel = None
@@ -749,6 +773,7 @@ def read_profile(path: str | Path) -> RuleProfile:
         installation_methods=MappingProxyType(installation_methods),
         reference_ambient_c=MappingProxyType(reference_ambient),
         ambient_credit_min_c=credit_min, ampacity_tables_a=MappingProxyType(tables),
+        ampacity_two_loaded_a=MappingProxyType(two_loaded),
         grouping_conductors_per_group=per_group,
         grouping_bands=tuple((b[0], b[1]) for b in grouping),
         terminal_rule=terminal_rule,
@@ -758,6 +783,7 @@ def read_profile(path: str | Path) -> RuleProfile:
         egc_rule=egc_rule, egc_table=egc_table, egc_table_area_mm2=egc_areas,
         egc_proportional=egc_proportional,
         egc_phase_bands=tuple((b[0], b[1], b[2]) for b in phase_bands),
+        pe_rule=pe_rule,
         min_parallel_size=min_parallel, default_clearing_time_s=clearing,
         short_circuit_final_c=tuple((b[0], b[1]) for b in finals),
         family_final_c=MappingProxyType(family_final),
