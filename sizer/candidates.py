@@ -65,7 +65,9 @@ from sizer.rules.terminations import (
     splice_ends,
     terminal_range,
 )
+from sizer.topology import Topology
 from sizer.units import MATERIALS
+from sizer.units import conductor_label as trade_label
 
 
 @dataclass(frozen=True)
@@ -239,12 +241,9 @@ def segment_arrays(
 
 def _triplen_below(segments: tuple[Segment, ...]) -> np.ndarray:
     """The largest declared triplen share at or below each segment."""
-    out = np.array([seg.node.triplen for seg in segments], dtype=float)
-    for s in range(len(segments) - 1, -1, -1):   # children come after their parents
-        p = segments[s].parent_index
-        if p >= 0:
-            out[p] = max(out[p], out[s])
-    return out
+    own = np.array([seg.node.triplen for seg in segments], dtype=float)
+    topo = Topology(np.array([seg.parent_index for seg in segments], dtype=np.int64))
+    return own[topo.subtree_argmax(own)]
 
 
 @cache
@@ -981,8 +980,7 @@ def _by_material(mat: np.ndarray, func, dtype) -> np.ndarray:
 
 def conductor_label(catalogue: Catalogue, material: int, size_index: int, sets: int) -> str:
     """The trade's way to write a row: ``"2x 500 kcmil Al"``."""
-    lead = f"{sets}x " if sets > 1 else ""
-    return f"{lead}{catalogue.sizes[size_index]} {MATERIALS[material]}"
+    return trade_label(sets, catalogue.sizes[size_index], MATERIALS[material])
 
 
 def parallel_rule_name(profile: RuleProfile) -> str:
