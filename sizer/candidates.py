@@ -743,9 +743,12 @@ def _build_limits(n, seg, mat, size, sets, compliant, build: BuildRows, profile:
                   catalogue: Catalogue, sa: SegmentArrays) -> tuple[str, ...]:
     """Per segment, the terminal or raceway limit that refused compliant rows ("" none)."""
     out = [""] * n
-    refused = compliant & ~build.ok
-    for s in np.unique(seg[refused]).tolist():
-        rows = np.flatnonzero(refused & (seg == s))
+    refused = np.flatnonzero(compliant & ~build.ok)
+    # one pass over the refused rows grouped by segment (never a scan per segment)
+    by_seg = refused[np.argsort(seg[refused], kind="stable")]
+    bounds = np.flatnonzero(np.diff(seg[by_seg])) + 1
+    for rows in np.split(by_seg, bounds) if by_seg.size else ():
+        s = int(seg[rows[0]])
         r = int(rows[np.argmin(size[rows] * 100 + sets[rows])])
         label = conductor_label(catalogue, int(mat[r]), int(size[r]), int(sets[r]))
         if not build.terminal_ok[r]:
