@@ -13,6 +13,8 @@ from typing import TYPE_CHECKING
 
 from sizer import CAUTION, __version__
 from sizer.errors import InternalError, ScenarioError, SizerError
+from sizer.stages import ENV as STAGE_LOG_ENV
+from sizer.stages import open_log, stage, write_log
 
 if TYPE_CHECKING:
     from sizer.model import Scenario
@@ -132,11 +134,12 @@ def _write_outputs(args: argparse.Namespace, scenario: Scenario,
     """Make every named output and write them together: all appear, or none changes."""
     from sizer.outputs import Staged
 
-    with Staged(_inputs(args, scenario)) as stage:
+    with stage("write"), Staged(_inputs(args, scenario)) as staged:
         for name, make in makers.items():
             path = getattr(args, name, None)
             if isinstance(path, str):
-                stage.add(path, make())
+                with stage(name):
+                    staged.add(path, make())
 
 
 def _design_makers(args: argparse.Namespace, results: Results,
@@ -172,8 +175,9 @@ def _prepare(args: argparse.Namespace, *, keep_pins: bool = False) -> Prepared:
     from sizer.optimize import prepare
     from sizer.scenario import load_scenario
 
-    scenario = load_scenario(args.file)
-    _outputs(args, scenario)
+    with stage("read"):
+        scenario = load_scenario(args.file)
+        _outputs(args, scenario)
     return prepare(scenario, keep_pins=keep_pins)
 
 
@@ -210,8 +214,9 @@ def _cmd_solve(args: argparse.Namespace) -> int:
 
             makers["report"] = lambda: render_report(results, progress=say)
         _write_outputs(args, prep.scenario, makers)
-    print(summary(results.design, prep.scenario.title, max_rows=args.rows,
-                  written=_written(args), notes=_run_notes(prep)))
+    with stage("summary"):
+        print(summary(results.design, prep.scenario.title, max_rows=args.rows,
+                      written=_written(args), notes=_run_notes(prep)))
     return 0 if results.design.segments else 1
 
 
@@ -328,16 +333,50 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 
 
 def _cmd_bench(args: argparse.Namespace) -> int:
-    from sizer.bench import run_bench, table_text, write_json
+    from sizer.bench import default_cases, run_bench, table_text, write_json
 
-    sizes = list(args.sizes) if args.sizes else [100, 1000, 5000, 20000]
+    sizes = list(args.sizes) if args.sizes else [5000, 20000, 100000]
+    cases = default_cases(sizes, chain=args.chain, panel=args.panel)
     _outputs(args)
     with _progress(args) as say:
-        doc = run_bench(sizes, repeats=args.repeats, milp_limit_s=args.milp_time_limit,
-                        progress=say)
+        doc = run_bench(cases, compare_sizes=[n for n in (1000, 5000) if n <= max(sizes)]
+                        or [min(sizes)], milp_limit_s=args.milp_time_limit,
+                        repeats=args.repeats, progress=say)
     print(table_text(doc))
     if args.json:
         write_json(doc, args.json)
+    return 0
+
+
+@contextmanager
+def _progress_bar(args: argparse.Namespace) -> Iterator[Callable[[int, int], None]]:
+    """A progress bar on stderr for work counted in points."""
+    if getattr(args, "quiet", False) or not sys.stderr.isatty():
+        yield lambda _done, _total: None
+        return
+    from rich.progress import Progress
+
+    with Progress(transient=True) as progress:
+        task = progress.add_task("sweep", total=None)
+
+        def update(done: int, total: int) -> None:
+            progress.update(task, completed=done, total=total)
+
+        yield update
+
+
+def _cmd_demo(args: argparse.Namespace) -> int:
+    from sizer.demo import run_demo
+    from sizer.report.terminal import summary
+
+    with _progress(args) as say:
+        result = run_demo(Path(args.folder), force=args.force, progress=say)
+    print(summary(result.design, result.title, max_rows=args.rows,
+                  written=[result.schedule_csv, result.results_json]))
+    print(f"\nwrote in {result.seconds:.1f} s:")
+    for path in result.files:
+        print(f"  {path}")
+    print(f"open {result.report} in a browser for the full report")
     return 0
 
 
@@ -359,7 +398,8 @@ def _progress(args: argparse.Namespace) -> Iterator[Callable[[str], None]]:
 MAX_SECONDS = 7 * 86400.0     # a week: beyond it a time limit is a typo
 MAX_POINTS = 500              # frontier points
 MAX_JOBS = 1024               # worker processes
-MAX_REPEATS = 100             # benchmark runs per stage
+MAX_REPEATS = 100             # benchmark runs per case
+MAX_BENCH_NODES = 1_000_000   # deep-chain and wide-panel cases
 
 
 def _option(read: Callable[[str], object]) -> Callable[[str], object]:
@@ -537,9 +577,15 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("bench", help="time every stage on synthetic trees of growing size")
     p.add_argument("--sizes", type=_option(_sizes),
-                   help="comma-separated segment counts (default 100,1000,5000,20000)")
-    p.add_argument("--repeats", type=_option(_bounded_count(1, MAX_REPEATS, "runs")), default=3,
-                   help="runs per stage; the median is kept")
+                   help="comma-separated building sizes in segments "
+                        "(default 5000,20000,100000)")
+    p.add_argument("--chain", type=_option(_bounded_count(0, MAX_BENCH_NODES, "runs")),
+                   default=20000, help="depth of the deep-chain case (0: none; default 20000)")
+    p.add_argument("--panel", type=_option(_bounded_count(0, MAX_BENCH_NODES, "circuits")),
+                   default=50000,
+                   help="circuits of the one-panel case (0: none; default 50000)")
+    p.add_argument("--repeats", type=_option(_bounded_count(1, MAX_REPEATS, "runs")), default=1,
+                   help="runs per case, each in a fresh process; the fastest is kept")
     p.add_argument("--milp-time-limit", type=_option(_seconds), default=60.0,
                    help="seconds the straightforward MILP may take per size")
     p.add_argument("--json", help="write the measurements here")
@@ -620,6 +666,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     from sizer.safe_text import TerminalStream, for_terminal
 
     stdout = sys.stdout
+    if os.environ.get(STAGE_LOG_ENV):  # `sizer bench` times this very run
+        open_log()
     try:
         # Names from the scenario are data: nothing in them may steer the terminal.
         sys.stdout = TerminalStream(stdout)
@@ -657,6 +705,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 130
     finally:
         sys.stdout = stdout
+        write_log()
 
 
 def _silence_stdout(stdout: typing.TextIO) -> None:

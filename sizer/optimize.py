@@ -62,6 +62,7 @@ from sizer.rules import REL_TOL, load_profile
 from sizer.rules.motors import branch_device_a
 from sizer.rules.profile import RuleProfile, with_terminal_table
 from sizer.spare import with_spare_capacity
+from sizer.stages import count, stage
 from sizer.topology import Topology
 from sizer.units import conductor_label
 
@@ -157,34 +158,39 @@ def price_list_for(scenario: Scenario, catalogue: Catalogue) -> PriceList:
 def prepare(scenario: Scenario, *, keep_pins: bool = False,
             prices: PriceList | None = None) -> Prepared:
     """Design currents and the candidate table of a scenario."""
-    profile = load_profile(scenario.rules)
-    catalogue = load_catalogue(profile.catalogue)
-    segments = design_segments(scenario, profile)
-    price_list = prices if prices is not None else price_list_for(scenario, catalogue)
-    if price_list.terminals_path is not None:
-        # The price list's own terminal ranges (its supplier's devices) replace the profile's.
-        profile = with_terminal_table(profile, price_list.terminals_path)
-    econ = economic_params(scenario)
-    runs = run_profiles(scenario, segments, econ)
-    phase_state = assign_phases(scenario, segments, runs)
-    segments = with_spare_capacity(sized_by_worst_phase(segments, phase_state, profile),
-                                   profile)
-    topology = Topology(np.array([s.parent_index for s in segments], dtype=np.int64))
-    earth = earth_fault_terms(scenario, segments, profile, topology.parent)
-    table, local = build_candidates(
-        segments, profile, catalogue, price_list, runs.loss_pv_per_w(econ),
-        keep_pins=keep_pins,
-        loss_a2=loss_current_squared_by_phase(segments, runs, phase_state),
-        neutral_a=phase_state.neutral_a,
-        neutral_a2=neutral_current_squared(segments, phase_state),
-        pe_fault=pe_fault_terms(segments, profile, earth, topology.parent)
-        if profile.pe_rule == "adiabatic" else None,
-    )
-    limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)
-    removed = np.zeros(len(segments), dtype=np.int64)
-    if any(seg.node.withstand == "enforce" for seg in segments):
-        table, removed = enforce_withstand(scenario, segments, profile, catalogue,
-                                           price_list, table, keep_pins=keep_pins)
+    with stage("currents"):
+        profile = load_profile(scenario.rules)
+        catalogue = load_catalogue(profile.catalogue)
+        segments = design_segments(scenario, profile)
+        price_list = prices if prices is not None else price_list_for(scenario, catalogue)
+        if price_list.terminals_path is not None:
+            # The price list's own terminal ranges (its supplier's devices) replace the
+            # profile's.
+            profile = with_terminal_table(profile, price_list.terminals_path)
+        econ = economic_params(scenario)
+        runs = run_profiles(scenario, segments, econ)
+        phase_state = assign_phases(scenario, segments, runs)
+        segments = with_spare_capacity(sized_by_worst_phase(segments, phase_state, profile),
+                                       profile)
+        topology = Topology(np.array([s.parent_index for s in segments], dtype=np.int64))
+        earth = earth_fault_terms(scenario, segments, profile, topology.parent)
+    with stage("candidates"):
+        table, local = build_candidates(
+            segments, profile, catalogue, price_list, runs.loss_pv_per_w(econ),
+            keep_pins=keep_pins,
+            loss_a2=loss_current_squared_by_phase(segments, runs, phase_state),
+            neutral_a=phase_state.neutral_a,
+            neutral_a2=neutral_current_squared(segments, phase_state),
+            pe_fault=pe_fault_terms(segments, profile, earth, topology.parent)
+            if profile.pe_rule == "adiabatic" else None,
+        )
+        limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)
+        removed = np.zeros(len(segments), dtype=np.int64)
+        if any(seg.node.withstand == "enforce" for seg in segments):
+            table, removed = enforce_withstand(scenario, segments, profile, catalogue,
+                                               price_list, table, keep_pins=keep_pins)
+    count("segments", len(segments))
+    count("candidate_rows", len(table))
     return Prepared(scenario, profile, catalogue, price_list, econ, segments, table, local,
                     transformer_drops_pct(segments), topology, limit, runs, phase_state,
                     earth, removed)
@@ -551,9 +557,10 @@ def optimise(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
     if empty.any():
         return empty_design(prep, DesignStatus.INFEASIBLE, objective.value,
                             tuple(diagnose(prep)))
-    problem = build_problem(prep, objective, loss_weight=loss_weight, limit_pct=limit_pct,
-                            disconnection=disconnection, **side)
-    solution = solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
+    with stage("engine"):
+        problem = build_problem(prep, objective, loss_weight=loss_weight,
+                                limit_pct=limit_pct, disconnection=disconnection, **side)
+        solution = solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
 
     def why() -> list[str]:
         lines = diagnose(prep, limit_pct)
@@ -565,7 +572,8 @@ def optimise(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
             lines = earth + [line for line in lines if line not in generic]
         return lines
 
-    return design_from_solution(prep, solution, objective.value, diagnosis=why)
+    with stage("design"):
+        return design_from_solution(prep, solution, objective.value, diagnosis=why)
 
 
 # --- diagnosis ------------------------------------------------------------------------

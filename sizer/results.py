@@ -15,6 +15,7 @@ from typing import TYPE_CHECKING, Any
 
 from sizer.model import Design, DesignStatus, Totals
 from sizer.optimize import Objective, Prepared
+from sizer.stages import stage
 from sizer.workflow import (
     LOADFLOW_DROP_RULE,
     DisconnectionDriver,
@@ -131,20 +132,23 @@ def solve_results(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
     points: tuple[FrontierPoint, ...] = ()
     drivers: tuple[DisconnectionDriver, ...] = ()
     if compare and design.segments:
-        options = tuple(compare_options(prep, engine=engine, solver=solver,
-                                        time_limit_s=time_limit_s, progress=progress,
-                                        solved=[design]))
+        with stage("options"):
+            options = tuple(compare_options(prep, engine=engine, solver=solver,
+                                            time_limit_s=time_limit_s, progress=progress,
+                                            solved=[design]))
         progress("runs sized by disconnection rather than drop")
-        drivers = disconnection_drivers(prep, design)
+        with stage("drivers"):
+            drivers = disconnection_drivers(prep, design)
     if frontier_points and design.segments:
         progress("frontier of upfront cost against losses")
-        points = tuple(frontier(prep, frontier_points, engine=engine, solver=solver,
-                                time_limit_s=REPORT_FRONTIER_TIME_LIMIT_S
-                                if time_limit_s is None
-                                else min(time_limit_s, REPORT_FRONTIER_TIME_LIMIT_S),
-                                progress=progress))
+        with stage("frontier"):
+            points = tuple(frontier(
+                prep, frontier_points, engine=engine, solver=solver,
+                time_limit_s=REPORT_FRONTIER_TIME_LIMIT_S if time_limit_s is None
+                else min(time_limit_s, REPORT_FRONTIER_TIME_LIMIT_S), progress=progress))
     progress("verifying the frontier's designs")
-    designs = frontier_designs(prep, points)
+    with stage("frontier_verify"):
+        designs = frontier_designs(prep, points)
     # The frontier's points keep the linear drop estimate within its limits; one the load
     # flow finds over a total limit is not a compliant design, so it is not offered.
     kept = [(p, d) for p, d in zip(points, designs, strict=True)

@@ -35,6 +35,7 @@ from sizer.optimize import (
     prepare,
 )
 from sizer.spare import has_spare, without_spare
+from sizer.stages import count, stage
 from sizer.topology import Topology
 from sizer.verify import (
     Network,
@@ -463,14 +464,18 @@ def solve_verified(prep: Prepared, objective: Objective, *, engine: str = "auto"
                           motor_start=motor_start)
         if not design.segments:
             return design, None
-        audit(prep, design)
+        with stage("audit"):
+            audit(prep, design)
         choice = np.asarray(design.choice, dtype=np.int64)
-        ver = verify_design(prep, choice)
+        with stage("verify"):
+            ver = verify_design(prep, choice)
         over = ver.loadflow_drop_pct - prep.leaf_limit_pct
         bad = np.isfinite(over) & (over > 1e-6)
         if not bad.any() or rounds >= max_rounds or not ver.converged:
             ver = replace(ver, rounds=rounds)
-            return with_verification(prep, design, choice, ver), ver
+            count("loadflow_rounds", rounds + 1)
+            with stage("findings"):
+                return with_verification(prep, design, choice, ver), ver
         est = np.array([s.path_vd_pct for s in design.segments])
         # Tighten by the estimate's shortfall plus a hair, so the next round lands inside.
         limits[bad] = limits[bad] - (ver.loadflow_drop_pct[bad] - est[bad]) - 1e-4
