@@ -349,38 +349,6 @@ def _cmd_bench(args: argparse.Namespace) -> int:
 
 
 @contextmanager
-def _progress_bar(args: argparse.Namespace) -> Iterator[Callable[[int, int], None]]:
-    """A progress bar on stderr for work counted in points."""
-    if getattr(args, "quiet", False) or not sys.stderr.isatty():
-        yield lambda _done, _total: None
-        return
-    from rich.progress import Progress
-
-    with Progress(transient=True) as progress:
-        task = progress.add_task("sweep", total=None)
-
-        def update(done: int, total: int) -> None:
-            progress.update(task, completed=done, total=total)
-
-        yield update
-
-
-def _cmd_demo(args: argparse.Namespace) -> int:
-    from sizer.demo import run_demo
-    from sizer.report.terminal import summary
-
-    with _progress(args) as say:
-        result = run_demo(Path(args.folder), force=args.force, progress=say)
-    print(summary(result.design, result.title, max_rows=args.rows,
-                  written=[result.schedule_csv, result.results_json]))
-    print(f"\nwrote in {result.seconds:.1f} s:")
-    for path in result.files:
-        print(f"  {path}")
-    print(f"open {result.report} in a browser for the full report")
-    return 0
-
-
-@contextmanager
 def _progress(args: argparse.Namespace) -> Iterator[Callable[[str], None]]:
     """Progress lines on stderr for long work (quiet with --quiet)."""
     if getattr(args, "quiet", False) or not sys.stderr.isatty():
