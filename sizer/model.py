@@ -483,6 +483,7 @@ class DesignStatus(StrEnum):
     """What a design document is, as written in every result (the JSON ``status``)."""
 
     OPTIMAL = "optimal"          # proven least cost
+    BOUNDED = "bounded"          # least cost within a stated tolerance (deep trees)
     TIME_LIMIT = "time_limit"    # a real design, stopped at the time limit (see its gap)
     NO_DESIGN = "no_design"      # the solver stopped without finding any design
     INFEASIBLE = "infeasible"    # proven: no design meets the rules (see the diagnosis)
@@ -502,6 +503,8 @@ class DesignStatus(StrEnum):
 
 _STATUS_WORDS = {
     DesignStatus.OPTIMAL: "optimal (proven)",
+    DesignStatus.BOUNDED: "meets every limit; least cost within the tolerance the notes "
+                          "state (search bounded on a deep tree), not proven optimal",
     DesignStatus.TIME_LIMIT: "stopped at the time limit: best design found, optimality "
                              "not proven",
     DesignStatus.NO_DESIGN: "no design found (the solver stopped before finding one)",

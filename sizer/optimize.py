@@ -525,8 +525,9 @@ def design_from_solution(prep: Prepared, solution: Solution, objective: str, *,
     """
     if solution.has_solution:
         if status is None:
-            status = (DesignStatus.OPTIMAL if solution.status is SolveStatus.OPTIMAL
-                      else DesignStatus.TIME_LIMIT)
+            status = {SolveStatus.OPTIMAL: DesignStatus.OPTIMAL,
+                      SolveStatus.BOUNDED: DesignStatus.BOUNDED}.get(
+                          solution.status, DesignStatus.TIME_LIMIT)
         return design_from_choice(prep, solution.choice, status=status, objective=objective,
                                   solution=solution)
     if solution.status is SolveStatus.INFEASIBLE:
@@ -719,7 +720,7 @@ def check(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",
         return empty_design(prep, DesignStatus.INFEASIBLE, "check", tuple(diagnose(prep)))
     problem = build_problem(prep, Objective.CAPEX)
     solution = solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
-    if solution.status is not SolveStatus.OPTIMAL:
+    if solution.status not in (SolveStatus.OPTIMAL, SolveStatus.BOUNDED):
         # The pins break a path limit: fill the rest without path limits and report.
         relaxed = replace(problem, limit_pct=np.full_like(problem.limit_pct, np.inf),
                           loop_pu=None, loop_limit_pu=None)

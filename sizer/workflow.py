@@ -72,6 +72,9 @@ class FrontierPoint:
         return self.capex + self.loss_pv
 
 
+FRONTIER_FILL_MAX_SEGMENTS = 2000
+
+
 def frontier(prep: Prepared, points: int = 12, *, engine: str = "auto", solver: str = "cbc",
              time_limit_s: float | None = 60.0, fill: bool = True,
              progress: Progress = quiet) -> list[FrontierPoint]:
@@ -79,7 +82,8 @@ def frontier(prep: Prepared, points: int = 12, *, engine: str = "auto", solver: 
 
     Weighted sums (tree engine, fast) find the points on the convex hull; where two
     neighbours leave a gap, an ε-constraint MILP (minimum capex with loss PV capped at
-    the gap's middle) looks for a design inside it, when it can finish in the time limit.
+    the gap's middle) looks for a design inside it, when it can finish in the time limit
+    and the tree has at most FRONTIER_FILL_MAX_SEGMENTS runs.
     """
     t = prep.table
     found: dict[tuple[int, ...], FrontierPoint] = {}
@@ -97,7 +101,9 @@ def frontier(prep: Prepared, points: int = 12, *, engine: str = "auto", solver: 
                                        float(t.loss_pv[sol.choice].sum()), "weighted sum",
                                        float(w), sol.proven_optimal, key)
     pts = sorted(found.values(), key=lambda p: (p.capex, p.loss_pv))
-    if fill and len(pts) > 1:
+    # The gap-filling MILP is worth its time on small trees only; on large ones the
+    # weighted sums by the tree engine are the frontier.
+    if fill and len(pts) > 1 and len(prep.segments) <= FRONTIER_FILL_MAX_SEGMENTS:
         gaps = sorted(itertools.pairwise(pts),
                       key=lambda ab: -(ab[0].loss_pv - ab[1].loss_pv))
         for a, b in gaps[: max(points - len(pts), 0)]:
@@ -605,7 +611,8 @@ def audit(prep: Prepared, design: Design, *, rel_tol: float = 1e-6) -> None:
         own = p.drop_limit_pct(s.kind)
         if not s.pinned and s.vd_pct > own * (1 + rel_tol):
             problems.append(f"'{s.id}' own drop {s.vd_pct:.3f} % over {own:g} %")
-        solved = design.status in (DesignStatus.OPTIMAL, DesignStatus.TIME_LIMIT)
+        solved = design.status in (DesignStatus.OPTIMAL, DesignStatus.BOUNDED,
+                                   DesignStatus.TIME_LIMIT)
         if leaf[s.id] and not s.pinned and solved and (
                 s.path_vd_pct > p.drop_total_pct * (1 + rel_tol)):
             problems.append(f"'{s.id}' path drop {s.path_vd_pct:.3f} % over {p.drop_total_pct:g} %")

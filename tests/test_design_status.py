@@ -165,6 +165,7 @@ def test_an_unexpected_exception_is_one_line_exit_3(tmp_path: Path, monkeypatch,
 
 def test_statuses_have_one_wording() -> None:
     assert [s.value for s in DesignStatus] == [
-        "optimal", "time_limit", "no_design", "infeasible", "compliant", "violations"]
+        "optimal", "bounded", "time_limit", "no_design", "infeasible", "compliant", "violations"]
     assert all(s.words for s in DesignStatus)
     assert not DesignStatus.NO_DESIGN.has_design and DesignStatus.TIME_LIMIT.has_design
+    assert DesignStatus.BOUNDED.has_design

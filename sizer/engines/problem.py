@@ -32,6 +32,7 @@ class SolveStatus(StrEnum):
     """Outcome of a solve, as written in results."""
 
     OPTIMAL = "optimal"
+    BOUNDED = "bounded"        # tree engine, fronts thinned: within a stated tolerance
     INFEASIBLE = "infeasible"
     TIME_LIMIT = "time_limit"
     ERROR = "error"
@@ -272,6 +273,15 @@ class Problem:
         for own, lim in ((self.drop2_pct, self.limit2_pct), (self.loop_pu, self.loop_limit_pu)):
             if own is not None and lim is not None and bool(np.any(np.isfinite(lim))):
                 out.append((own, lim))
+        return out
+
+    def extra_path_names(self) -> list[tuple[str, str]]:
+        """(name, unit) of each of ``extra_paths()``, in the same order."""
+        out = []
+        for own, lim, name in ((self.drop2_pct, self.limit2_pct, ("starting dip", "%")),
+                               (self.loop_pu, self.loop_limit_pu, ("earth-fault loop", "pu"))):
+            if own is not None and lim is not None and bool(np.any(np.isfinite(lim))):
+                out.append(name)
         return out
 
     def path_sum(self, per_row: np.ndarray, choice: np.ndarray,

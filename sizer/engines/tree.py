@@ -50,6 +50,13 @@ __all__ = ["DEFAULT_MAX_FRONT", "DEFAULT_MAX_FRONT_MULTI", "DEFAULT_MAX_QUERIES"
 DEFAULT_MAX_FRONT = 100_000
 DEFAULT_MAX_FRONT_MULTI = 4_000
 DEFAULT_MAX_QUERIES = 1024
+# Fronts longer than THIN_AT points are thinned to about THIN_TO by ε-dominance (a deep
+# chain's exact fronts grow with its depth); the design found still meets every limit
+# exactly, and the solution states the tolerance (see _thin_1d).
+THIN_AT = 2048
+THIN_TO = 512
+THIN_AT_MULTI = 768
+THIN_TO_MULTI = 256
 _ENGINE = "tree"
 
 
@@ -206,6 +213,56 @@ def _pareto(req: np.ndarray, cost: np.ndarray) -> np.ndarray:
     return order[_last_of_runs(req[order])]  # equal requirement: the last is cheapest
 
 
+def _thin_1d(req: np.ndarray, target: int) -> tuple[np.ndarray, float]:
+    """Points of a staircase kept by ε-dominance, and ε (in the requirement's unit).
+
+    ``req`` ascending with cost descending. The range is cut into ``target`` bands of
+    width ε; each band keeps its last (cheapest) point, and the first point (least
+    requirement) is always kept. Every dropped point q has a kept p with cost_p ≤ cost_q
+    and req_p < req_q + ε: the fronts lose only choices a tolerance ε would give back.
+    """
+    lo, hi = float(req[0]), float(req[-1])
+    eps = (hi - lo) / target
+    if not eps > 0 or not np.isfinite(eps):
+        return np.arange(req.size), 0.0
+    band = np.floor((req - lo) / eps).astype(np.int64)
+    keep = _last_of_runs(band)
+    keep[0] = True
+    return np.flatnonzero(keep), eps
+
+
+def _thin_multi(cost: np.ndarray, req: np.ndarray, target: int
+                ) -> tuple[np.ndarray, np.ndarray]:
+    """Points kept by ε-dominance in several requirements, and ε per requirement.
+
+    Each requirement's finite range is cut into bands (fewer while more than ``target``
+    points remain); every cell of bands keeps its cheapest point, and the kept points are
+    pruned by exact dominance. A dropped point has a kept one no costlier and needing at
+    most ε more of each resource. −inf (unconstrained) is a band of its own.
+    """
+    k = req.shape[1]
+    finite = np.isfinite(req)
+    lo = np.array([req[finite[:, j], j].min() if finite[:, j].any() else 0.0
+                   for j in range(k)])
+    hi = np.array([req[finite[:, j], j].max() if finite[:, j].any() else 0.0
+                   for j in range(k)])
+    bands = max(2, round(target ** (1.0 / max(1, int(np.sum(hi > lo))))) * 2)
+    while True:
+        eps = np.where(hi > lo, (hi - lo) / bands, 0.0)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            cell = np.where(finite & (eps > 0), np.floor((req - lo) / np.where(
+                eps > 0, eps, 1.0)), -1.0).astype(np.int64)
+        order = np.lexsort((cost, *cell.T[::-1]))
+        c = cell[order]
+        first = np.ones(order.size, dtype=bool)
+        first[1:] = np.any(c[1:] != c[:-1], axis=1)
+        pick = order[first]
+        pick = pick[_prune_multi(cost[pick], req[pick])]
+        if pick.size <= target or bands <= 2:
+            return np.sort(pick), eps
+        bands //= 2
+
+
 def _query_sets(children: list[list[int]], parent: np.ndarray, own_d: np.ndarray,
                 kept_off: list[int], rmin: list[float], rmax: list[float],
                 tol_pct: float, max_queries: int) -> list[np.ndarray | None]:
@@ -262,13 +319,18 @@ def _subtree_requirements(own: list[float], floor: list[float], parent: list[int
 
 
 def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
-               tol_pct: float = 1e-9, max_queries: int = DEFAULT_MAX_QUERIES) -> Solution:
+               tol_pct: float = 1e-9, max_queries: int = DEFAULT_MAX_QUERIES,
+               thin_at: int = THIN_AT, thin_to: int = THIN_TO) -> Solution:
     """Solve a pure tree problem exactly by the bottom-up Pareto-front program.
 
     ``max_front`` bounds the points of any one front; past it the solve stops with
     status ERROR and a message saying so (use the MILP instead). ``tol_pct`` is the
     feasibility tolerance on path drops, in percent. ``max_queries`` bounds the budget
     sets kept near the root (a speed setting; the result does not depend on it).
+    A front longer than ``thin_at`` points is thinned to about ``thin_to`` by ε-dominance
+    (``_thin_1d``); the solution is then ``bounded``, and its message states the
+    tolerance: the design meets every limit and costs no more than any design meeting
+    the limits tightened by that tolerance.
     """
     t0 = time.perf_counter()
     if problem.has_side_constraints:
@@ -280,7 +342,8 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
         if relaxed.extra_paths():
             return solve_tree_multi(relaxed,
                                     max_front=min(max_front, DEFAULT_MAX_FRONT_MULTI),
-                                    tol_pct=tol_pct)
+                                    tol_pct=tol_pct, thin_at=min(thin_at, THIN_AT_MULTI),
+                                    thin_to=min(thin_to, THIN_TO_MULTI))
         problem = relaxed  # every further limit holds whatever is chosen: drop alone
     n = problem.n_segments
     parent = problem.parent
@@ -340,6 +403,8 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
     f_cost: list[np.ndarray] = [np.empty(0)] * n
     f_row: list[np.ndarray] = [np.empty(0, dtype=np.int64)] * n
     f_below: list[np.ndarray | float] = [0.0] * n  # one value when the same for all points
+    lost = [0.0] * n       # ε-dominance tolerance used at or below each segment (%)
+    thinned = 0
     largest = _leaf_fronts(children, floor_arr, own_d_all, own_c_all, rows, kept,
                            np.asarray(low_budget), np.asarray(high_budget),
                            f_req, f_cost, f_row, f_below)
@@ -400,6 +465,15 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
             req, cost, row = req[sel], cost[sel], row[sel]
             if not isinstance(rb, float):
                 rb = rb[sel]
+        if kids:
+            lost[s] = max(lost[k] for k in kids)
+        if req.size > thin_at:
+            sel, eps = _thin_1d(req, thin_to)
+            req, cost, row = req[sel], cost[sel], row[sel]
+            if not isinstance(rb, float):
+                rb = rb[sel]
+            lost[s] += eps
+            thinned += 1
         if req.size == 0:
             return _failure(
                 problem, SolveStatus.INFEASIBLE,
@@ -430,22 +504,40 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
         for k in children[s]:
             point[k] = int(np.searchsorted(f_req[k], rb, side="right")) - 1
 
+    message = (f"tree engine: {n} segments, {problem.n_candidates} candidates "
+               f"({n_undominated} undominated, {rows.size} usable), largest front "
+               f"{largest} points")
+    bound = max((lost[s] for s in range(n) if parent_list[s] < 0), default=0.0)
     return _checked(problem, choice, tol_pct + (depth + 1) * step, t0,
-                    f"tree engine: {n} segments, {problem.n_candidates} candidates "
-                    f"({n_undominated} undominated, {rows.size} usable), largest front "
-                    f"{largest} points")
+                    message + _bound_note(thinned, [("drop", bound, "%")]), bounded=thinned > 0)
+
+
+def _bound_note(thinned: int, tolerances: list[tuple[str, float, str]]) -> str:
+    """The sentence a bounded solve adds to its message ("" when nothing was thinned)."""
+    if not thinned:
+        return ""
+    tol = ", ".join(f"{name} {value:.3g} {unit}".replace(" %", " %") for name, value, unit
+                    in tolerances)
+    return (f"; fronts bounded by ε-dominance at {thinned} segments: the design meets every "
+            f"limit and costs no more than the least-cost design with every limit tightened "
+            f"by {tol} (optimality within that tolerance, not proven)")
 
 
 def _checked(problem: Problem, choice: np.ndarray, tol_pct: float, t0: float,
-             message: str) -> Solution:
-    """The optimum found, once the problem's own check confirms it meets every limit."""
+             message: str, *, bounded: bool = False) -> Solution:
+    """The optimum found, once the problem's own check confirms it meets every limit.
+
+    ``bounded``: fronts were thinned, so the design is the best of the bounded search
+    (status BOUNDED, not proven optimal).
+    """
     broken = problem.violations(choice, tol_pct=tol_pct)
     if broken:  # pragma: no cover - a guard against a bug, never expected
         return _failure(problem, SolveStatus.ERROR,
                         "tree engine: internal check failed: " + "; ".join(broken[:3]), t0)
     return Solution(
-        status=SolveStatus.OPTIMAL, choice=choice,
-        objective=float(np.sum(problem.cost[choice])), proven_optimal=True, gap=0.0,
+        status=SolveStatus.BOUNDED if bounded else SolveStatus.OPTIMAL, choice=choice,
+        objective=float(np.sum(problem.cost[choice])), proven_optimal=not bounded,
+        gap=None if bounded else 0.0,
         engine=_ENGINE, message=message, seconds=time.perf_counter() - t0,
     )
 
@@ -587,8 +679,26 @@ def _prune_multi(cost: np.ndarray, req: np.ndarray) -> np.ndarray:
     return order[keep]
 
 
+def _reduce_multi(cost: np.ndarray, req: np.ndarray, thin_at: int, thin_to: int
+                  ) -> tuple[np.ndarray, np.ndarray | None]:
+    """The points of a front worth keeping, and ε per resource if it had to be thinned.
+
+    Exact dominance pruning while that is cheap (it compares each point with every kept
+    one); a set too large for it, or a pruned front still over ``thin_at`` points, is
+    thinned by ε-dominance instead (``_thin_multi``).
+    """
+    if cost.size > 8 * thin_at:
+        return _thin_multi(cost, req, thin_to)
+    keep = _prune_multi(cost, req)
+    if keep.size > thin_at:
+        sub, eps = _thin_multi(cost[keep], req[keep], thin_to)
+        return keep[sub], eps
+    return keep, None
+
+
 def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MULTI,
-                     tol_pct: float = 1e-9) -> Solution:
+                     tol_pct: float = 1e-9, thin_at: int = THIN_AT_MULTI,
+                     thin_to: int = THIN_TO_MULTI) -> Solution:
     """Exact bottom-up program with several additive path resources.
 
     The same recursion as :func:`solve_tree`, with a requirement vector per point: for
@@ -599,6 +709,8 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
     requirement are pruned. A point whose requirement exceeds what the least-value
     path above can leave is dropped. Past ``max_front`` points at any segment the solve
     stops with status ERROR (``solve(engine="auto")`` then falls back to the MILP).
+    Past ``thin_at`` points a front is thinned by ε-dominance (``_thin_multi``) and the
+    solution is ``bounded``, with the tolerance per resource in its message.
     """
     t0 = time.perf_counter()
     n = problem.n_segments
@@ -649,6 +761,8 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
     f_row: list[np.ndarray] = [np.empty(0, dtype=np.int64)] * n
     f_kid: list[np.ndarray] = [np.empty((0, 0), dtype=np.int64)] * n
     largest = 0
+    lost = np.zeros((n, k))  # ε-dominance tolerance used at or below each segment
+    thinned = 0
     for s in range(n - 1, -1, -1):
         kids = children[s]
         # merge the children: one point (cost 0, requirement floor) to start
@@ -662,8 +776,12 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
             m_cost = m_cost[ia] + f_cost[c][ib]
             m_req = np.maximum(m_req[ia], f_req[c][ib])
             m_kid = np.column_stack((m_kid[ia], ib))
-            keep = _prune_multi(m_cost, m_req)
+            np.maximum(lost[s], lost[c], out=lost[s])
+            keep, eps = _reduce_multi(m_cost, m_req, thin_at, thin_to)
             m_cost, m_req, m_kid = m_cost[keep], m_req[keep], m_kid[keep]
+            if eps is not None:
+                lost[s] += eps
+                thinned += 1
             if m_cost.size > max_front:
                 return _failure(problem, SolveStatus.ERROR,
                                 _bound_message(f"segment {s}", max_front), t0)
@@ -676,8 +794,11 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
         ok = np.all(req <= cap[s], axis=1)
         cost, req, row, kid = cost[ok], req[ok], rows[ia[ok]], m_kid[ib[ok]]
         req = np.maximum(req, low[s])
-        keep = _prune_multi(cost, req)
+        keep, eps = _reduce_multi(cost, req, thin_at, thin_to)
         cost, req, row, kid = cost[keep], req[keep], row[keep], kid[keep]
+        if eps is not None:
+            lost[s] += eps
+            thinned += 1
         if cost.size == 0:
             return _failure(
                 problem, SolveStatus.INFEASIBLE,
@@ -705,6 +826,12 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
         for j, c in enumerate(children[s]):
             point[c] = int(f_kid[s][i, j])
 
+    roots = [s for s in range(n) if parent[s] < 0]
+    bound = lost[roots].max(axis=0) if roots else np.zeros(k)
+    names = [("drop", "%")] + [(name, unit) for name, unit in problem.extra_path_names()]
     return _checked(problem, choice, tol_pct * 10, t0,
                     f"tree engine: {n} segments, {problem.n_candidates} candidates, "
-                    f"{k} path resources, largest front {largest} points")
+                    f"{k} path resources, largest front {largest} points"
+                    + _bound_note(thinned, [(nm, float(b), u) for (nm, u), b
+                                            in zip(names, bound, strict=True)]),
+                    bounded=thinned > 0)
