@@ -483,8 +483,17 @@ def solve_verified(prep: Prepared, objective: Objective, *, engine: str = "auto"
             with stage("findings"):
                 return with_verification(prep, design, choice, ver), ver
         est = np.array([s.path_vd_pct for s in design.segments])
+        short = ver.loadflow_drop_pct - est
         # Tighten by the estimate's shortfall plus a hair, so the next round lands inside.
-        limits[bad] = limits[bad] - (ver.loadflow_drop_pct[bad] - est[bad]) - 1e-4
+        limits[bad] = limits[bad] - short[bad] - 1e-4
+        # Every other leaf the estimate under-states keeps room for its own shortfall,
+        # with a tenth more for the change the re-solve brings upstream: otherwise the
+        # next solve moves drops around and a leaf that had room becomes the next one
+        # over (each round is a whole solve and load flow; at 5,000 runs this saves one
+        # of two rounds for +0.003 % of cost).
+        room = np.isfinite(short) & (short > 0) & ~bad
+        limits[room] = np.minimum(limits[room],
+                                  prep.leaf_limit_pct[room] - 1.1 * short[room] - 1e-4)
         rounds += 1
 
 

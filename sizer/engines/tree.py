@@ -53,10 +53,10 @@ DEFAULT_MAX_QUERIES = 1024
 # Fronts longer than THIN_AT points are thinned to about THIN_TO by ε-dominance (a deep
 # chain's exact fronts grow with its depth); the design found still meets every limit
 # exactly, and the solution states the tolerance (see _thin_1d).
-THIN_AT = 2048
-THIN_TO = 512
-THIN_AT_MULTI = 768
-THIN_TO_MULTI = 256
+THIN_AT = 20_000
+THIN_TO = 4_096
+THIN_AT_MULTI = 2_000
+THIN_TO_MULTI = 512
 _ENGINE = "tree"
 
 
@@ -696,6 +696,51 @@ def _reduce_multi(cost: np.ndarray, req: np.ndarray, thin_at: int, thin_to: int
     return keep, None
 
 
+def _simple_leaf_fronts(leaves: np.ndarray, seg_rows: list[np.ndarray], cost: np.ndarray,
+                        own: np.ndarray, fix: np.ndarray, floor: np.ndarray,
+                        cap: np.ndarray, low: np.ndarray, f_cost: list[np.ndarray],
+                        f_req: list[np.ndarray], f_row: list[np.ndarray],
+                        f_kid: list[np.ndarray]) -> int:
+    """Fronts of leaves where only the drop varies, in one vectorised pass.
+
+    The same points :func:`solve_tree_multi` keeps one leaf at a time: rows within the
+    cap, requirements clamped at ``low``, then the staircase in (drop requirement, cost),
+    cheapest first, of exact ties the lowest row. Returns the largest front.
+    """
+    if not leaves.size:
+        return 0
+    counts = np.array([seg_rows[s].size for s in leaves.tolist()], dtype=np.int64)
+    rows = np.concatenate([seg_rows[s] for s in leaves.tolist()])
+    which = np.repeat(np.arange(leaves.size), counts)
+    seg = leaves[which]
+    with np.errstate(invalid="ignore"):  # −inf + 0 stays −inf
+        req = own[rows] + fix[seg] + floor[seg]
+    ok = np.all(req <= cap[seg], axis=1)
+    req = np.maximum(req, low[seg])
+    width = int(counts.max())
+    pos = np.arange(rows.size) - np.repeat(np.cumsum(counts) - counts, counts)
+    pad_r = np.full((leaves.size, width), np.inf)
+    pad_c = np.full((leaves.size, width), np.inf)
+    pad_r[which[ok], pos[ok]] = req[ok, 0]
+    pad_c[which[ok], pos[ok]] = cost[rows[ok]]
+    order = np.lexsort((pad_c, pad_r), axis=1)      # drop requirement, then cost, then row
+    c_sorted = np.take_along_axis(pad_c, order, axis=1)
+    best_before = np.empty_like(c_sorted)
+    best_before[:, 0] = np.inf
+    np.minimum.accumulate(c_sorted[:, :-1], axis=1, out=best_before[:, 1:])
+    keep = c_sorted < best_before
+    start = (np.cumsum(counts) - counts).tolist()
+    largest = 0
+    for i, s in enumerate(leaves.tolist()):
+        idx = order[i][keep[i]][::-1] + start[i]     # cheapest first
+        f_cost[s] = cost[rows[idx]]
+        f_req[s] = req[idx]
+        f_row[s] = rows[idx]
+        f_kid[s] = np.zeros((idx.size, 0), dtype=np.int64)
+        largest = max(largest, idx.size)
+    return largest
+
+
 def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MULTI,
                      tol_pct: float = 1e-9, thin_at: int = THIN_AT_MULTI,
                      thin_to: int = THIN_TO_MULTI) -> Solution:
@@ -760,11 +805,22 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
     f_req: list[np.ndarray] = [np.empty((0, k))] * n
     f_row: list[np.ndarray] = [np.empty(0, dtype=np.int64)] * n
     f_kid: list[np.ndarray] = [np.empty((0, 0), dtype=np.int64)] * n
-    largest = 0
     lost = np.zeros((n, k))  # ε-dominance tolerance used at or below each segment
     thinned = 0
+    # Leaves where only the drop matters (most of a large tree) all at once: their
+    # fronts are staircases in the drop alone.
+    simple = np.array([not c for c in children]) & ~multi
+    largest = _simple_leaf_fronts(np.flatnonzero(simple), seg_rows, problem.cost, own, fix,
+                                  floor, cap, low, f_cost, f_req, f_row, f_kid)
     for s in range(n - 1, -1, -1):
         kids = children[s]
+        if simple[s]:
+            if f_cost[s].size == 0:
+                return _failure(
+                    problem, SolveStatus.INFEASIBLE,
+                    f"tree engine: no choice at or below segment {s} meets its path limits",
+                    t0)
+            continue
         # merge the children: one point (cost 0, requirement floor) to start
         m_cost = np.zeros(1)
         m_req = floor[s][None, :].copy()
