@@ -368,6 +368,71 @@ def _grid(sa: SegmentArrays, n_sizes: int) -> tuple[np.ndarray, ...]:
     return seg[keep], mat[keep], size[keep], sets[keep], ~pinned[keep] | pin_row[keep]
 
 
+# Peak memory per (segment × material × size × sets) combination while the table is
+# built, bytes: measured by `sizer bench` (about 2.0 GB for 3.5 million combinations of
+# the 20,000-run building), with a tenth of headroom.
+PEAK_BYTES_PER_COMBINATION = 620
+MEMORY_LIMIT_ENV = "SIZER_MEMORY_LIMIT"
+
+
+def combinations(sa: SegmentArrays, n_sizes: int, n_bands: int) -> int:
+    """How many (segment, material, size, sets[, band]) rows the table starts from."""
+    materials = np.where(sa.pin_material >= 0, 1, sa.allowed.sum(axis=1))
+    sets = np.maximum(sa.max_sets, np.maximum(sa.pin_sets, 1))
+    bands = np.where(sa.route >= 0, n_bands, 1) if sa.route is not None else 1
+    return int(np.sum(materials * n_sizes * sets * bands))
+
+
+def available_memory_bytes() -> float:
+    """The memory the table may use: ``SIZER_MEMORY_LIMIT`` if set, else what is free.
+
+    Free memory is the kernel's MemAvailable (Linux), else physical memory; infinite
+    when neither can be read.
+    """
+    import os
+
+    given = os.environ.get(MEMORY_LIMIT_ENV)
+    if given:
+        from sizer.readers import read_memory_bytes
+
+        return read_memory_bytes(given, MEMORY_LIMIT_ENV)
+    try:
+        with open("/proc/meminfo", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return float(line.split()[1]) * 1024.0
+    except OSError:
+        pass
+    try:
+        return float(os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES"))
+    except (ValueError, OSError, AttributeError):
+        return float("inf")
+
+
+def _memory_text(n_bytes: float) -> str:
+    return f"{n_bytes / 1e9:.1f} GB" if n_bytes >= 1e9 else f"{n_bytes / 1e6:.0f} MB"
+
+
+def check_table_fits(sa: SegmentArrays, n_sizes: int, n_bands: int, file: str | None,
+                     limit_bytes: float | None = None) -> None:
+    """Refuse, in one line, a candidate table larger than the memory it may use.
+
+    Raised before anything is built, instead of a traceback or the kernel stopping the
+    process; the message says what to change.
+    """
+    rows = combinations(sa, n_sizes, n_bands)
+    need = rows * PEAK_BYTES_PER_COMBINATION
+    limit = available_memory_bytes() if limit_bytes is None else limit_bytes
+    if need > limit:
+        raise ScenarioError(
+            f"the candidate table would need about {_memory_text(need)} ({rows:,} "
+            f"combinations of run, material, size and parallel sets) but "
+            f"{_memory_text(limit)} is available: allow fewer materials or parallel sets "
+            f"(max_sets), or use a coarser catalogue; {MEMORY_LIMIT_ENV} sets the limit "
+            f"(e.g. \"8 GB\")",
+            file=file)
+
+
 def transformer_drops_pct(segments: tuple[Segment, ...]) -> np.ndarray:
     """Regulation of each node's transformer at its demand (0 where none), in %."""
     out = np.zeros(len(segments))
@@ -395,6 +460,7 @@ def build_candidates(
     neutral_a: np.ndarray | None = None,
     neutral_a2: np.ndarray | None = None,
     pe_fault: PeFaultTerms | None = None,
+    file: str | None = None,
 ) -> tuple[CandidateTable, LocalDiagnosis]:
     """Every compliant candidate of every segment, and what the rejected rows could reach.
 
@@ -404,13 +470,16 @@ def build_candidates(
     conductor. ``loss_pv_per_w`` is F (money per W of peak loss): one value, or one per
     segment. With ``keep_pins`` a pinned row stays in the table even when it breaks a
     segment-local rule (``sizer check`` reports it as a violation). ``pe_fault`` is
-    needed when the profile sizes the protective conductor adiabatically.
+    needed when the profile sizes the protective conductor adiabatically. A table too
+    large for the memory available is refused first (``check_table_fits``; ``file``
+    names the scenario in the message).
     """
     sa = segment_arrays(segments, profile, catalogue)
     n = len(segments)
-    seg, mat, size, sets, own = _grid(sa, len(catalogue.sizes))
     # Shared routes: one copy of each row per grouping band, its derating at that band.
     tops = band_tops_conductors(profile.grouping_bands, profile.grouping_conductors_per_group)
+    check_table_fits(sa, len(catalogue.sizes), len(tops), file)
+    seg, mat, size, sets, own = _grid(sa, len(catalogue.sizes))
     seg, mat, size, sets, own, band = _route_bands(sa, (seg, mat, size, sets, own), len(tops))
     route = sa.route[seg] if sa.route is not None else np.full(seg.shape, -1)
     ccc = sa.per_set_ccc if sa.per_set_ccc is not None else np.where(sa.phases == 1, 2, 3)

@@ -183,6 +183,7 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
             neutral_a2=neutral_current_squared(segments, phase_state),
             pe_fault=pe_fault_terms(segments, profile, earth, topology.parent)
             if profile.pe_rule == "adiabatic" else None,
+            file=scenario.file,
         )
         limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)
         removed = np.zeros(len(segments), dtype=np.int64)

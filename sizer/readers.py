@@ -192,6 +192,18 @@ read_sets = _at_most(read_count, MAX_SETS, "parallel sets")
 read_grouping = _at_most(auto(read_count), MAX_GROUPING, "conductors in one raceway")
 
 
+def read_memory_bytes(value: Any, what: str = "memory") -> float:
+    """An amount of memory in bytes ("8 GB", "512 MB"), for the candidate-table guard."""
+    try:
+        x = _quantity(_unit_text(value, "8 GB"), "B")
+    except ScenarioError as exc:
+        raise ScenarioError(f"{what}: {exc.message}") from None
+    if not x > 0:
+        raise ScenarioError(f"{what}: must be a positive amount of memory such as \"8 GB\", "
+                            f"got {show(value)}")
+    return x
+
+
 def read_voltage(value: Any, text: bool = False) -> float:
     """A low voltage in volts."""
     x = _quantity(_unit_text(value, "480 V"), "V")
