@@ -555,6 +555,20 @@ def build_candidates(
     # segment and material: the fewest circular mils in total over its parallel sets.
     min_size, min_sets = _smallest_compliant(seg, mat, size, sets, code_ok,
                                              catalogue.area_mm2, n)
+    # The rows that cannot be kept have served the diagnosis: the rest of the work (EGC,
+    # neutral, terminations, raceways, prices, fault loop) runs on the survivors only.
+    alive = np.flatnonzero(keep)
+    seg, mat, size, sets = seg[alive], mat[alive], size[alive], sets[alive]
+    valid, ampacity, before_set = valid[alive], ampacity[alive], before_set[alive]
+    ocpd, temp_c, r_m, x_m, vd = ocpd[alive], temp_c[alive], r_m[alive], x_m[alive], vd[alive]
+    length, imp_code = length[alive], imp_code[alive]
+    route_count, route_top = route_count[alive], route_top[alive]
+    pinned, keep = pinned[alive], keep[alive]
+    grid_amp_rows = amp_rows
+
+    def alive_amp_rows(rows: np.ndarray) -> np.ndarray:
+        return grid_amp_rows(alive[rows])
+
     pair = seg * 2 + mat
     # cec: bonding conductor by the ampacity of the run (CEC Table 16), not the device
     egc_key = (np.where(valid, ampacity, np.nan) if profile.egc_rule == "conductor_ampacity"
@@ -580,7 +594,8 @@ def build_candidates(
     # --- the neutral of a three-phase four-wire run: its own size -------------------------
     neutral_size = neutral_size_index(
         profile.name, catalogue, sa, seg, mat, size, sets, egc,
-        np.zeros(n) if neutral_a is None else np.asarray(neutral_a, dtype=float), amp_rows)
+        np.zeros(n) if neutral_a is None else np.asarray(neutral_a, dtype=float),
+        alive_amp_rows)
     own_neutral = sa.own_neutral[seg]
     keep &= ~own_neutral | (neutral_size >= 0)
     neutral_size = np.where(own_neutral & (neutral_size >= 0), neutral_size, size)
