@@ -345,27 +345,34 @@ class LocalDiagnosis:
 def _grid(sa: SegmentArrays, n_sizes: int) -> tuple[np.ndarray, ...]:
     """Index arrays of every allowed (segment, material, size, sets) combination.
 
+    In segment, material, size, sets order; each segment up to its own ``max_sets`` (a
+    grid up to the largest ``max_sets`` of the tree would be built only to be dropped).
     A pinned segment keeps its pinned row and, flagged apart (the last array is False),
     the other rows of the pin's material: the smallest compliant one of them is what
     NEC 250.122(B) measures the pin's EGC growth from.
     """
-    n = sa.length_m.shape[0]
-    s_max = int(sa.max_sets.max(initial=1))
-    s_max = max(s_max, int(sa.pin_sets.max(initial=1)))
-    seg, mat, size, sets = np.meshgrid(
-        np.arange(n), np.arange(2), np.arange(n_sizes), np.arange(1, s_max + 1),
-        indexing="ij",
-    )
-    seg, mat, size, sets = (a.ravel() for a in (seg, mat, size, sets))
-    pinned = sa.pin_material[seg] >= 0
-    pin_row = pinned & ((mat == sa.pin_material[seg]) & (size == sa.pin_size[seg])
-                        & (sets == sa.pin_sets[seg]))
-    keep = pin_row | np.where(
-        pinned,
-        (mat == sa.pin_material[seg]) & (sets <= sa.max_sets[seg]),
-        sa.allowed[seg, mat] & (sets <= sa.max_sets[seg]),
-    )
-    return seg[keep], mat[keep], size[keep], sets[keep], ~pinned[keep] | pin_row[keep]
+    pinned_seg = sa.pin_material >= 0
+    mats = np.where(pinned_seg[:, None], np.arange(2)[None, :] == sa.pin_material[:, None],
+                    sa.allowed)
+    pair_seg, pair_mat = np.nonzero(mats)                   # segment-major, then material
+    top = np.where(pinned_seg, np.maximum(sa.max_sets, sa.pin_sets), sa.max_sets)
+    span = top[pair_seg].astype(np.int64)
+    counts = n_sizes * span
+    start = np.cumsum(counts) - counts
+    total = int(counts.sum())
+    seg = np.repeat(pair_seg, counts)
+    mat = np.repeat(pair_mat, counts)
+    pos = np.arange(total, dtype=np.int64) - np.repeat(start, counts)
+    width = np.repeat(span, counts)
+    size = pos // width
+    sets = pos % width + 1
+    pinned = pinned_seg[seg]
+    pin_row = pinned & (size == sa.pin_size[seg]) & (sets == sa.pin_sets[seg])
+    keep = pin_row | (sets <= sa.max_sets[seg])
+    if not keep.all():
+        seg, mat, size, sets = seg[keep], mat[keep], size[keep], sets[keep]
+        pinned, pin_row = pinned[keep], pin_row[keep]
+    return seg, mat, size, sets, ~pinned | pin_row
 
 
 # Peak memory per (segment × material × size × sets) combination while the table is
@@ -564,6 +571,9 @@ def build_candidates(
     length, imp_code = length[alive], imp_code[alive]
     route_count, route_top = route_count[alive], route_top[alive]
     pinned, keep = pinned[alive], keep[alive]
+    # the whole grid's masks go now: they are most of the peak memory
+    del (broken, carries, protected, small_ok, parallel_ok, code_ok, drop_ok, own, band,
+         route, in_route, row_grouping, amp_set, thermal_set, current, motor)
     grid_amp_rows = amp_rows
 
     def alive_amp_rows(rows: np.ndarray) -> np.ndarray:
