@@ -75,3 +75,22 @@ def test_thinned_multi_resource_fronts_are_feasible_against_brute_force(seed):
             assert sol.objective == pytest.approx(expected, rel=1e-9)
         else:
             assert sol.status is SolveStatus.BOUNDED and "fronts bounded" in sol.message
+
+
+@pytest.mark.parametrize("seed", range(25))
+def test_wide_panels_with_an_earth_fault_limit_match_brute_force(seed):
+    """Simple leaves merged at once as staircases, beside leaves with a loop limit."""
+    base = random_tree(seed, 9, 3, shape=2)        # a forest of wide stars
+    rng = np.random.default_rng(100 + seed)
+    loop = base.drop_pct * rng.uniform(0.5, 1.5, base.n_candidates)
+    worst = base.path_sum(loop, base.offsets[:-1] + np.diff(base.offsets) - 1)
+    limit = np.where(rng.random(base.n_segments) < 0.3, worst * rng.uniform(0.7, 1.2),
+                     np.inf)
+    p = dataclasses.replace(base, loop_pu=loop, loop_limit_pu=limit)
+    expected, _ = brute_force(p)
+    sol = tree_engine.solve_tree(p)
+    if not np.isfinite(expected):
+        assert sol.status is SolveStatus.INFEASIBLE
+    else:
+        assert sol.status is SolveStatus.OPTIMAL
+        assert sol.objective == pytest.approx(expected, rel=1e-9)

@@ -741,6 +741,27 @@ def _simple_leaf_fronts(leaves: np.ndarray, seg_rows: list[np.ndarray], cost: np
     return largest
 
 
+def _merge_staircases(kids: list[int], floor: np.ndarray, f_cost: list[np.ndarray],
+                      f_req: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Merge fronts that vary in the first requirement only, as staircases.
+
+    The points a one-by-one merge and exact pruning would keep: at every breakpoint r of
+    the first requirement, each child's cheapest point needing at most r; the other
+    requirements are the largest of the children's constants and the floor. Returns
+    (cost, requirements, back pointer per child), cheapest first.
+    """
+    asc_r = [f_req[c][::-1, 0] for c in kids]      # fronts are stored cheapest first
+    asc_c = [f_cost[c][::-1] for c in kids]
+    local = list(range(len(kids)))
+    r, c = _merge_children(local, float(floor[0]), asc_r, asc_c)
+    consts = np.max(np.vstack([floor[None, 1:]] + [f_req[k][:1, 1:] for k in kids]), axis=0)
+    kid = np.column_stack([
+        f_req[k].shape[0] - np.searchsorted(asc_r[i], r, side="right")
+        for i, k in enumerate(kids)]).astype(np.int64)
+    req = np.column_stack([r, np.broadcast_to(consts, (r.size, consts.size))])
+    return c[::-1].copy(), req[::-1].copy(), kid[::-1].copy()
+
+
 def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MULTI,
                      tol_pct: float = 1e-9, thin_at: int = THIN_AT_MULTI,
                      thin_to: int = THIN_TO_MULTI) -> Solution:
@@ -821,11 +842,20 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
                     f"tree engine: no choice at or below segment {s} meets its path limits",
                     t0)
             continue
-        # merge the children: one point (cost 0, requirement floor) to start
-        m_cost = np.zeros(1)
-        m_req = floor[s][None, :].copy()
-        m_kid = np.zeros((1, 0), dtype=np.int64)
-        for c in kids:
+        # merge the children: the simple leaves at once as staircases, then the others
+        # one by one; one point (cost 0, requirement floor) to start
+        flat = [c for c in kids if simple[c]]
+        if len(flat) > 1:
+            m_cost, m_req, m_kid = _merge_staircases(flat, floor[s], f_cost, f_req)
+            for c in flat:
+                np.maximum(lost[s], lost[c], out=lost[s])
+            rest = [c for c in kids if not simple[c]]
+        else:
+            m_cost = np.zeros(1)
+            m_req = floor[s][None, :].copy()
+            m_kid = np.zeros((1, 0), dtype=np.int64)
+            flat, rest = [], kids
+        for c in rest:
             a, b = m_cost.size, f_cost[c].size
             ia = np.repeat(np.arange(a), b)
             ib = np.tile(np.arange(b), a)
@@ -841,6 +871,8 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
             if m_cost.size > max_front:
                 return _failure(problem, SolveStatus.ERROR,
                                 _bound_message(f"segment {s}", max_front), t0)
+        if flat:  # back pointers in the children's order, as the rebuild reads them
+            m_kid = m_kid[:, np.argsort(np.array(flat + rest), kind="stable")]
         rows = seg_rows[s]
         ia = np.repeat(np.arange(rows.size), m_cost.size)
         ib = np.tile(np.arange(m_cost.size), rows.size)
