@@ -55,8 +55,8 @@ DEFAULT_MAX_QUERIES = 1024
 # exactly, and the solution states the tolerance (see _thin_1d).
 THIN_AT = 20_000
 THIN_TO = 4_096
-THIN_AT_MULTI = 2_000
-THIN_TO_MULTI = 512
+THIN_AT_MULTI = 4_000
+THIN_TO_MULTI = 1_000
 _ENGINE = "tree"
 
 
@@ -683,11 +683,12 @@ def _reduce_multi(cost: np.ndarray, req: np.ndarray, thin_at: int, thin_to: int
                   ) -> tuple[np.ndarray, np.ndarray | None]:
     """The points of a front worth keeping, and ε per resource if it had to be thinned.
 
-    Exact dominance pruning while that is cheap (it compares each point with every kept
-    one); a set too large for it, or a pruned front still over ``thin_at`` points, is
-    thinned by ε-dominance instead (``_thin_multi``).
+    Exact dominance pruning (it compares each point with every kept one); a set of more
+    than a hundred fronts' worth of points, which only a deep tree's merges give, or a
+    pruned front still over ``thin_at`` points, is thinned by ε-dominance instead
+    (``_thin_multi``).
     """
-    if cost.size > 8 * thin_at:
+    if cost.size > 100 * thin_at:
         return _thin_multi(cost, req, thin_to)
     keep = _prune_multi(cost, req)
     if keep.size > thin_at:
