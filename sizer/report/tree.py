@@ -108,11 +108,11 @@ class _Builder:
         self._anchors = 0
         # Runs fed through each run, summed children before parents (no recursion).
         order = [-1]
-        for r in order:
-            order.extend(self.kids[r])
+        for run in order:
+            order.extend(self.kids[run])
         self.below = dict.fromkeys(order, 0)
-        for r in reversed(order[1:]):
-            self.below[self.runs[r].parent] += 1 + self.below[r]
+        for run in reversed(order[1:]):
+            self.below[self.runs[run].parent] += 1 + self.below[run]
 
     def anchor(self, prefix: str, run: int) -> str:
         self._anchors += 1
