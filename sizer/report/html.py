@@ -195,8 +195,9 @@ class _Page:
 
     def _limits(self) -> list[ex.RunLimits]:
         p = self.prep.profile
-        return [ex.RunLimits(p.drop_limit_pct(g.kind),
-                             float(self.prep.leaf_limit_pct[i]) if g.is_leaf else math.inf)
+        own = {kind: p.drop_limit_pct(kind) for kind in {g.kind for g in self.prep.segments}}
+        leaf = [float(x) for x in self.prep.leaf_limit_pct]   # one conversion, not one per run
+        return [ex.RunLimits(own[g.kind], leaf[i] if g.is_leaf else math.inf)
                 for i, g in enumerate(self.prep.segments)]
 
     def _kinds(self) -> list[str]:
@@ -807,7 +808,7 @@ class _Page:
                 f"{len(d.segments):,} runs, so the schedule is summed by the panel or board "
                 f"that feeds them: {len(rows):,} rows, one per panel. The full cable schedule, "
                 "one row per run with its conductor, EGC, raceway, drops and fault levels, is "
-                "in the CSV file (<code>sizer solve … --csv schedule.csv</code>) and the JSON "
+                "in the CSV file (sizer solve … --csv schedule.csv) and the JSON "
                 f"results; this page stays light ({_SIZE_MARK}) so that a browser opens it "
                 "quickly. Drops are the AC load flow's where it ran, else the linear "
                 "estimate, in % of each circuit's nominal voltage.</p>"
