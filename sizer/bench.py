@@ -278,7 +278,7 @@ def physical_floors(scenario: Path, segments: int, rows: int) -> dict[str, float
     try:  # the compiled parser when installed, as the reader prefers it
         import rtoml as toml_parser
     except ImportError:
-        import tomllib as toml_parser
+        import tomllib as toml_parser  # type: ignore[no-redef]
 
     text = scenario.read_text(encoding="utf-8")
     rng = np.random.default_rng(0)

@@ -271,6 +271,18 @@ class Node:
 
     def __post_init__(self) -> None:
         # The dataclass checks its own fields; whole-tree checks live in sizer.validation.
+        # All fine (the usual case, tens of thousands of times per file): one expression.
+        # A comparison with NaN is false, so "0 < x < inf" also says "finite".
+        inf = math.inf
+        if (self.id and self.parent and 0 < self.length_m < inf and 0 < self.voltage_v < inf
+                and self.phases in (1, 3) and 0 < self.power_factor <= 1
+                and 0 < self.demand_factor <= 1
+                and (self.ocpd_a is None or 0 < self.ocpd_a < inf)
+                and (self.clearing_time_s is None or 0 < self.clearing_time_s < inf)
+                and 0 <= self.nonlinear <= 1 and 0 <= self.triplen <= 1
+                and 0 <= self.spare <= 1
+                and (self.neutral_size == 0.0 or 1.0 <= self.neutral_size <= 2.0)):
+            return
         _check(bool(self.id), "must not be empty", None, "id")
         _check(bool(self.parent), "must name the parent node", self.id, "parent")
         _check(finite_positive(self.length_m), "must be a positive length", self.id, "length")

@@ -67,6 +67,9 @@ MAX_PRICE = 1.0e6          # per kWh, per kW-month or per kg, in any currency
 HP_W = parse_quantity("1 hp", "W")
 
 
+_CONTROL = re.compile(r"[\x00-\x1f]")   # a control character: not one line of text
+
+
 def read_text(value: Any, text: bool = False) -> str:
     """One line of non-empty text."""
     if not isinstance(value, str):
@@ -74,7 +77,7 @@ def read_text(value: Any, text: bool = False) -> str:
     s = value.strip()
     if not s:
         raise ScenarioError("must not be empty")
-    if any(ord(c) < 32 for c in s):
+    if _CONTROL.search(s):
         raise ScenarioError(f"must be one line of text, got {value!r}")
     return s
 

@@ -29,6 +29,7 @@ from __future__ import annotations
 
 import csv
 import dataclasses
+import functools
 import io
 import os
 import re
@@ -38,7 +39,7 @@ from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any
 
-from sizer import fields
+from sizer import fields, toml_parse
 from sizer.errors import ScenarioError
 from sizer.model import (
     CableSettings,
@@ -95,6 +96,11 @@ SCHEDULE_COLUMNS = fields.schedule_columns()
 # --- reading a table -----------------------------------------------------------------------
 
 
+@functools.cache
+def _key_set(known: tuple[str, ...]) -> frozenset[str]:
+    return frozenset(known)
+
+
 class _Fields:
     """The fields of one table or CSV row: read each, report each bad one, carry on."""
 
@@ -112,8 +118,9 @@ class _Fields:
 
     def unknown_keys(self, known: tuple[str, ...], what: str = "key") -> None:
         """Report every key that is not in ``known``, with the closest known one."""
+        known_set = _key_set(known)
         for key in self.raw:
-            if key not in known:
+            if key not in known_set:
                 hint = suggest(str(key), known)
                 # A quoted TOML key may hold a line break: escape it, one error one line.
                 name = str(key) if str(key).isprintable() else repr(str(key))[1:-1]
@@ -214,7 +221,7 @@ def _read_toml(path: Path, shown: str) -> dict[str, Any]:
         raise ScenarioError("the file is empty: a scenario needs [project], [economics], "
                             "[source] and [[node]] tables", file=shown)
     try:
-        data = tomllib.loads(text)
+        data = toml_parse.loads(text)   # the compiled parser; tomllib's errors
     except tomllib.TOMLDecodeError as exc:
         raise ScenarioError(f"is not valid TOML: {exc}", file=shown) from exc
     except ValueError as exc:  # e.g. an integer past Python's 4300-digit conversion limit
@@ -239,7 +246,7 @@ def _find_head(csv_path: Path) -> Path:
     heads = []
     for candidate in sorted(csv_path.parent.glob("*.toml")):
         try:
-            data = tomllib.loads(candidate.read_text(encoding="utf-8-sig"))
+            data = toml_parse.loads(candidate.read_text(encoding="utf-8-sig"))
         except (OSError, ValueError, RecursionError):   # TOMLDecodeError, UnicodeDecodeError
             continue  # not a head of this schedule
         project = data.get("project")
@@ -547,6 +554,8 @@ def _csv_rows(reader: Any, report: Report, file: str) -> Any:
 
 
 _NODE_READERS = {k: v for k, v in fields.readers("node").items() if k not in ("id", "parent")}
+_NODE_KEY_SET = frozenset(NODE_KEYS)
+_NODE_ORDER = {k: i for i, k in enumerate(_NODE_READERS)}   # fields are read in this order
 
 
 def _read_node(raw: Mapping[str, Any], position: int, file: str, where: str, text: bool,
@@ -559,7 +568,7 @@ def _read_node(raw: Mapping[str, Any], position: int, file: str, where: str, tex
         report.add(f"{where} has no id", field="id", file=file)
     parent = f.get("parent", read_text)
     draft = NodeDraft(file=file, where=where, position=position, id=node_id, parent=parent,
-                      given=frozenset(k for k in raw if k in NODE_KEYS), bad=f.bad)
+                      given=_NODE_KEY_SET.intersection(raw), bad=f.bad)
     if "id" in f.bad or "id" not in raw:
         draft.id = None
     if f.missing("length"):
@@ -567,11 +576,11 @@ def _read_node(raw: Mapping[str, Any], position: int, file: str, where: str, tex
                    node=node_id, field="length", file=file)
     if "length" not in raw:
         f.bad.add("length")
-    for key, read in _NODE_READERS.items():
-        if key in raw:
-            value = f.get(key, read)
-            if key not in f.bad:
-                draft.values[key] = value
+    # The given fields only, in the registry's order (the order errors are reported in).
+    for key in sorted((k for k in raw if k in _NODE_ORDER), key=_NODE_ORDER.__getitem__):
+        value = f.get(key, _NODE_READERS[key])
+        if key not in f.bad:
+            draft.values[key] = value
     tx_raw = f.table("transformer")
     if tx_raw is not None:
         draft.values["transformer"] = _read_transformer(tx_raw, f)
@@ -651,13 +660,23 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
             given.bad.add("terminals")
     settings_cache: dict[tuple[Any, ...], CableSettings] = {}
     nodes: list[Node] = []
+    # Most nodes give no cable setting or load profile of their own: they share the
+    # objects built from [defaults] (frozen, so sharing is safe).
+    default_cable_key = tuple(defaults[k] for k in CABLE_KEYS)
+    shared_operating: list[Operating] = []
     for p in tree.order:
         d: NodeDraft = tree.drafts[p]
         v = d.values
-        cable_kw = {k: v.get(k, defaults[k]) for k in CABLE_KEYS}
-        key = tuple(cable_kw.values())
+        if _CABLE_KEY_SET.isdisjoint(v):
+            key = default_cable_key
+            cable_kw = None
+        else:
+            cable_kw = {k: v.get(k, defaults[k]) for k in CABLE_KEYS}
+            key = tuple(cable_kw.values())
         cable = settings_cache.get(key)
         if cable is None:
+            if cable_kw is None:
+                cable_kw = dict(zip(CABLE_KEYS, key, strict=True))
             cable = CableSettings(
                 materials=cable_kw["materials"], insulation_c=cable_kw["insulation"],
                 terminals_c=cable_kw["terminals"], ambient_c=cable_kw["ambient"],
@@ -711,8 +730,7 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 phase=v.get("phase"), triplen=v.get("triplen", 0.0),
                 spare=v.get("spare", 0.0),
                 neutral_size=v.get("neutral_size", defaults["neutral_size"]),
-                operating=Operating(**{
-                    name: v.get(key, defaults.get(key)) for key, name in _OPERATING_KEYS}),
+                operating=_operating(v, defaults, shared_operating),
                 route=v.get("route", ""), load_terminal_max=v.get("load_terminal_max", ""),
                 device=v.get("device", defaults["device"]),
                 trip_multiple=v.get("trip_multiple", defaults["trip_multiple"]),
@@ -729,6 +747,23 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
 # Node keys of how the load runs (sizer.operating) → Operating attributes.
 _OPERATING_KEYS = tuple((f.name, f.attr) for f in fields.in_table("node")
                         if f.attr in {x.name for x in dataclasses.fields(Operating)})
+_OPERATING_KEY_SET = frozenset(key for key, _name in _OPERATING_KEYS)
+_CABLE_KEY_SET = frozenset(CABLE_KEYS)
+
+
+def _operating(values: Mapping[str, Any], defaults: Mapping[str, Any],
+               shared: list[Operating]) -> Operating:
+    """How a node's load runs; one shared object for the nodes that give none of it.
+
+    The shared one is kept only once built, so bad defaults are reported on every node
+    as before.
+    """
+    if not _OPERATING_KEY_SET.isdisjoint(values):
+        return Operating(**{name: values.get(key, defaults.get(key))
+                            for key, name in _OPERATING_KEYS})
+    if not shared:
+        shared.append(Operating(**{name: defaults.get(key) for key, name in _OPERATING_KEYS}))
+    return shared[0]
 
 
 # --- writing a schedule -----------------------------------------------------------------------

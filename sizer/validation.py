@@ -95,14 +95,22 @@ class Suggester:
     MAX_VISITED = 4000
 
     def __init__(self, known: Iterable[str]) -> None:
-        self.by_lower = {k.lower(): k for k in known}
-        self.words = list(self.by_lower)
+        self.known = known
+        self._words: list[str] | None = None
         self.index: dict[str, list[int]] | None = None
-        if len(self.words) > self.SMALL:
-            self.index = {}
-            for i, w in enumerate(self.words):
-                for g in _trigrams(w):
-                    self.index.setdefault(g, []).append(i)
+
+    @property
+    def words(self) -> list[str]:
+        """The known words in lower case, indexed on first use (a clean tree never pays)."""
+        if self._words is None:
+            self.by_lower = {k.lower(): k for k in self.known}
+            self._words = list(self.by_lower)
+            if len(self._words) > self.SMALL:
+                self.index = {}
+                for i, w in enumerate(self._words):
+                    for g in _trigrams(w):
+                        self.index.setdefault(g, []).append(i)
+        return self._words
 
     def hint(self, word: str) -> str:
         """`` (did you mean 'x'?)`` or an empty string."""
@@ -320,16 +328,17 @@ def is_line_to_neutral(bus: Bus, phases: int, voltage_v: float) -> bool:
 
 def voltage_problem(bus: Bus, phases: int, voltage_v: float) -> tuple[str, str] | None:
     """(field, message) when a circuit of ``phases`` at ``voltage_v`` cannot hang on ``bus``."""
-    where = f"the {_v(bus.voltage_v)} {bus.phases}-phase bus of '{bus.owner}'"
     if phases == 3:
+        if bus.phases == 3 and close(voltage_v, bus.voltage_v):
+            return None
+        where = _where(bus)
         if bus.phases != 3:
             return "phases", f"a 3-phase circuit cannot be fed from {where}"
-        if not close(voltage_v, bus.voltage_v):
-            return "voltage", (f"a 3-phase circuit on {where} must be {_v(bus.voltage_v)}, "
-                               f"got {_v(voltage_v)}")
-        return None
+        return "voltage", (f"a 3-phase circuit on {where} must be {_v(bus.voltage_v)}, "
+                           f"got {_v(voltage_v)}")
     if close(voltage_v, bus.voltage_v) or is_line_to_neutral(bus, phases, voltage_v):
         return None
+    where = _where(bus)
     allowed = _v(bus.voltage_v) + (" (line to line)" if bus.phases == 3 else "")
     if bus.neutral_v is not None:
         allowed += f" or {_v(bus.neutral_v)} (line to neutral)"
@@ -347,6 +356,10 @@ def node_bus(parent_bus: Bus, node_id: str, phases: int, voltage_v: float,
         return Bus(voltage_v, 1, None, node_id)
     # 1-phase between two lines: the neutral goes along if the parent bus has one.
     return Bus(voltage_v, 1, parent_bus.neutral_v, node_id)
+
+
+def _where(bus: Bus) -> str:
+    return f"the {_v(bus.voltage_v)} {bus.phases}-phase bus of '{bus.owner}'"
 
 
 def _v(volts: float) -> str:

@@ -146,3 +146,17 @@ def test_cost_breakdown_bars():
     assert [t.get_text() for t in ax.get_yticklabels()] == ["A", "B<&>", "other 3 runs"]
     assert ax.get_xlabel() == "Cost (USD)" and ax.get_ylabel()
     assert_renders(fig)
+
+
+def test_voltage_profile_of_a_riser_thousands_of_runs_long_names_a_dozen():
+    # A 20,000-run chain: one annotation per node would be 20,000 text artists.
+    points = [tb.ProfilePoint("SRC", 0.0, 0.0, 0.0)] + [
+        tb.ProfilePoint(f"F{i}", 3.0 * i, 0.0002 * i, 0.0002 * i) for i in range(1, 20001)]
+    fig = plots.voltage_profile_figure(tb.VoltageProfile("F20000", tuple(points), True),
+                                       3.0, 5.0)
+    ax = axes_of(fig)
+    names = [t.get_text() for t in ax.texts]
+    assert len(names) <= plots.MAX_PROFILE_LABELS
+    assert names[0] == "SRC" and names[-1] == "F20000"   # the source and the worst load
+    assert all(li.get_marker() in ("", "None", None) for li in ax.get_lines()[:2])
+    assert len(ax.get_lines()[0].get_xdata()) == len(points)   # the whole path is drawn

@@ -104,13 +104,20 @@ def _h(value: float | None) -> int | None:
 def explorer_data(points: Sequence[DesignPoint], shown: int, reference: int,
                   code_minimum: int | None, limits: Sequence[RunLimits], *,
                   currency: str, cost_per_w_year: float, kwh_per_w_year: float,
-                  years: float, drop_limit_pct: float) -> dict:
+                  years: float, drop_limit_pct: float, per_run: bool = True) -> dict:
     """The page's data: each run's short list of conductors and each design's picks.
 
     ``shown`` is the design the page shows without script, ``reference`` the lifecycle
     optimum the differences are measured from, ``code_minimum`` the base of upsizing
     and payback. Drops and fault levels are stored in hundredths (% and kA).
+
+    Without ``per_run`` (a large tree's light page) each design carries its totals and
+    the number of runs that differ from the reference only: no ``runs``, no picks.
     """
+    if not per_run:
+        return _totals_only(points, shown, reference, code_minimum, currency=currency,
+                            cost_per_w_year=cost_per_w_year, kwh_per_w_year=kwh_per_w_year,
+                            years=years, drop_limit_pct=drop_limit_pct)
     first = points[shown].design
     alts: list[list[tuple]] = [[] for _ in first.segments]
     keys: list[dict[tuple, int]] = [{} for _ in first.segments]
@@ -163,6 +170,40 @@ def explorer_data(points: Sequence[DesignPoint], shown: int, reference: int,
                  for i, s in enumerate(first.segments)],
         "points": out_points,
     }
+
+
+def _point_totals(p: DesignPoint) -> dict:
+    """A design's totals and key figures as the page's script reads them."""
+    d = p.design
+    worst_lf = [s.loadflow_drop_pct for s in d.segments if s.loadflow_drop_pct is not None]
+    return {
+        "label": p.label, "method": p.method,
+        "capex": round(d.totals.capex, 2), "losspv": round(d.totals.loss_pv, 2),
+        "lossw": round(1e3 * sum(s.loss_kw for s in d.segments), 3),
+        "kwh": round(d.totals.loss_kwh_per_year, 1),
+        # First-year loss cost, each run at its own T and peak coincidence.
+        "losscost": round(sum(s.loss_cost_per_year for s in d.segments), 2),
+        "findings": p.findings,
+        "worst": round(max(worst_lf), 4) if len(worst_lf) == len(d.segments) and worst_lf
+        else round(d.worst_path_drop_pct(), 4),
+        "basis": drop_basis(d),
+    }
+
+
+def _totals_only(points: Sequence[DesignPoint], shown: int, reference: int,
+                 code_minimum: int | None, *, currency: str, cost_per_w_year: float,
+                 kwh_per_w_year: float, years: float, drop_limit_pct: float) -> dict:
+    """The light page's data: per design its totals and how many runs differ."""
+    ref = [(s.material, s.size, s.sets) for s in points[reference].design.segments]
+    out_points = []
+    for p in points:
+        entry = _point_totals(p)
+        entry["changed"] = sum(1 for s, r in zip(p.design.segments, ref, strict=True)
+                               if (s.material, s.size, s.sets) != r)
+        out_points.append(entry)
+    return {"currency": currency, "years": years, "costPerW": cost_per_w_year,
+            "kwhPerW": kwh_per_w_year, "dropLimit": drop_limit_pct, "shown": shown,
+            "reference": reference, "codeMinimum": code_minimum, "points": out_points}
 
 
 def data_script(data: dict) -> str:

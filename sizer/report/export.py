@@ -16,10 +16,11 @@ import math
 import zipfile
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import asdict, fields, is_dataclass
+from operator import attrgetter
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from sizer.model import Design, SegmentResult
+from sizer.model import Design, SegmentResult, Violation
 from sizer.outputs import Protected, write_file
 
 if TYPE_CHECKING:
@@ -28,6 +29,10 @@ if TYPE_CHECKING:
 DECIMALS = 6
 # A leading character a spreadsheet would read as a formula.
 _FORMULA_LEAD = ("=", "+", "-", "@", "\t", "\r")
+
+
+class CleanRows(list):
+    """A list of records already JSON-safe (see :func:`clean_records`): not walked again."""
 
 
 def clean(value: Any) -> Any:
@@ -39,6 +44,8 @@ def clean(value: Any) -> Any:
         rounded = round(value, DECIMALS)
         return 0.0 if rounded == 0 else rounded
     if kind is str or kind is int or kind is bool or value is None:
+        return value
+    if kind is CleanRows:
         return value
     if isinstance(value, Mapping):
         return {str(k): clean(v) for k, v in value.items()}
@@ -53,7 +60,84 @@ def clean(value: Any) -> Any:
     return value
 
 
+_NONE_TYPE = type(None)
+
+
+def clean_column(values: Sequence[Any]) -> list[Any]:
+    """``[clean(v) for v in values]``, in one pass per column when its type allows.
+
+    A column of plain floats (and None) is rounded in one comprehension; one of text,
+    whole numbers and booleans is already clean; any other goes value by value.
+    """
+    kinds = set(map(type, values))
+    if kinds == {float}:
+        return round_floats(values)
+    if kinds == {float, _NONE_TYPE}:
+        given = [i for i, v in enumerate(values) if v is not None]
+        out: list[Any] = [None] * len(values)
+        for i, x in zip(given, round_floats([values[i] for i in given]), strict=True):
+            out[i] = x
+        return out
+    if kinds <= {str, int, bool, _NONE_TYPE}:
+        return list(values)
+    return [clean(v) for v in values]
+
+
+# round_floats takes numpy's rounding only where it provably equals Python's round():
+# |x| below this (so x * 10^DECIMALS is exact to within 2^-13 ...)
+_NUMPY_ROUND_BELOW = 1e6
+# ... and x * 10^DECIMALS at least this far from a half (so both round the same way).
+_HALF_MARGIN = 1e-3
+
+
+def round_floats(values: Sequence[float]) -> list[float | None]:
+    """``[clean(v) for v in values]`` for plain floats, vectorised: equal value for value.
+
+    ``round(x, 6)`` is the double nearest to k / 10^6, k the integer nearest to the exact
+    x · 10^6; numpy's ``rint(x * 1e6) / 1e6`` is the same double whenever it finds the
+    same k (k below 2^53, so the division is correctly rounded). It does when x · 10^6 is
+    far from a half-way point compared with the product's rounding error; the few other
+    values (and NaN, ±inf) go through ``clean`` one by one.
+    """
+    import numpy as np
+
+    x = np.asarray(values, dtype=float)
+    scale = 10.0 ** DECIMALS
+    with np.errstate(invalid="ignore", over="ignore"):
+        y = x * scale
+        out = np.rint(y) / scale
+        safe = (np.abs(x) < _NUMPY_ROUND_BELOW) & (np.abs(y - np.floor(y) - 0.5) > _HALF_MARGIN)
+    out[out == 0] = 0.0   # no -0.0, as clean writes it
+    result: list[float | None] = out.tolist()
+    for i in np.flatnonzero(~safe).tolist():
+        result[i] = clean(float(values[i]))
+    return result
+
+
+def clean_records(records: Sequence[Any], names: Sequence[str],
+                  omit_none: frozenset[str] = frozenset()) -> CleanRows:
+    """Objects as JSON-safe dicts of the attributes ``names``, built column by column.
+
+    Equal to ``[clean({k: getattr(r, k) for k in names}) for r in records]`` with the
+    keys in ``omit_none`` left out of a record where they are None; the result is marked
+    clean, so writing it walks no value again.
+    """
+    # Keys inserted sorted: the writer's sort (sort_keys) then finds them in order.
+    names = sorted(names)
+    if not records:
+        return CleanRows()
+    get = attrgetter(*names) if len(names) > 1 else (lambda r: (getattr(r, names[0]),))
+    columns = [clean_column(c) for c in zip(*map(get, records), strict=True)]
+    rows = CleanRows(dict(zip(names, values, strict=True)) for values in zip(*columns, strict=True))
+    for k in omit_none:
+        for row in rows:
+            if row[k] is None:
+                del row[k]
+    return rows
+
+
 _SEGMENT_FIELDS = tuple(f.name for f in fields(SegmentResult))
+_VIOLATION_FIELDS = tuple(f.name for f in fields(Violation))
 # Keys written only on the runs they describe: ``phase`` on single-phase runs of a
 # three-phase system, ``phase_currents_a`` and ``neutral_a`` on three-phase runs,
 # ``neutral_size`` on three-phase runs with a neutral.
@@ -76,15 +160,15 @@ def design_document(design: Design, extra: Mapping[str, Any] | None = None) -> d
             "lifecycle": design.totals.lifecycle,
             "loss_kwh_per_year": design.totals.loss_kwh_per_year,
         },
-        "segments": [{k: getattr(s, k) for k in _SEGMENT_FIELDS
-                      if k not in _ONLY_WHERE_SET or getattr(s, k) is not None}
-                     for s in design.segments],
+        # Built column by column and marked clean: tens of thousands of runs are
+        # rounded in a few comprehensions, not walked value by value.
+        "segments": clean_records(design.segments, _SEGMENT_FIELDS, _ONLY_WHERE_SET),
     }
     if design.diagnosis:
         doc["diagnosis"] = list(design.diagnosis)
     # Rules the design breaks: for check, every rule; for solve, what verification found
     # (short-circuit withstand, motor-start dip) beyond the rules the optimiser enforced.
-    doc["violations"] = [asdict(v) for v in design.violations]
+    doc["violations"] = clean_records(design.violations, _VIOLATION_FIELDS)
     if design.notes:
         doc["notes"] = list(design.notes)
     if extra:
@@ -99,11 +183,10 @@ def json_text(doc: Any) -> str:
     on its own line, so large results stay readable and diffable and use the fast encoder.
     """
     data = clean(doc)
+    # One encoder for every piece (json.dumps with options makes a new one per call).
+    one = json.JSONEncoder(sort_keys=True, ensure_ascii=False).encode
     if not isinstance(data, dict):
-        return json.dumps(data, sort_keys=True, ensure_ascii=False) + "\n"
-
-    def one(value: Any) -> str:
-        return json.dumps(value, sort_keys=True, ensure_ascii=False)
+        return one(data) + "\n"
 
     lines = []
     for key in sorted(data):
@@ -158,11 +241,35 @@ def schedule_frame(design: Design) -> pd.DataFrame:
 
 
 def schedule_csv(design: Design) -> str:
-    """The per-segment schedule as CSV text, written from :func:`schedule_frame`."""
-    frame = schedule_frame(design)
-    # Back to Python values, so every cell is formatted as csv_text formats it.
-    rows = (list(row) for row in frame.astype(object).itertuples(index=False, name=None))
-    return csv_text(SCHEDULE_COLUMNS, rows)
+    """The per-segment schedule as CSV text: the columns of :func:`schedule_frame`.
+
+    Written column by column straight from the design (the same cells as writing the
+    frame through :func:`csv_text`, without building it or importing pandas).
+    """
+    records = list(map(attrgetter(*SCHEDULE_COLUMNS), design.segments))
+    columns = [_csv_column(c) for c in zip(*records, strict=True)] if records else []
+    buf = io.StringIO()
+    writer = csv.writer(buf, lineterminator="\n")
+    writer.writerow(SCHEDULE_COLUMNS)
+    writer.writerows(zip(*columns, strict=True))
+    return buf.getvalue()
+
+
+def _csv_column(values: Sequence[Any]) -> list[Any]:
+    """The cells of one schedule column, as :func:`csv_text` writes them."""
+    kinds = set(map(type, values))
+    # x - x == 0 only for finite x (as math.isfinite, without a call per cell).
+    if kinds <= {float}:
+        return [f"{v:.{DECIMALS}g}" if v - v == 0 else "" for v in values]
+    if kinds <= {float, _NONE_TYPE}:
+        return ["" if v is None else f"{v:.{DECIMALS}g}" if v - v == 0 else ""
+                for v in values]
+    if kinds <= {int, bool}:
+        return list(values)
+    if kinds <= {str, _NONE_TYPE}:
+        return ["" if v is None else "'" + v if v.startswith(_FORMULA_LEAD) else v
+                for v in values]
+    return [safe_cell(v) if isinstance(v, str) else _fmt(v) for v in values]
 
 
 def atomic_write(path: str | Path, data: str | bytes, *,

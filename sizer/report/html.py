@@ -27,11 +27,19 @@ from sizer.report import explore as ex
 from sizer.report import plots
 from sizer.report import tables as tb
 from sizer.report.export import atomic_write
-from sizer.report.tree import node_kind, tree_html
+from sizer.report.tree import LARGE_TREE_RUNS, node_kind, tree_html
 from sizer.results import Results
 from sizer.rules.profile import RuleProfile
 from sizer.units import M_PER_FT
 from sizer.workflow import DisconnectionDriver, FrontierPoint, Option, Progress, Verification, quiet
+
+# A tree with more runs than this gets a light page: the schedule summed by panel (the
+# CSV and JSON files hold every run), the longest lists cut to LIST_LIMIT lines, and the
+# trade-off explorer switching the key figures only (no per-run data).
+SUMMARY_OVER = LARGE_TREE_RUNS
+LIST_LIMIT = 50
+# Stands in the page for its own size until the page is whole.
+_SIZE_MARK = "\x00page-size\x00"
 
 # --- small HTML helpers ------------------------------------------------------------------
 
@@ -140,11 +148,16 @@ def render_report(results: Results, *, progress: Progress = quiet,
                         .read_text(encoding="utf-8"))
     style = resources.files("sizer.report").joinpath("report.css").read_text(encoding="utf-8")
     script = resources.files("sizer.report").joinpath("report.js").read_text(encoding="utf-8")
-    return template.substitute(
+    text = template.substitute(
         version=esc(__version__),
         title=esc(f"Conductor sizing report — {prep.scenario.title}"),
         style=style, body=body,
         script=f"<script>\n{script}</script>" if page.explorer else "")
+    if _SIZE_MARK in text:   # a summarised page says how large it is
+        size = len(text.encode("utf-8"))
+        text = text.replace(_SIZE_MARK, f"{size / 1e6:.1f} MB" if size >= 1e5
+                            else f"{size / 1e3:.0f} kB")
+    return text
 
 
 class _Page:
@@ -177,12 +190,14 @@ class _Page:
         self.kinds = self._kinds()
         self.descriptions = [g.node.description for g in prep.segments]
         self.drivers = tuple(drivers)
+        self.summary = len(prep.segments) > SUMMARY_OVER
         self._explorer_points(list(point_designs), points)
 
     def _limits(self) -> list[ex.RunLimits]:
         p = self.prep.profile
-        return [ex.RunLimits(p.drop_limit_pct(g.kind),
-                             float(self.prep.leaf_limit_pct[i]) if g.is_leaf else math.inf)
+        own = {kind: p.drop_limit_pct(kind) for kind in {g.kind for g in self.prep.segments}}
+        leaf = [float(x) for x in self.prep.leaf_limit_pct]   # one conversion, not one per run
+        return [ex.RunLimits(own[g.kind], leaf[i] if g.is_leaf else math.inf)
                 for i, g in enumerate(self.prep.segments)]
 
     def _kinds(self) -> list[str]:
@@ -242,7 +257,8 @@ class _Page:
             self.xpoints, self.shown, self.reference, self.code_min_index, self.limits,
             currency=self.cur, cost_per_w_year=float(e.annual_cost_per_w),
             kwh_per_w_year=float(e.annual_loss_kwh(1.0)), years=float(e.years),
-            drop_limit_pct=float(self.prep.profile.drop_total_pct))
+            drop_limit_pct=float(self.prep.profile.drop_total_pct),
+            per_run=not self.summary)
 
     # -- page -------------------------------------------------------------------------------
 
@@ -371,9 +387,12 @@ class _Page:
                 f'<div class="explore-side">{controls}'
                 '<p id="explore-diff" class="diff">This page shows '
                 f"{esc(pts[self.shown].label)}. Click a point on the chart or move the "
-                "slider to show another design in the key figures, the tree and the "
-                "schedule (needs JavaScript).</p>"
-                f"<details><summary>The {n} designs</summary>{listing}</details>"
+                + ("slider to show another design in the key figures (needs JavaScript; "
+                   "on a tree this large the tree and the schedule summary stay on the "
+                   "design the page was written for).</p>" if self.summary else
+                   "slider to show another design in the key figures, the tree and the "
+                   "schedule (needs JavaScript).</p>")
+                + f"<details><summary>The {n} designs</summary>{listing}</details>"
                 "</div></div></section>")
 
     def tree_section(self) -> str:
@@ -575,16 +594,20 @@ class _Page:
                        "below.</p>")
         headers = ["Run", "Code minimum", "Lifecycle", f"Added {cur}", "kWh saved/yr",
                    f"{cur} saved/yr", "Simple payback years", f"NPV {cur}"]
+        listed = self.justify[:LIST_LIMIT] if self.summary else self.justify
         rows: list[list[object]] = [[r.segment, r.code_minimum, r.lifecycle, num(r.added_cost),
                  num(r.kwh_saved_per_year), num(r.money_saved_per_year),
                  num(r.payback_years, 1) if math.isfinite(r.payback_years) else "never",
-                 num(r.npv)] for r in self.justify]
+                 num(r.npv)] for r in listed]
         added = sum(r.added_cost for r in self.justify)
         value = sum(r.npv for r in self.justify)
         rows.append([Cell("all upsized runs", "total"), "", "", num(added),
                      num(sum(r.kwh_saved_per_year for r in self.justify)),
                      num(sum(r.money_saved_per_year for r in self.justify)), "", num(value)])
         out.append(table(headers, rows, numeric=[False] * 3 + [True] * 5))
+        if len(listed) < len(self.justify):
+            out.append(f'<p class="note">The {len(listed)} upsized runs of highest NPV are '
+                       f"listed, of {len(self.justify):,}; the total row counts them all.</p>")
         out.append(f'<p class="note">Sorted by NPV. Savings are first-year figures (energy at '
                    f"{1e3 * self.econ.energy_price_per_wh:g} {cur}/kWh plus demand charge); "
                    f"payback is simple (added cost / first-year saving); NPV is over "
@@ -607,12 +630,13 @@ class _Page:
         """Each three-phase panel's phase balance: currents per phase, neutral, bars."""
         segs = self.prep.segments
         ph = self.prep.phases
-        panels = []
-        for i, seg in enumerate(segs):
-            kids = [k for k, g in enumerate(segs) if g.parent_index == i
-                    and ph.phase[k] is not None]
-            if seg.phases == 3 and kids:
-                panels.append((i, kids))
+        # Each run's single-phase circuits, in one pass (a scan per panel is quadratic).
+        phased: dict[int, list[int]] = {}
+        for k, g in enumerate(segs):
+            if ph.phase[k] is not None and g.parent_index >= 0:
+                phased.setdefault(int(g.parent_index), []).append(k)
+        panels = [(i, phased[i]) for i, seg in enumerate(segs)
+                  if seg.phases == 3 and i in phased]
         if not panels:
             return ""
         rows = []
@@ -647,10 +671,13 @@ class _Page:
                   if text]
         if not limits:
             return ""
+        shown = limits[:LIST_LIMIT] if self.summary else limits
+        more = (f"<p class=\"note\">… and {len(limits) - len(shown):,} more.</p>"
+                if len(shown) < len(limits) else "")
         return ("<p>Runs that could not be upsized further because of a terminal or raceway "
                 "limit:</p><ul class=\"limits\">"
-                + "".join(f"<li>{esc(sid)}: {esc(text)}</li>" for sid, text in limits)
-                + "</ul>")
+                + "".join(f"<li>{esc(sid)}: {esc(text)}</li>" for sid, text in shown)
+                + "</ul>" + more)
 
     def schedule_section(self) -> str:
         """The cable schedule of the design: one row per run, narrow enough for a page.
@@ -662,6 +689,10 @@ class _Page:
         out = ['<section id="schedule"><h2>Cable schedule</h2>']
         if not d.segments:
             out.append("<p>No design.</p></section>")
+            return "".join(out)
+        if self.summary:
+            out.append(self.schedule_summary())
+            out.append("</section>")
             return "".join(out)
         p = self.prep.profile
         descriptions = {n.id: n.description for n in self.scenario.nodes}
@@ -746,6 +777,46 @@ class _Page:
                                  for x in self.drivers) + "</ul>")
         out.append("</section>")
         return "".join(out)
+
+    def schedule_summary(self) -> str:
+        """A large tree's schedule: one row per panel or board, the runs it feeds summed."""
+        d = self.design
+        p = self.prep.profile
+        cur = self.cur
+        path_limits = [p.drop_total_pct if g.is_leaf else math.inf for g in self.prep.segments]
+        rows = tb.panel_summary(d, p.drop_limit_pct, path_limits)
+        t = d.totals
+        body = table(
+            ["Panel or board", "Runs fed", "Conductors", f"Upfront {cur}", f"Loss PV {cur}",
+             "Worst path drop %", "at run", "Runs over a drop limit", "Findings"],
+            [[r.panel, f"{r.runs:,}", r.conductors, num(r.capex), num(r.loss_pv),
+              num(r.worst_drop_pct, 2), r.worst_run,
+              Cell(f"{r.over_limit:,}", "over") if r.over_limit else "0",
+              Cell(f"{r.findings:,}", "over") if r.findings else "0"] for r in rows],
+            numeric=[False, True, False, True, True, True, False, True, True],
+            css="schedule-summary")
+        drivers = ""
+        if self.drivers:
+            listed = self.drivers[:LIST_LIMIT]
+            drivers = ("<h3>Sized by disconnection, not by drop</h3><ul>"
+                       + "".join(f"<li>{esc(tb.disconnection_sentence(x))}</li>"
+                                 for x in listed) + "</ul>"
+                       + (f'<p class="note">… and {len(self.drivers) - len(listed):,} more '
+                          "(the schedule's earth-fault and trip columns show them all).</p>"
+                          if len(listed) < len(self.drivers) else ""))
+        return (f'<p class="note" id="schedule-summary-note">This tree has '
+                f"{len(d.segments):,} runs, so the schedule is summed by the panel or board "
+                f"that feeds them: {len(rows):,} rows, one per panel. The full cable schedule, "
+                "one row per run with its conductor, EGC, raceway, drops and fault levels, is "
+                "in the CSV file (sizer solve … --csv schedule.csv) and the JSON "
+                f"results; this page stays light ({_SIZE_MARK}) so that a browser opens it "
+                "quickly. Drops are the AC load flow's where it ran, else the linear "
+                "estimate, in % of each circuit's nominal voltage.</p>"
+                + body
+                + f'<p class="note" id="schedule-totals">Totals: upfront {tb.money(t.capex)} '
+                  f"{cur}, loss PV {tb.money(t.loss_pv)} {cur}, "
+                  f"{tb.money(t.loss_kwh_per_year)} kWh lost in the first year.</p>"
+                + drivers)
 
     def figures_section(self) -> str:
         """Frontier, voltage profile, cost breakdown."""

@@ -139,6 +139,10 @@ def frontier_figure(points: Sequence[FrontierRow], options: Sequence[OptionRow],
     return fig
 
 
+MAX_PROFILE_LABELS = 12     # node names along the worst path's profile
+MAX_PROFILE_MARKERS = 200   # more nodes than this: lines without markers
+
+
 def voltage_profile_figure(profile: VoltageProfile, run_limit_pct: float,
                            total_limit_pct: float) -> Figure:
     """Drop against distance along the worst path, estimate and load flow, limits drawn.
@@ -149,19 +153,25 @@ def voltage_profile_figure(profile: VoltageProfile, run_limit_pct: float,
     ax = fig.add_subplot()
     _style(ax, f"Voltage drop along the path to {plain(profile.load)}")
     x = [p.distance_m for p in profile.points]
-    ax.plot(x, [p.drop_pct for p in profile.points], color=TEAL, linestyle="-", marker="o",
-            markersize=5, label="estimate (R cos φ + X sin φ)")
+    # A path of thousands of runs (a riser) is drawn as lines, its nodes marked and named
+    # only when there are few of them: at most MAX_PROFILE_LABELS names, spread along it.
+    few = len(profile.points) <= MAX_PROFILE_MARKERS
+    ax.plot(x, [p.drop_pct for p in profile.points], color=TEAL, linestyle="-",
+            marker="o" if few else "", markersize=5, label="estimate (R cos φ + X sin φ)")
     if profile.points and all(p.loadflow_drop_pct is not None for p in profile.points):
         lf = [p.loadflow_drop_pct if p.loadflow_drop_pct is not None else math.nan
               for p in profile.points]
         ax.plot(x, lf, color=BRICK,
-                linestyle=(0, (5, 2)), marker="s", markersize=5, fillstyle="none",
-                label="AC load flow")
+                linestyle=(0, (5, 2)), marker="s" if few else "", markersize=5,
+                fillstyle="none", label="AC load flow")
     ax.axhline(total_limit_pct, color=INK, linestyle="-", linewidth=1.6,
                label=f"{total_limit_pct:g} % total limit, source to load")
     ax.axhline(run_limit_pct, color=OCHRE, linestyle=(0, (1, 2)), linewidth=1.8,
                label=f"{run_limit_pct:g} % limit of each feeder or branch run (own drop)")
-    for p in profile.points:
+    n = len(profile.points)
+    step = max(1, math.ceil((n - 1) / (MAX_PROFILE_LABELS - 1))) if n > MAX_PROFILE_LABELS else 1
+    named = set(range(0, n, step)) | ({n - 1} if n else set())
+    for p in (profile.points[i] for i in sorted(named)):
         # Slanted labels above the points keep close neighbours legible.
         ax.annotate(plain(p.node), (p.distance_m, p.drop_pct), textcoords="offset points",
                     xytext=(2, 7), fontsize=7.5, color=INK, rotation=35)

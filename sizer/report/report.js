@@ -53,7 +53,12 @@
     return document.createTextNode(text);
   }
 
+  // A large tree's light page carries no per-run data: its tree and schedule summary
+  // stay on the design the page was written for; the key figures still switch.
+  var perRun = !!data.runs;
+
   function schedule(p) {
+    if (!perRun) { return; }
     all("#schedule-table tbody tr").forEach(function (tr) {
       var i = Number(tr.getAttribute("data-i"));
       var run = data.runs[i];
@@ -98,6 +103,7 @@
   }
 
   function tree(p) {
+    if (!perRun) { return; }
     var up = {}, bind = {};
     p.up.forEach(function (i) { up[i] = true; });
     p.bind.forEach(function (i) { bind[i] = true; });
@@ -139,7 +145,9 @@
       words = "Showing " + p.label + ": this is the lifecycle optimum, the design the rest of the report describes.";
     } else {
       var changed = 0;
-      p.pick.forEach(function (k, i) { if (k !== ref.pick[i]) { changed += 1; } });
+      if (perRun) {
+        p.pick.forEach(function (k, i) { if (k !== ref.pick[i]) { changed += 1; } });
+      } else { changed = p.changed; }
       var added = p.capex - ref.capex;
       var saved = ref.losspv - p.losspv;
       var kwh = ref.kwh - p.kwh;
@@ -159,7 +167,7 @@
           " years (simple payback: added cost over the first year's saving)." : " Against the code minimum it never pays back.";
       }
     }
-    words += " Drops shown: " + p.basis + ".";
+    words += perRun ? " Drops shown: " + p.basis + "." : " Key figures of this design; the tree and the schedule summary show " + data.points[data.shown].label + ".";
     setText($("explore-diff"), words);
     var showing = $("showing");
     if (showing) {
@@ -275,10 +283,12 @@
     var c = $(id);
     if (c) { c.hidden = false; }
   });
-  all("#schedule-table tbody tr").forEach(function (tr) {
-    var i = Number(tr.getAttribute("data-i"));
-    tr.setAttribute("data-changed", data.points[current].pick[i] !== ref.pick[i] ? "1" : "0");
-  });
+  if (perRun) {
+    all("#schedule-table tbody tr").forEach(function (tr) {
+      var i = Number(tr.getAttribute("data-i"));
+      tr.setAttribute("data-changed", data.points[current].pick[i] !== ref.pick[i] ? "1" : "0");
+    });
+  }
   filter();
   window.sizerReport = {show: show, data: data, current: function () { return current; }};
 }());

@@ -12,7 +12,7 @@ segment's peak-loss saving ΔP (W) saves ΔP·(T·P + D) in the first year, grow
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 
 from sizer.economics import EconomicParams, npv, q_factor, simple_payback_years
@@ -331,6 +331,55 @@ def schedule_table(design: Design,
             pinned=s.pinned,
         )
         for s in design.segments)
+
+
+@dataclass(frozen=True)
+class PanelRow:
+    """The runs fed from one panel or board, summed: one row of a large tree's schedule."""
+
+    panel: str                    # the node (or the source) that feeds the runs
+    runs: int
+    conductors: str               # runs per material, e.g. "Cu 28, Al 5"
+    capex: float
+    loss_pv: float
+    worst_drop_pct: float         # path drop at the far end: load flow where run, else estimate
+    worst_run: str
+    over_limit: int               # runs with a drop over its limit
+    findings: int                 # findings on these runs (verification included)
+
+
+def panel_summary(design: Design, own_limit_pct: Callable[[str], float],
+                  path_limit_pct: Sequence[float]) -> tuple[PanelRow, ...]:
+    """The schedule summed by the panel each run hangs on, panels in the design's order.
+
+    ``own_limit_pct(kind)`` is a run's own drop limit; ``path_limit_pct[i]`` the limit of
+    run i's path drop (inf where none applies, e.g. a feeder). One pass over the runs.
+    """
+    findings: dict[str, int] = {}
+    for v in design.violations:
+        findings[v.segment] = findings.get(v.segment, 0) + 1
+    groups: dict[str, list[int]] = {}
+    for i, s in enumerate(design.segments):
+        groups.setdefault(s.parent, []).append(i)
+    rows = []
+    for panel, members in groups.items():
+        segs = [design.segments[i] for i in members]
+        materials: dict[str, int] = {}
+        for s in segs:
+            materials[s.material] = materials.get(s.material, 0) + 1
+        drops = [(s.loadflow_drop_pct if s.loadflow_drop_pct is not None else s.path_vd_pct,
+                  s.id) for s in segs]
+        worst, worst_run = max(drops)
+        over = sum(1 for i, s, (drop, _id) in zip(members, segs, drops, strict=True)
+                   if s.vd_pct > own_limit_pct(s.kind) + 1e-9
+                   or max(drop, s.path_vd_pct) > path_limit_pct[i] + 1e-9)
+        rows.append(PanelRow(
+            panel=panel, runs=len(segs),
+            conductors=", ".join(f"{m} {n}" for m, n in sorted(materials.items())),
+            capex=sum(s.capex for s in segs), loss_pv=sum(s.loss_pv for s in segs),
+            worst_drop_pct=worst, worst_run=worst_run, over_limit=over,
+            findings=sum(findings.get(s.id, 0) for s in segs)))
+    return tuple(rows)
 
 
 @dataclass(frozen=True)

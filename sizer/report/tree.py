@@ -15,8 +15,9 @@ page's script can relabel them; nothing here needs the script to be read.
 
 from __future__ import annotations
 
+import heapq
 import html
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 
 # Layout in SVG user units (px at 100 %).
@@ -27,6 +28,11 @@ ROW = 36              # one load (or group) per row
 MARGIN = 12
 GROUP_OVER = 8        # a panel with more leaf circuits than this shows them as one group
 MAX_ROWS = 60         # more rows than this: the largest panels close into detail pictures
+MAX_DEPTH = 12        # levels of one picture: deeper runs continue in a detail picture
+# A large tree's page draws at most this many boxes in its detail pictures, and no
+# picture of single leaf circuits (the schedule lists them); the overview is always whole.
+LARGE_TREE_RUNS = 2000
+DETAIL_BOX_BUDGET = 3000
 ID_CHARS = 17         # characters of a node id shown in its box (the full id in its title)
 
 # Drop within this many percentage points of its limit counts as binding (common practice
@@ -61,6 +67,7 @@ class _Item:
     rows: int = 1
     y: float = 0.0
     depth: int = 0
+    below: int = 0                             # node, closed: runs fed through it
 
 
 def node_kind(has_children: bool, fed_by_source: bool, transformer: bool) -> str:
@@ -99,79 +106,136 @@ class _Builder:
             self.kids[r.parent].append(r.index)
         self.details: list[tuple[str, str, _Item]] = []   # (anchor, title, root item)
         self._anchors = 0
+        # Runs fed through each run, summed children before parents (no recursion).
+        order = [-1]
+        for run in order:
+            order.extend(self.kids[run])
+        self.below = dict.fromkeys(order, 0)
+        for run in reversed(order[1:]):
+            self.below[self.runs[run].parent] += 1 + self.below[run]
 
     def anchor(self, prefix: str, run: int) -> str:
         self._anchors += 1
         return f"tree-{prefix}{self._anchors}-{run}"
 
-    def item(self, run: int, group: bool = True) -> _Item:
-        """The item of ``run`` with its children (leaf circuits grouped when many)."""
-        it = _Item("node", run=run)
-        leaves = [k for k in self.kids[run] if not self.kids[k]]
-        inner = [k for k in self.kids[run] if self.kids[k]]
-        if group and len(leaves) > GROUP_OVER:
-            g = _Item("group", run=run, members=leaves, anchor=self.anchor("g", run))
-            self.details.append((g.anchor, self._group_title(run, leaves), g))
-            it.children = [self.item(k) for k in inner] + [g]
-        else:
-            it.children = [self.item(k) for k in self.kids[run]]
-        return it
+    def item(self, run: int) -> _Item:
+        """The item of ``run`` with its children (leaf circuits grouped when many).
+
+        Built without recursion (a chain of 20,000 runs is 20,000 levels deep), visiting
+        runs in the order of a depth-first walk, so anchors and details come in tree
+        order. A run MAX_DEPTH levels (or a multiple) below ``run`` that feeds others is
+        closed: what is below it continues in a detail picture of its own.
+        """
+        root = _Item("node", run=run)
+        stack = [root]
+        while stack:
+            it = stack.pop()
+            kids = self.kids[it.run]
+            it.below = self.below[it.run]
+            if it.depth and it.depth % MAX_DEPTH == 0 and kids:
+                it.kind = "closed"
+                it.anchor = self.anchor("d", it.run)
+                self.details.append((it.anchor, f"{self.runs[it.run].id}: "
+                                     f"{it.below} runs below", it))
+            leaves = [k for k in kids if not self.kids[k]]
+            if len(leaves) > GROUP_OVER:
+                g = _Item("group", run=it.run, members=leaves, anchor=self.anchor("g", it.run),
+                          depth=it.depth + 1)
+                self.details.append((g.anchor, self._group_title(it.run, leaves), g))
+                inner = [_Item("node", run=k, depth=it.depth + 1) for k in kids if self.kids[k]]
+                it.children = [*inner, g]
+            else:
+                inner = it.children = [_Item("node", run=k, depth=it.depth + 1) for k in kids]
+            stack.extend(reversed(inner))   # the first child is visited next
+        return root
 
     def _group_title(self, run: int, leaves: list[int]) -> str:
         name = self.runs[run].id if run >= 0 else "the source"
         return f"{name}: {len(leaves)} circuits"
 
     def close_largest(self, root: _Item, max_rows: int) -> None:
-        """Close the largest panels (not the root's own children) until the rows fit."""
-        while _rows(root) > max_rows:
-            best: _Item | None = None
-            for it in _walk(root, into_closed=False):
-                if it is root or it.kind != "node" or not it.children:
-                    continue
-                if self.runs[it.run].parent == root.run:
-                    continue   # keep the first level open: it is the overview's spine
-                if best is None or it.rows > best.rows:
-                    best = it
-            if best is None or best.rows <= 1:
+        """Close the largest panels (not the root's own children) until the rows fit.
+
+        Greedy, largest first (the first in tree order among equals). One pass sets
+        every item's rows; a heap then gives each next panel to close. Closing a panel
+        only lowers the rows of the panels above it, and each of those has at least as
+        many rows and comes earlier, so it was closed first or is not a candidate: the
+        rows in the heap never go stale.
+        """
+        total = _rows(root)
+        if total <= max_rows:
+            return
+        order = list(_walk(root, into_closed=False))
+        position = {id(it): i for i, it in enumerate(order)}
+        above: dict[int, _Item | None] = {id(root): None}
+        for it in order:
+            if it.kind != "closed" or it is root:
+                for c in it.children:
+                    above[id(c)] = it
+        heap = [(-it.rows, position[id(it)], it) for it in order
+                if it is not root and it.kind == "node" and it.children
+                and self.runs[it.run].parent != root.run]   # the first level stays open
+        heapq.heapify(heap)
+        while total > max_rows and heap:
+            _neg, _pos, best = heapq.heappop(heap)
+            if best.rows <= 1:
                 return
+            up = above[id(best)]
+            hidden = False
+            while up is not None:   # inside a panel closed already: not drawn here
+                if up.kind == "closed" and up is not root:
+                    hidden = True
+                    break
+                up = above[id(up)]
+            if hidden:
+                continue
             best.kind = "closed"
             best.anchor = self.anchor("p", best.run)
             self.details.append((best.anchor, f"{self.runs[best.run].id}: "
-                                 f"{_count_runs(best)} runs below", best))
+                                 f"{best.below} runs below", best))
+            total -= best.rows - 1
+        _rows(root)
 
 
-def _walk(it: _Item, into_closed: bool = True):
-    yield it
-    if it.kind == "closed" and not into_closed:
-        return
-    for c in it.children:
-        yield from _walk(c, into_closed)
-
-
-def _count_runs(it: _Item) -> int:
-    return sum(len(c.members) if c.kind == "group" else 1 + _count_runs(c)
-               for c in it.children)
+def _walk(it: _Item, into_closed: bool = True) -> Iterator[_Item]:
+    """The item and every item below it, depth first (without recursion)."""
+    stack = [it]
+    while stack:
+        cur = stack.pop()
+        yield cur
+        if cur.kind == "closed" and not into_closed:
+            continue
+        stack.extend(reversed(cur.children))
 
 
 def _rows(it: _Item) -> int:
     """Rows the item takes when drawn (sets ``rows`` on every item below)."""
-    if it.kind in ("group", "closed") or not it.children:
-        it.rows = 1
-    else:
-        it.rows = sum(_rows(c) for c in it.children)
+    order = list(_walk(it, into_closed=False))
+    for cur in reversed(order):   # children before their parent
+        if cur.kind in ("group", "closed") or not cur.children:
+            cur.rows = 1
+        else:
+            cur.rows = sum(c.rows for c in cur.children)
     return it.rows
 
 
 def _place(it: _Item, depth: int, first_row: int) -> None:
-    it.depth = depth
-    if it.kind in ("group", "closed") or not it.children:
-        it.y = MARGIN + first_row * ROW + ROW / 2
-        return
-    row = first_row
-    for c in it.children:
-        _place(c, depth + 1, row)
-        row += c.rows
-    it.y = (it.children[0].y + it.children[-1].y) / 2
+    """Depth and vertical centre of every item drawn below ``it``."""
+    order: list[_Item] = []
+    stack = [(it, depth, first_row)]
+    while stack:
+        cur, d, row = stack.pop()
+        cur.depth = d
+        order.append(cur)
+        if cur.kind in ("group", "closed") or not cur.children:
+            cur.y = MARGIN + row * ROW + ROW / 2
+            continue
+        for c in cur.children:
+            stack.append((c, d + 1, row))
+            row += c.rows
+    for cur in reversed(order):   # a parent centred on its children, once they are placed
+        if not (cur.kind in ("group", "closed") or not cur.children):
+            cur.y = (cur.children[0].y + cur.children[-1].y) / 2
 
 
 class Drawing:
@@ -238,14 +302,17 @@ class Drawing:
         x, y = self.x(it), it.y - BOX_H / 2
         if it.kind == "group":
             name = f"{len(it.members)} circuits"
-            full = f"{name} (open the detail below)"
-            return (f'<a href="#{it.anchor}" class="open" data-open="{it.anchor}">'
-                    f"<title>{esc(full)}</title>"
+            full = f"{name} (open the detail below)" if it.anchor else (
+                f"{name} (listed in the schedule)")
+            link = (f'<a href="#{it.anchor}" class="open" data-open="{it.anchor}">'
+                    if it.anchor else "<g>")
+            return (f"{link}<title>{esc(full)}</title>"
                     f'<rect class="n group" x="{x + 6:.0f}" y="{y - 6:.0f}" width="{BOX_W}" '
                     f'height="{BOX_H}"/><rect class="n group" x="{x + 3:.0f}" y="{y - 3:.0f}" '
                     f'width="{BOX_W}" height="{BOX_H}"/><rect class="n group" x="{x:.0f}" '
                     f'y="{y:.0f}" width="{BOX_W}" height="{BOX_H}"/>'
-                    f'<text class="t" x="{x + 8:.0f}" y="{y + 16:.0f}">▸ {esc(name)}</text></a>')
+                    f'<text class="t" x="{x + 8:.0f}" y="{y + 16:.0f}">▸ {esc(name)}</text>'
+                    + ("</a>" if it.anchor else "</g>"))
         if it.run < 0:
             kind, name = "source", self.source_id
         else:
@@ -263,7 +330,8 @@ class Drawing:
                           f'<rect class="n {kind}" x="{x + 3:.0f}" y="{y - 3:.0f}" '
                           f'width="{BOX_W}" height="{BOX_H}"/>')
             shown = "▸ " + (shown if len(shown) <= ID_CHARS - 2 else shown[: ID_CHARS - 3] + "…")
-            title += f", {_count_runs(it)} runs below (open the detail below)"
+            title += (f", {it.below} runs below (open the detail below)" if it.anchor
+                      else f", {it.below} runs below (see the schedule)")
         rx = ' rx="11"' if kind == "load" else ""
         shapes.append(f'<rect class="n {kind}" x="{x:.0f}" y="{y:.0f}" width="{BOX_W}" '
                       f'height="{BOX_H}"{rx}/>')
@@ -273,7 +341,7 @@ class Drawing:
         text_cls = "t light" if kind == "source" else "t"
         body = (f"<title>{esc(title)}</title>{''.join(shapes)}"
                 f'<text class="{text_cls}" x="{x + 8:.0f}" y="{y + 16:.0f}">{esc(shown)}</text>')
-        if it.kind == "closed" and not is_root:
+        if it.kind == "closed" and not is_root and it.anchor:
             return f'<a href="#{it.anchor}" class="open" data-open="{it.anchor}">{body}</a>'
         return f"<g>{body}</g>"
 
@@ -321,31 +389,58 @@ def legend(drop_basis: str) -> str:
 
 def tree_html(source_id: str, runs: Sequence[RunView], *, drop_basis: str,
               max_rows: int = MAX_ROWS) -> str:
-    """The overview picture, its key and the detail pictures of groups and closed panels."""
+    """The overview picture, its key and the detail pictures of groups and closed panels.
+
+    A large tree (more than LARGE_TREE_RUNS runs) keeps the page light: the overview is
+    whole, but groups of leaf circuits get no picture of their own (the schedule lists
+    them) and the detail pictures of closed panels stop at DETAIL_BOX_BUDGET boxes;
+    a box whose picture is left out is drawn without a link.
+    """
     b = _Builder(runs)
     root = b.item(-1)   # the source: loads fed straight from it group like a panel's
     b.close_largest(root, max_rows)
-    draw = Drawing(runs, source_id)
-    n_loads = sum(1 for r in runs if r.node_kind == "load")
-    overview = draw.svg(root, f"Distribution tree: {len(runs)} runs, {n_loads} loads")
-    out = [legend(drop_basis), f'<div class="tree-box">{overview}</div>']
-    if b.details:
-        out.append('<p class="note">Boxes marked ▸ stand for several runs; their pictures '
-                   "follow (click a box to open its picture).</p>")
+    large = len(runs) > LARGE_TREE_RUNS
     # Details in tree order: groups and closed panels as they were found.
+    kept: list[tuple[str, str, _Item]] = []
     done: set[str] = set()
+    boxes = 0
+    left_out = 0
     for anchor, title, item in b.details:
         if anchor in done:
             continue
         done.add(anchor)
+        if large:
+            size = (len(item.members) if item.kind == "group"
+                    else sum(1 for _ in _walk(_opened(item), into_closed=False)))
+            if item.kind == "group" or boxes + size > DETAIL_BOX_BUDGET:
+                item.anchor = ""   # drawn without a link: its picture is left out
+                left_out += 1
+                continue
+            boxes += size
+        kept.append((anchor, title, item))
+    draw = Drawing(runs, source_id)
+    n_loads = sum(1 for r in runs if r.node_kind == "load")
+    overview = draw.svg(root, f"Distribution tree: {len(runs)} runs, {n_loads} loads")
+    out = [legend(drop_basis), f'<div class="tree-box">{overview}</div>']
+    if kept:
+        out.append('<p class="note">Boxes marked ▸ stand for several runs; their pictures '
+                   "follow (click a box to open its picture).</p>")
+    if left_out:
+        out.append(f'<p class="note">A tree of {len(runs):,} runs: {left_out:,} boxes marked '
+                   "▸ have no picture of their own, to keep this page light; the cable "
+                   "schedule (the CSV file) lists every run.</p>")
+    for anchor, title, item in kept:
         if item.kind == "group":
             parent = _Item("node", run=item.run,
                            children=[_Item("node", run=m) for m in item.members])
             pic = draw.svg(parent, title)
         else:
-            # The closed panel drawn open, as the root of its own picture.
-            opened = _Item("node", run=item.run, children=item.children)
-            pic = draw.svg(opened, title)
+            pic = draw.svg(_opened(item), title)
         out.append(f'<details class="tree-detail" id="{esc(anchor)}"><summary>{esc(title)}'
                    f'</summary><div class="tree-box">{pic}</div></details>')
     return "".join(out)
+
+
+def _opened(item: _Item) -> _Item:
+    """A closed panel drawn open, as the root of its own picture."""
+    return _Item("node", run=item.run, children=item.children, below=item.below)
