@@ -592,12 +592,14 @@ def build_candidates(
     if service.any() and profile.service_bonding:
         egc[service] = _by_material(mat[service], lambda m, mask: bonding_jumper_size_index(
             profile, MATERIALS[m], size[service][mask]), dtype=np.int64)
-    if profile.pe_rule == "adiabatic":
+    adiabatic = adiabatic_pe_runs(segments, profile)[seg] & ~service
+    if adiabatic.any():
         if pe_fault is None:
             raise ValueError("the adiabatic PE rule needs the earth-fault terms (pe_fault)")
-        pe = adiabatic_pe_size_index(profile, catalogue, prices, segments, sa, inst_names,
-                                     inst_code, seg, mat, size, sets, pe_fault)
-        egc = np.where(service, egc, pe)
+        rows = np.flatnonzero(adiabatic)
+        egc[rows] = adiabatic_pe_size_index(profile, catalogue, prices, segments, sa,
+                                            inst_names, inst_code, seg[rows], mat[rows],
+                                            size[rows], sets[rows], pe_fault)
     egc_ok = egc >= 0
     egc = np.where(egc_ok, egc, 0)
 
@@ -910,6 +912,15 @@ def take_rows(table: CandidateTable, keep: np.ndarray) -> CandidateTable:
     arrays = {f.name: getattr(table, f.name)[idx] for f in fields(table)
               if isinstance(getattr(table, f.name), np.ndarray) and f.name != "offsets"}
     return replace(table, offsets=offsets, **arrays)
+
+
+def adiabatic_pe_runs(segments: tuple[Segment, ...], profile: RuleProfile) -> np.ndarray:
+    """Per segment: its PE is sized by the adiabatic equation (IEC 60364-5-54 543.1.2).
+
+    The node's ``pe_rule`` (or ``[defaults]``) where given, else the profile's.
+    """
+    return np.array([(seg.node.pe_rule or profile.pe_rule) == "adiabatic"
+                     for seg in segments], dtype=bool)
 
 
 def loop_temperature_c(profile: RuleProfile, insulation_c: np.ndarray) -> np.ndarray:

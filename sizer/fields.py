@@ -341,6 +341,11 @@ FIELDS: tuple[Field, ...] = (
        default_text="none: not checked", bounds=f"{MIN_FAULT_A:g} A to "
        f"{MAX_CURRENT_A / 1e3:g} kA", attr="interrupting_a", also_defaults=True,
        example='"22 kA"'),
+    _F("node", "pe_rule", "how the protective conductor (PE) is sized: by the profile's "
+       "table (IEC 60364-5-54 Table 54.2) or by the adiabatic equation of 543.1.2 with the "
+       "run's earth-fault current and disconnection time (iec only)", r.auto(r.read_pe_rule),
+       default_text="auto: the profile's (iec: table)", bounds='table | adiabatic, or "auto"',
+       attr="pe_rule", also_defaults=True, example='"adiabatic"'),
     _F("node", "transformer", "the node is a transformer: a table of the keys below",
        attr="transformer", subtable=True, example='{ rating = "75 kVA", ... }'),
     _F("node", "motor", "the node's load is a motor: a table of the keys below",

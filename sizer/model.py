@@ -260,6 +260,7 @@ class Node:
     let_through_a2s: float | None = None  # device let-through I²t (None: I² × clearing time)
     withstand: str = "finding"          # finding | enforce
     interrupting_a: float | None = None  # device interrupting rating (None: not checked)
+    pe_rule: str | None = None          # table | adiabatic (None: the profile's)
     description: str = ""         # free text from the scenario, shown in reports
     operating: Operating = field(default_factory=Operating)  # how the load runs (losses)
     phase: str | None = None      # "A" | "B" | "C" | "AB" | "BC" | "CA"; None: assigned

@@ -20,6 +20,7 @@ from sizer.candidates import (
     MATERIALS,
     LocalDiagnosis,
     PeFaultTerms,
+    adiabatic_pe_runs,
     build_candidates,
     route_indices,
     take_rows,
@@ -182,7 +183,7 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
             neutral_a=phase_state.neutral_a,
             neutral_a2=neutral_current_squared(segments, phase_state),
             pe_fault=pe_fault_terms(segments, profile, earth, topology.parent)
-            if profile.pe_rule == "adiabatic" else None,
+            if adiabatic_pe_runs(segments, profile).any() else None,
             file=scenario.file,
         )
         limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)

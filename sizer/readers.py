@@ -380,6 +380,7 @@ def read_trip_multiple(value: Any, text: bool = False) -> float:
 
 INSULATION_TYPES = ("thermoplastic", "thermoset")
 WITHSTAND_WORDS = ("finding", "enforce")
+PE_RULE_WORDS = ("table", "adiabatic")
 _I2T_SCALE = {"a2s": 1.0, "ka2s": 1e6, "ma2s": 1e12}
 
 
@@ -398,6 +399,15 @@ def read_withstand(value: Any, text: bool = False) -> str:
     word = read_text(value).lower()
     if word not in WITHSTAND_WORDS:
         raise ScenarioError(f"must be \"finding\" or \"enforce\", got {show(value)}")
+    return word
+
+
+def read_pe_rule(value: Any, text: bool = False) -> str:
+    """How the protective conductor is sized: by the profile's table or adiabatically."""
+    word = read_text(value).lower()
+    if word not in PE_RULE_WORDS:
+        raise ScenarioError(f"must be \"table\" or \"adiabatic\" (or \"auto\"), got "
+                            f"{show(value)}")
     return word
 
 

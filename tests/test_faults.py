@@ -441,6 +441,75 @@ def _pe_of_rule(tmp_path, monkeypatch, rule: str) -> dict[str, str]:
             for s, seg in enumerate(prep.segments)}
 
 
+def _pe_by_key(tmp_path, defaults_rule: str | None, node_rule: dict[str, str]
+               ) -> dict[str, str]:
+    """PE sizes of ADIABATIC_PE with ``pe_rule`` in [defaults] and on named nodes."""
+    nodes = ADIABATIC_PE
+    for node, rule in node_rule.items():
+        nodes = nodes.replace(f'id = "{node}"\n', f'id = "{node}"\npe_rule = "{rule}"\n')
+    path = write_scenario(tmp_path, nodes, rules="iec", currency="EUR",
+                          energy_price="0.2 EUR/kWh", voltage="400 V", insulation="70 degC",
+                          max_sets=1)
+    text = path.read_text().replace('terminals = "75 degC"\n', "")
+    if defaults_rule is not None:
+        text = text.replace("[defaults]\n", f'[defaults]\npe_rule = "{defaults_rule}"\n')
+    path.write_text(text.replace('fault_current = "22 kA"', 'fault_current = "10 kA"'))
+    prep = prepare(load_scenario(path), keep_pins=True)
+    choice = np.asarray(check(prep).choice)
+    return {seg.node.id: prep.catalogue.sizes[prep.table.egc_size_index[choice[s]]]
+            for s, seg in enumerate(prep.segments)}
+
+
+def test_pe_rule_by_scenario_key(tmp_path):
+    # The same hand figures as test_pe_by_the_adiabatic_equation_by_hand: Table 54.2
+    # (from memory) gives 2.5 and 50 mm2; 543.1.2 gives 10 and 35 mm2.
+    table = {"SHORT": "2.5 mm2", "FEEDER": "50 mm2"}
+    adiabatic = {"SHORT": "10 mm2", "FEEDER": "35 mm2"}
+    assert _pe_by_key(tmp_path, None, {}) == table
+    assert _pe_by_key(tmp_path, "table", {}) == table
+    assert _pe_by_key(tmp_path, "adiabatic", {}) == adiabatic
+    assert _pe_by_key(tmp_path, "auto", {}) == table
+    # a node overrides [defaults]
+    assert _pe_by_key(tmp_path, "adiabatic", {"FEEDER": "table"}) == {"SHORT": "10 mm2",
+                                                                      "FEEDER": "50 mm2"}
+    assert _pe_by_key(tmp_path, None, {"SHORT": "adiabatic"}) == {"SHORT": "10 mm2",
+                                                                  "FEEDER": "50 mm2"}
+
+
+_NEC_RUN = """
+[[node]]
+id = "PUMP"
+parent = "SRC"
+length = "100 ft"
+load = "20 kW"
+"""
+
+
+@pytest.mark.parametrize(("where", "field"), [("defaults", "defaults.pe_rule"),
+                                              ("node", "pe_rule")])
+def test_pe_rule_adiabatic_is_refused_where_the_egc_goes_by_the_device(tmp_path, capsys,
+                                                                       where, field):
+    # NEC Table 250.122 sizes the EGC by the device: the adiabatic PE rule cannot stand in.
+    nodes = _NEC_RUN if where == "defaults" else _NEC_RUN.replace(
+        'id = "PUMP"\n', 'id = "PUMP"\npe_rule = "adiabatic"\n', 1)
+    path = write_scenario(tmp_path, nodes)
+    if where == "defaults":
+        path.write_text(path.read_text().replace("[defaults]\n",
+                                                 '[defaults]\npe_rule = "adiabatic"\n'))
+    assert main(["solve", str(path), "--json", str(tmp_path / "out.json")]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and field in err[0] and "phase area" in err[0]
+    assert not (tmp_path / "out.json").exists()
+
+
+def test_an_unknown_pe_rule_word_is_one_line(tmp_path, capsys):
+    path = write_scenario(tmp_path, _NEC_RUN)
+    path.write_text(path.read_text().replace("[defaults]\n", '[defaults]\npe_rule = "guess"\n'))
+    assert main(["solve", str(path)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "pe_rule" in err[0] and "adiabatic" in err[0]
+
+
 def test_pe_by_table_54_2_is_the_default():
     # IEC 60364-5-54 Table 54.2 (from memory): S <= 16 -> S; S > 35 -> S/2 (95 -> 50 mm2)
     assert load_profile("iec").pe_rule == "table"
