@@ -401,6 +401,9 @@ class CandidateTable:
     build_fail: np.ndarray | None = None        # 0 buildable; 1 terminal, 2 raceway (pins only)
     route_count: np.ndarray | None = None       # conductors the row adds to its shared route
     route_top: np.ndarray | None = None         # most conductors its derating allows there
+    # sizes the EGC / PE stands above the profile's rule, bought to meet disconnection
+    # (sizer.earthfault); None when no row has one
+    pe_step: np.ndarray | None = None
 
     def __len__(self) -> int:
         return int(self.segment.shape[0])
@@ -453,6 +456,7 @@ class SegmentResult:
     fault_min_ka: float | None = None    # minimum three-phase fault (c_min, R hot, no motors)
     earth_fault_a: float | None = None   # minimum line-to-earth fault at the cable's far end
     trip_a: float | None = None          # current that disconnects the device in time
+    pe_step: int = 0     # sizes the EGC / PE stands above the rule's, to meet disconnection
 
 
 @dataclass(frozen=True)

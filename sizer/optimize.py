@@ -29,6 +29,7 @@ from sizer.candidates import (
 )
 from sizer.catalogue import Catalogue, load_catalogue
 from sizer.catalogue.prices import PriceList, load_price_list, resolve_price_list
+from sizer.earthfault import pe_step_rows, with_larger_pe
 from sizer.economics import EconomicParams, demand_charge_per_w_year
 from sizer.engines import Problem, Solution, SolveStatus, solve
 from sizer.engines.problem import path_totals
@@ -176,16 +177,22 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
         topology = Topology(np.array([s.parent_index for s in segments], dtype=np.int64))
         earth = earth_fault_terms(scenario, segments, profile, topology.parent)
     with stage("candidates"):
+        pe_fault = (pe_fault_terms(segments, profile, earth, topology.parent)
+                    if adiabatic_pe_runs(segments, profile).any() else None)
         table, local = build_candidates(
             segments, profile, catalogue, price_list, runs.loss_pv_per_w(econ),
             keep_pins=keep_pins,
             loss_a2=loss_current_squared_by_phase(segments, runs, phase_state),
             neutral_a=phase_state.neutral_a,
             neutral_a2=neutral_current_squared(segments, phase_state),
-            pe_fault=pe_fault_terms(segments, profile, earth, topology.parent)
-            if adiabatic_pe_runs(segments, profile).any() else None,
+            pe_fault=pe_fault,
             file=scenario.file,
         )
+        # a larger EGC / PE, priced, where it can meet disconnection (sizer.earthfault)
+        pe_rows, pe_size = pe_step_rows(segments, profile, catalogue, table, earth.u0_v,
+                                        earth.limit_pu, topology.parent)
+        table = with_larger_pe(segments, profile, catalogue, price_list, table, pe_rows,
+                               pe_size, pe_fault)
         limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)
         removed = np.zeros(len(segments), dtype=np.int64)
         if any(seg.node.withstand == "enforce" for seg in segments):
@@ -474,6 +481,7 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
             route=seg.node.route,
             route_conductors=(int(min(t.route_top[r], 10**6))
                               if seg.node.route and t.route_top is not None else 0),
+            pe_step=0 if t.pe_step is None else int(t.pe_step[r]),
         ))
     totals = Totals(
         capex=float(t.capex[choice].sum()),

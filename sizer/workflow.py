@@ -24,7 +24,7 @@ from sizer.engines import solve
 from sizer.engines.problem import path_totals
 from sizer.errors import InternalError
 from sizer.faults import S_BASE_VA, disconnection_time_s, earth_fault_a, loop_pu
-from sizer.model import Design, DesignStatus, Scenario, Violation
+from sizer.model import Design, DesignStatus, Scenario, SegmentResult, Violation
 from sizer.optimize import (
     Objective,
     Prepared,
@@ -390,14 +390,26 @@ class DisconnectionDriver:
     trip_a: float
     ocpd_a: float
     time_s: float
+    pe_upsized: bool = False  # the EGC / PE is above the profile's rule to meet it
+
+
+_PE_WORDS = {"nec": "equipment grounding conductor", "cec": "bonding conductor"}
+
+
+def _conductor_text(s: SegmentResult, with_pe: bool, profile: str) -> str:
+    """The run's conductor ("2x 50 mm2 Cu"), and its EGC / PE when that was upsized."""
+    text = f"{s.sets}x {s.size} {s.material}".removeprefix("1x ")
+    word = _PE_WORDS.get(profile, "protective conductor")
+    return f"{text} with a {s.egc} {word}" if with_pe and s.egc else text
 
 
 def disconnection_drivers(prep: Prepared, design: Design) -> tuple[DisconnectionDriver, ...]:
     """Runs upsized by the disconnection rule, not by drop.
 
     Re-solves the design's objective without the rule and names every run whose
-    conductor (area × sets) is larger with it. Empty for objectives other than capex
-    and lifecycle, and when either solve has no design.
+    conductor (area × sets) is larger with it, or whose protective conductor stands
+    above the profile's rule (a priced row of ``sizer.earthfault``). Empty for
+    objectives other than capex and lifecycle, and when either solve has no design.
     """
     if design.objective not in (o.value for o in Objective) or not design.choice:
         return ()
@@ -413,14 +425,17 @@ def disconnection_drivers(prep: Prepared, design: Design) -> tuple[Disconnection
     for i, (seg, r, b) in enumerate(zip(prep.segments, chosen.tolist(), base.choice,
                                         strict=True)):
         grown = area[t.size_index[r]] * t.sets[r] > area[t.size_index[b]] * t.sets[b] * (1 + 1e-9)
-        if not grown:
+        # or a protective conductor above the profile's rule (sizer.earthfault)
+        pe_up = t.pe_step is not None and bool(t.pe_step[r] > 0)
+        if not (grown or pe_up):
             continue
         s_new, s_old = design.segments[i], base.segments[i]
         out.append(DisconnectionDriver(
-            seg.id, f"{s_old.sets}x {s_old.size} {s_old.material}".removeprefix("1x "),
-            f"{s_new.sets}x {s_new.size} {s_new.material}".removeprefix("1x "),
+            seg.id, _conductor_text(s_old, pe_up, prep.profile.name),
+            _conductor_text(s_new, pe_up, prep.profile.name),
             float(earth[i]), float(prep.earth.trip_a[i]), seg.ocpd_a,
-            disconnection_time_s(seg.ocpd_a, seg.is_leaf, rule)))
+            disconnection_time_s(seg.ocpd_a, seg.is_leaf, rule),
+            pe_upsized=pe_up))
     return tuple(out)
 
 

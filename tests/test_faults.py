@@ -551,3 +551,127 @@ def test_an_unknown_pe_rule_is_refused():
         dataclasses.replace(load_profile("iec"), pe_rule="guess")
     with pytest.raises(ScenarioError, match="phase_area"):
         dataclasses.replace(load_profile("nec"), pe_rule="adiabatic")
+
+
+# --- a larger PE as a priced way to meet disconnection (sizer.earthfault) -----------------
+
+LONG_DISTRIBUTION = """
+[[node]]
+id = "DB"
+parent = "SRC"
+length = "30 m"
+ocpd = "125 A"
+
+[[node]]
+id = "FAR"
+parent = "DB"
+length = "{branch} m"
+load = "30 kW"
+power_factor = 1.0
+ocpd = "63 A"
+
+[[node]]
+id = "NEAR"
+parent = "DB"
+length = "20 m"
+phases = 1
+voltage = "230 V"
+load = "1.2 kW"
+power_factor = 1.0
+ocpd = "16 A"
+"""
+
+
+def _pe_tree(tmp_path, branch: int = 200):
+    path = write_scenario(tmp_path, LONG_DISTRIBUTION.format(branch=branch), rules="iec",
+                          currency="EUR", energy_price="0.2 EUR/kWh", voltage="400 V",
+                          materials='["Cu"]', max_sets=1)
+    path.write_text(path.read_text().replace('terminals = "75 degC"\n', ""))
+    return prepare(load_scenario(path))
+
+
+def _brute_force(prep, rows_ok, cost) -> float:
+    """Least cost of a three-run tree (DB feeding FAR and NEAR) over the rows allowed."""
+    t = prep.table
+    loop, budget = loop_pu_of_rows(prep), prep.earth.limit_pu
+    rows = [[r for r in range(t.offsets[s], t.offsets[s + 1]) if rows_ok[r]] for s in range(3)]
+    best = math.inf
+    for f in rows[0]:
+        for a in rows[1]:
+            for b in rows[2]:
+                if (t.vd_pct[f] + t.vd_pct[a] <= 5 + 1e-12
+                        and t.vd_pct[f] + t.vd_pct[b] <= 5 + 1e-12
+                        and loop[f] <= budget[0] and loop[f] + loop[a] <= budget[1]
+                        and loop[f] + loop[b] <= budget[2]):
+                    best = min(best, cost[f] + cost[a] + cost[b])
+    return best
+
+
+def test_larger_pe_rows_differ_only_in_pe_price_and_loop(tmp_path):
+    prep = _pe_tree(tmp_path)
+    t, k = prep.table, prep.catalogue.index
+    assert t.pe_step is not None
+    copy = t.pe_step > 0
+    # only FAR is at risk: 63 A type C, 5 s, trip 10 x 63 = 630 A (IEC 60898-1), and
+    # with its Table 54.2 PE (from memory: 35 -> 16, 50 -> 25 mm2) 200 m leave less
+    assert set(t.segment[copy].tolist()) == {1}
+    for r in np.flatnonzero(copy).tolist():
+        b = [q for q in range(t.offsets[1], t.offsets[2])
+             if t.pe_step[q] == 0 and t.size_index[q] == t.size_index[r]]
+        assert len(b) == 1
+        b = b[0]
+        assert t.egc_size_index[r] - t.egc_size_index[b] == t.pe_step[r]
+        assert 1 <= t.pe_step[r] <= 3
+        # never above the phase conductor (a cable's PE core at most its line cores)
+        assert t.egc_size_index[r] <= t.size_index[r]
+        assert t.capex[r] > t.capex[b] and abs(t.loop_ohm[r]) < abs(t.loop_ohm[b])
+        assert (t.vd_pct[r], t.loss_pv[r], t.ampacity_a[r]) == (t.vd_pct[b], t.loss_pv[b],
+                                                                 t.ampacity_a[b])
+    # 35 mm2 with a 35 mm2 PE: loop (0.524 + 0.524) x 1.275 x 0.2 = 0.27 ohm at 90 degC
+    # (IEC 60228 R20, alpha 0.00393), under 0.9 x 231 / 630 = 0.33 ohm (IEC 60909 c_min)
+    assert any(t.size_index[r] == k("35 mm2") and t.egc_size_index[r] == k("35 mm2")
+               for r in np.flatnonzero(copy).tolist())
+
+
+@pytest.mark.parametrize("objective", [Objective.CAPEX, Objective.LIFECYCLE])
+def test_a_larger_pe_meets_disconnection_cheaper_and_engines_equal_brute_force(tmp_path,
+                                                                               objective):
+    prep = _pe_tree(tmp_path)
+    t = prep.table
+    assert t.pe_step is not None
+    cost = t.capex if objective is Objective.CAPEX else t.capex + t.loss_pv
+    best = _brute_force(prep, np.ones(len(t), dtype=bool), cost)
+    best_rule_pe_only = _brute_force(prep, t.pe_step == 0, cost)
+    assert best < best_rule_pe_only  # the priced larger PE lowers the cost
+    total = "capex" if objective is Objective.CAPEX else "lifecycle"
+    for engine in ("tree", "milp"):
+        d = optimise(prep, objective, engine=engine)
+        assert getattr(d.totals, total) == pytest.approx(best, rel=1e-9)
+        far = d.choice[1]
+        assert t.pe_step[far] > 0
+        # JSON: the segment's egc is the chosen step's size
+        assert d.segments[1].egc == prep.catalogue.sizes[t.egc_size_index[far]]
+        ver = verify_design(prep, np.asarray(d.choice))
+        assert ver.earth_fault_a is not None and ver.trip_a is not None
+        assert np.all(ver.earth_fault_a >= ver.trip_a)
+    d = optimise(prep, objective)
+    driver = next(x for x in disconnection_drivers(prep, d) if x.segment == "FAR")
+    assert driver.pe_upsized
+    far = d.segments[1]
+    assert (f"FAR: {far.size} {far.material} with a {far.egc} protective conductor instead "
+            "of the ") in disconnection_sentence(driver)
+
+
+def test_no_larger_pe_where_disconnection_is_met_anyway(tmp_path):
+    # 20 m: every row meets its budget under any feasible choice above, so nothing is
+    # copied and the problem is as it was.
+    assert _pe_tree(tmp_path, branch=20).table.pe_step is None
+
+
+def test_pinned_runs_get_no_larger_pe(tmp_path):
+    prep = _pe_tree(tmp_path)
+    path = Path(prep.scenario.file)
+    path.write_text(path.read_text().replace('ocpd = "63 A"', 'ocpd = "63 A"\n'
+                                             'conductor = "35 mm2 Cu"'))
+    pinned = prepare(load_scenario(path), keep_pins=True)
+    assert pinned.table.pe_step is None or not np.any(pinned.table.pe_step > 0)
