@@ -29,11 +29,29 @@ from sizer.candidates import (
 from sizer.catalogue import Catalogue
 from sizer.catalogue.prices import PriceList
 from sizer.engines.problem import path_totals
-from sizer.faults import S_BASE_VA, loop_pu
+from sizer.faults import (
+    S_BASE_VA,
+    default_device,
+    loop_pu,
+    trip_current_a,
+    trip_multiple,
+)
 from sizer.model import CandidateTable, Segment
-from sizer.rules.profile import RuleProfile
+from sizer.rules.profile import FaultRule, RuleProfile
 
-__all__ = ["MAX_PE_STEPS", "pe_step_rows", "with_larger_pe"]
+__all__ = [
+    "CURVE_TIE_BREAK",
+    "MAX_PE_STEPS",
+    "MINIATURE_CURVES",
+    "budget_gain_pu",
+    "curve_rows",
+    "curve_shift_pu",
+    "lower_curves",
+    "pe_step_rows",
+    "run_device",
+    "with_curves",
+    "with_larger_pe",
+]
 
 MAX_PE_STEPS = 3
 """Largest step (catalogue sizes) above the rule's protective conductor that is offered."""
@@ -44,6 +62,31 @@ def _context(segments: tuple[Segment, ...], profile: RuleProfile, catalogue: Cat
     inst_names = sorted(set(sa.installation))
     inst_code = np.array([inst_names.index(name) for name in sa.installation], dtype=np.int64)
     return sa, inst_names, inst_code
+
+
+def _loops_around(table: CandidateTable, u0_v: np.ndarray, limit_pu: np.ndarray,
+                  parent: np.ndarray, shift_pu: np.ndarray | float = 0.0
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Per row: its own loop (pu), and the most and least loop above its run (pu).
+
+    The most is what any feasible design can have above the run: the path to its parent
+    within the parent's own budget, whatever the rows above could add; the least is the
+    path of the least-loop rows. ``shift_pu`` is added to the own loops (curve rows).
+    """
+    n = parent.size
+    seg = table.segment
+    own = np.abs(loop_pu(table.loop_ohm, u0_v[seg], S_BASE_VA)) + shift_pu
+    most = np.zeros(n)
+    np.maximum.at(most, seg, own)
+    least = np.full(n, np.inf)
+    np.minimum.at(least, seg, own)
+    least[~np.isfinite(least)] = 0.0  # a run with no rows: diagnosed elsewhere
+    reach = np.empty(n)
+    for i, p in enumerate(parent.tolist()):
+        reach[i] = min(limit_pu[i], most[i] + (reach[p] if p >= 0 else 0.0))
+    most_above = np.array([reach[p] if p >= 0 else 0.0 for p in parent.tolist()])[seg]
+    least_above = (path_totals(parent, least) - least)[seg]
+    return own, most_above, least_above
 
 
 def pe_step_rows(segments: tuple[Segment, ...], profile: RuleProfile, catalogue: Catalogue,
@@ -63,22 +106,9 @@ def pe_step_rows(segments: tuple[Segment, ...], profile: RuleProfile, catalogue:
     conductors and pinned runs get none (a pin names the row to check). Returns (row, PE
     size index) pairs, a row once per step.
     """
-    n = len(segments)
     sa, inst_names, inst_code = _context(segments, profile, catalogue)
     seg = table.segment
-    own = np.abs(loop_pu(table.loop_ohm, u0_v[seg], S_BASE_VA))
-    most = np.zeros(n)
-    np.maximum.at(most, seg, own)
-    least = np.full(n, np.inf)
-    np.minimum.at(least, seg, own)
-    least[~np.isfinite(least)] = 0.0  # a run with no rows: diagnosed elsewhere
-    # The most loop any feasible design can have above each run: the path to its parent
-    # within the parent's own budget, whatever the rows above could add.
-    reach = np.empty(n)
-    for i, p in enumerate(parent.tolist()):
-        reach[i] = min(limit_pu[i], most[i] + (reach[p] if p >= 0 else 0.0))
-    most_above = np.array([reach[p] if p >= 0 else 0.0 for p in parent.tolist()])[seg]
-    least_above = (path_totals(parent, least) - least)[seg]
+    own, most_above, least_above = _loops_around(table, u0_v, limit_pu, parent)
     limit = limit_pu[seg] * (1 - 1e-9)
     pinned = np.array([s.node.pin is not None for s in segments], dtype=bool)
     rows = np.flatnonzero(np.isfinite(limit) & ~pinned[seg] & ~sa.service[seg]
@@ -153,27 +183,143 @@ def with_larger_pe(segments: tuple[Segment, ...], profile: RuleProfile, catalogu
     m = len(table)
     step = np.zeros(m, dtype=np.int64) if table.pe_step is None else table.pe_step
     table = replace(table, pe_step=step)
+    src = rows[keep]
+    changes = {
+        "egc_size_index": egc[keep], "capex": capex[keep],
+        "pe_step": step[src] + egc[keep] - table.egc_size_index[src],
+        "loop_ohm": fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg[keep],
+                                   mat[keep], size[keep], egc[keep], sets[keep],
+                                   length[keep]),
+        "terminal_max": build.terminal_max[keep], "splice_ends": build.splice_ends[keep],
+        "termination_capex": build.termination_capex[keep],
+        "raceway_size": build.raceway_size[keep], "raceway_capex": build.raceway_capex[keep],
+        "build_fail": np.zeros(keep.size, dtype=np.int64),
+    }
+    return _append_rows(table, src, changes)
+
+
+def _append_rows(table: CandidateTable, src: np.ndarray,
+                 changes: dict[str, np.ndarray]) -> CandidateTable:
+    """The table plus copies of rows ``src`` with the columns in ``changes`` replaced.
+
+    Columns the table does not have (None) stay absent. Rows of a segment stay
+    together, the originals first (a stable order).
+    """
+    m = len(table)
     columns = {f.name: getattr(table, f.name) for f in fields(table)
                if isinstance(getattr(table, f.name), np.ndarray) and f.name != "offsets"
                and getattr(table, f.name).shape[:1] == (m,)}
-    copy = {name: col[rows[keep]] for name, col in columns.items()}
-    copy.update(
-        egc_size_index=egc[keep], capex=capex[keep],
-        pe_step=step[rows[keep]] + egc[keep] - table.egc_size_index[rows[keep]],
-        loop_ohm=fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg[keep],
-                                mat[keep], size[keep], egc[keep], sets[keep], length[keep]))
-    for name, value in (("terminal_max", build.terminal_max),
-                        ("splice_ends", build.splice_ends),
-                        ("termination_capex", build.termination_capex),
-                        ("raceway_size", build.raceway_size),
-                        ("raceway_capex", build.raceway_capex)):
-        if name in copy:
-            copy[name] = value[keep].astype(copy[name].dtype, copy=False)
-    if "build_fail" in copy:
-        copy["build_fail"] = np.zeros(keep.size, dtype=copy["build_fail"].dtype)
+    copy = {name: (changes[name].astype(col.dtype, copy=False) if name in changes
+                   else col[src]) for name, col in columns.items()}
     segment = np.concatenate([table.segment, copy["segment"]])
     order = np.argsort(segment, kind="stable")
     merged = {name: np.concatenate([col, copy[name]])[order] for name, col in columns.items()}
     counts = np.bincount(segment[order], minlength=table.offsets.size - 1)
     offsets = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
     return replace(table, offsets=offsets, **merged)  # type: ignore[arg-type]
+
+
+# --- another miniature-breaker curve --------------------------------------------------------
+
+CURVE_TIE_BREAK = 1e-3
+"""Objective cost (currency units) of a curve other than the run's own device: among
+designs of equal cost the run keeps its device (the price list prices no curves)."""
+
+MINIATURE_CURVES = ("B", "C", "D")
+
+
+def run_device(seg: Segment, rule: FaultRule) -> str:
+    """The run's own overcurrent device: the node's, else the profile's by rating."""
+    return seg.node.device or default_device(seg.ocpd_a, rule)
+
+
+def lower_curves(segments: tuple[Segment, ...], rule: FaultRule) -> list[tuple[str, ...]]:
+    """Per segment: the allowed curves that trip below the run's own device's.
+
+    Final circuits (leaves) only, whose device is a miniature breaker (IEC 60898-1 B,
+    C, D), with ``curves`` given and no ``trip_multiple``; pinned runs get none. A leaf's
+    loop enters no other run's, so its curve is its own business (see :func:`curve_shift_pu`).
+    """
+    out: list[tuple[str, ...]] = []
+    for seg in segments:
+        device = run_device(seg, rule)
+        if (not seg.is_leaf or seg.node.curves is None or seg.node.trip_multiple is not None
+                or device not in MINIATURE_CURVES or seg.node.pin is not None):
+            out.append(())
+            continue
+        own = trip_multiple(device, seg.ocpd_a, seg.is_leaf, rule)
+        out.append(tuple(c for c in seg.node.curves
+                         if trip_multiple(c, seg.ocpd_a, seg.is_leaf, rule) < own))
+    return out
+
+
+def curve_rows(segments: tuple[Segment, ...], rule: FaultRule, table: CandidateTable,
+               u0_v: np.ndarray, trip_a: np.ndarray, limit_pu: np.ndarray,
+               parent: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Rows that get a copy on a lower breaker curve, and the curve of each copy.
+
+    A row at risk under its run's own device (as for the PE, :func:`pe_step_rows`) gets
+    one copy per allowed lower curve with which it meets its budget under the least loop
+    above; a row safe under its own device never needs another curve.
+    """
+    lower = lower_curves(segments, rule)
+    if not any(lower):
+        return np.zeros(0, dtype=np.int64), np.zeros(0, dtype="<U1")
+    seg = table.segment
+    own, most_above, least_above = _loops_around(table, u0_v, limit_pu, parent)
+    offered = np.array([bool(c) for c in lower])
+    rows = np.flatnonzero(offered[seg] & np.isfinite(limit_pu[seg])
+                          & (own + most_above > limit_pu[seg] * (1 - 1e-9)))
+    out_rows: list[int] = []
+    out_curves: list[str] = []
+    for r in rows.tolist():
+        s = int(seg[r])
+        for curve in lower[s]:
+            trip = trip_current_a(curve, segments[s].ocpd_a, True, rule)
+            limit = limit_pu[s] + budget_gain_pu(rule.c_min, u0_v[s], trip_a[s], trip)
+            if own[r] + least_above[r] <= limit * (1 - 1e-9):
+                out_rows.append(r)
+                out_curves.append(curve)
+    return np.array(out_rows, dtype=np.int64), np.array(out_curves, dtype="<U1")
+
+
+def budget_gain_pu(c_min: float, u0_v: float | np.ndarray, trip_from_a: float | np.ndarray,
+                    trip_to_a: float | np.ndarray) -> np.ndarray:
+    """More loop (pu) a device tripping at ``trip_to_a`` allows than one at ``trip_from_a``.
+
+    c_min · S / U0 · (1/I_to − 1/I_from), from IEC 60364-4-41 Zs · Ia ≤ U0.
+    """
+    return np.asarray(c_min * S_BASE_VA / u0_v * (1.0 / np.asarray(trip_to_a)
+                                                  - 1.0 / np.asarray(trip_from_a)))
+
+
+def with_curves(segments: tuple[Segment, ...], rule: FaultRule, table: CandidateTable,
+                rows: np.ndarray, curves: np.ndarray, trip_a: np.ndarray) -> CandidateTable:
+    """The table plus a copy of ``rows[i]`` on breaker curve ``curves[i]``.
+
+    Every row then has a ``curve`` ("" for the run's own device) and a ``trip_a``.
+    """
+    if rows.size == 0:
+        return table
+    m = len(table)
+    table = replace(table, curve=np.full(m, "", dtype="<U1"),
+                    trip_a=np.asarray(trip_a, dtype=float)[table.segment])
+    trip = np.array([trip_current_a(c, segments[s].ocpd_a, True, rule)
+                     for s, c in zip(table.segment[rows].tolist(), curves.tolist(),
+                                     strict=True)])
+    return _append_rows(table, rows, {"curve": curves, "trip_a": trip})
+
+
+def curve_shift_pu(table: CandidateTable, u0_v: np.ndarray, c_min: float,
+                   seg_trip_a: np.ndarray) -> np.ndarray | float:
+    """Per row: loop (pu) added so that one budget per run serves rows of every curve.
+
+    The run's budget is set for its lowest trip current (``seg_trip_a``); a row on a
+    device tripping higher meets its own budget exactly when its loop plus this shift
+    meets the run's. Exact for final circuits: no other run's loop includes theirs.
+    0 when no row has another curve.
+    """
+    if table.trip_a is None:
+        return 0.0
+    seg = table.segment
+    return budget_gain_pu(c_min, u0_v[seg], table.trip_a, seg_trip_a[seg])

@@ -261,6 +261,7 @@ class Node:
     withstand: str = "finding"          # finding | enforce
     interrupting_a: float | None = None  # device interrupting rating (None: not checked)
     pe_rule: str | None = None          # table | adiabatic (None: the profile's)
+    curves: tuple[str, ...] | None = None  # miniature-breaker curves allowed (None: device's)
     description: str = ""         # free text from the scenario, shown in reports
     operating: Operating = field(default_factory=Operating)  # how the load runs (losses)
     phase: str | None = None      # "A" | "B" | "C" | "AB" | "BC" | "CA"; None: assigned
@@ -404,6 +405,10 @@ class CandidateTable:
     # sizes the EGC / PE stands above the profile's rule, bought to meet disconnection
     # (sizer.earthfault); None when no row has one
     pe_step: np.ndarray | None = None
+    # a miniature-breaker curve other than the run's own ("" own device) and the trip
+    # current of every row (sizer.earthfault); None when no row has another curve
+    curve: np.ndarray | None = None
+    trip_a: np.ndarray | None = None
 
     def __len__(self) -> int:
         return int(self.segment.shape[0])
@@ -457,6 +462,7 @@ class SegmentResult:
     earth_fault_a: float | None = None   # minimum line-to-earth fault at the cable's far end
     trip_a: float | None = None          # current that disconnects the device in time
     pe_step: int = 0     # sizes the EGC / PE stands above the rule's, to meet disconnection
+    curve: str | None = None  # miniature-breaker curve (B, C, D) of the run's device
 
 
 @dataclass(frozen=True)

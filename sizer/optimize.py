@@ -29,7 +29,17 @@ from sizer.candidates import (
 )
 from sizer.catalogue import Catalogue, load_catalogue
 from sizer.catalogue.prices import PriceList, load_price_list, resolve_price_list
-from sizer.earthfault import pe_step_rows, with_larger_pe
+from sizer.earthfault import (
+    CURVE_TIE_BREAK,
+    MINIATURE_CURVES,
+    budget_gain_pu,
+    curve_rows,
+    curve_shift_pu,
+    pe_step_rows,
+    run_device,
+    with_curves,
+    with_larger_pe,
+)
 from sizer.economics import EconomicParams, demand_charge_per_w_year
 from sizer.engines import Problem, Solution, SolveStatus, solve
 from sizer.engines.problem import path_totals
@@ -193,6 +203,11 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
                                         earth.limit_pu, topology.parent)
         table = with_larger_pe(segments, profile, catalogue, price_list, table, pe_rows,
                                pe_size, pe_fault)
+        # another miniature-breaker curve where the scenario allows one (final circuits)
+        c_rows, c_curves = curve_rows(segments, profile.fault, table, earth.u0_v,
+                                      earth.trip_a, earth.limit_pu, topology.parent)
+        table = with_curves(segments, profile.fault, table, c_rows, c_curves, earth.trip_a)
+        earth = with_curve_budgets(earth, table)
         limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)
         removed = np.zeros(len(segments), dtype=np.int64)
         if any(seg.node.withstand == "enforce" for seg in segments):
@@ -341,20 +356,53 @@ def earth_fault_terms(scenario: Scenario, segments: tuple[Segment, ...],
     return EarthFaultTerms(u0, trip, source_pu, xfmr, limit, rule.c_min)
 
 
-def loop_pu_of_rows(prep: Prepared) -> np.ndarray:
-    """|line + protective conductor| of every candidate row, per unit on its U0."""
+def with_curve_budgets(earth: EarthFaultTerms, table: CandidateTable) -> EarthFaultTerms:
+    """The terms with each run's budget set for the lowest trip current any row offers.
+
+    Rows on another breaker curve (``sizer.earthfault``) carry their own trip current;
+    the run's ``trip_a`` and ``limit_pu`` become those of the lowest, and rows tripping
+    higher add ``curve_shift_pu`` to their loop (``loop_pu_of_rows``).
+    """
+    if table.trip_a is None:
+        return earth
+    trip = earth.trip_a.copy()
+    np.minimum.at(trip, table.segment, table.trip_a)
+    return replace(earth, trip_a=trip, limit_pu=earth.limit_pu + budget_gain_pu(
+        earth.c_min, earth.u0_v, earth.trip_a, trip))
+
+
+def trip_of_rows(prep: Prepared, rows: np.ndarray) -> np.ndarray:
+    """The current (A) that disconnects the device of each candidate row in time."""
     t = prep.table
-    return np.abs(loop_pu(t.loop_ohm, prep.earth.u0_v[t.segment], S_BASE_VA))
+    if t.trip_a is None:
+        return prep.earth.trip_a[t.segment[rows]]
+    return t.trip_a[rows]
+
+
+def loop_pu_of_rows(prep: Prepared) -> np.ndarray:
+    """|line + protective conductor| of every candidate row, per unit on its U0.
+
+    Rows on a breaker curve tripping above their run's lowest carry the difference of
+    budgets (``sizer.earthfault.curve_shift_pu``), so one budget per run holds for all.
+    """
+    t = prep.table
+    return (np.abs(loop_pu(t.loop_ohm, prep.earth.u0_v[t.segment], S_BASE_VA))
+            + curve_shift_pu(t, prep.earth.u0_v, prep.earth.c_min, prep.earth.trip_a))
 
 
 def objective_costs(table: CandidateTable, objective: Objective,
                     loss_weight: float | None = None) -> np.ndarray:
-    """Per-candidate objective coefficient: capex, or capex + weight × loss PV."""
+    """Per-candidate objective coefficient: capex, or capex + weight × loss PV.
+
+    A row on another breaker curve costs ``CURVE_TIE_BREAK`` more, so that among
+    designs of equal cost a run keeps its own device.
+    """
+    tie = 0.0 if table.curve is None else np.where(table.curve != "", CURVE_TIE_BREAK, 0.0)
     if loss_weight is not None:
-        return table.capex + loss_weight * table.loss_pv
+        return table.capex + loss_weight * table.loss_pv + tie
     if objective is Objective.CAPEX:
-        return table.capex
-    return table.capex + table.loss_pv
+        return table.capex + tie
+    return table.capex + table.loss_pv + tie
 
 
 def build_problem(prep: Prepared, objective: Objective, *, loss_weight: float | None = None,
@@ -380,6 +428,16 @@ def build_problem(prep: Prepared, objective: Objective, *, loss_weight: float | 
         loop_limit_pu=prep.earth.limit_pu if disconnection else None,
         **side,  # type: ignore[arg-type]
     )
+
+
+def _curve_of(prep: Prepared, s: int, r: int) -> str | None:
+    """The miniature-breaker curve of run ``s`` on row ``r`` (None: another device)."""
+    t = prep.table
+    if t.curve is not None and t.curve[r]:
+        return str(t.curve[r])
+    device = run_device(prep.segments[s], prep.profile.fault)
+    return device if device in MINIATURE_CURVES and prep.segments[s].node.trip_multiple \
+        is None else None
 
 
 def _route_terms(prep: Prepared) -> dict[str, np.ndarray]:
@@ -482,6 +540,7 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
             route_conductors=(int(min(t.route_top[r], 10**6))
                               if seg.node.route and t.route_top is not None else 0),
             pe_step=0 if t.pe_step is None else int(t.pe_step[r]),
+            curve=_curve_of(prep, s, r),
         ))
     totals = Totals(
         capex=float(t.capex[choice].sum()),

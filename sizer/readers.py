@@ -369,6 +369,31 @@ def read_device(value: Any, text: bool = False) -> str:
                         f"(use {', '.join(DEVICE_WORDS)}, or \"auto\")")
 
 
+CURVE_WORDS = ("B", "C", "D")
+"""Miniature-breaker curves (IEC 60898-1) a run may be given to meet disconnection."""
+
+
+def read_curves(value: Any, text: bool = False) -> tuple[str, ...]:
+    """Miniature-breaker curves the optimiser may choose from: ["B", "C"] (or "B, C")."""
+    if isinstance(value, str):
+        parts: list[Any] = [p for p in re.split(r"[,;/\s]+", value.strip()) if p]
+    elif isinstance(value, list):
+        parts = value
+    else:
+        raise ScenarioError(f"must be a list such as [\"B\", \"C\"], got {show(value)}")
+    out = []
+    for part in parts:
+        word = read_text(part).upper()
+        if word not in CURVE_WORDS:
+            raise ScenarioError(f"unknown curve {show(part)} (use B, C or D: miniature "
+                                "breaker curves of IEC 60898-1)")
+        out.append(word)
+    curves = tuple(dict.fromkeys(out))
+    if not curves:
+        raise ScenarioError("must name at least one curve (\"B\", \"C\", \"D\")")
+    return curves
+
+
 def read_trip_multiple(value: Any, text: bool = False) -> float:
     """Current that disconnects the device in time, as a multiple of its rating."""
     x = read_number(value, text)

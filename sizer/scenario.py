@@ -731,6 +731,7 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 withstand=v.get("withstand", defaults["withstand"]),
                 interrupting_a=v.get("interrupting", defaults["interrupting"]),
                 pe_rule=v.get("pe_rule", defaults["pe_rule"]),
+                curves=v.get("curves", defaults["curves"]),
             ))
         except ScenarioError as exc:
             report.add_error(exc, node=d.id, file=d.file)
@@ -777,6 +778,7 @@ def _schedule_row(n: Node) -> dict[str, str]:
         "withstand": n.withstand,
         "interrupting": "" if n.interrupting_a is None else f"{_num(n.interrupting_a)} A",
         "pe_rule": n.pe_rule or "auto",
+        "curves": ", ".join(n.curves) if n.curves else "auto",
         "materials": ", ".join(c.materials),
         "insulation": f"{_num(c.insulation_c)} degC",
         "terminals": "auto" if c.terminals_c is None else f"{_num(c.terminals_c)} degC",

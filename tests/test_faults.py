@@ -21,8 +21,15 @@ from builders import write_scenario
 
 from sizer.cli import main
 from sizer.engines import Problem, solve
-from sizer.faults import default_device, disconnection_time_s, trip_current_a, trip_multiple
-from sizer.optimize import Objective, check, loop_pu_of_rows, optimise, prepare
+from sizer.faults import (
+    S_BASE_VA,
+    default_device,
+    disconnection_time_s,
+    loop_pu,
+    trip_current_a,
+    trip_multiple,
+)
+from sizer.optimize import Objective, check, loop_pu_of_rows, optimise, prepare, trip_of_rows
 from sizer.report.tables import disconnection_sentence
 from sizer.rules import load_profile
 from sizer.rules.protection import overload_factor
@@ -675,3 +682,108 @@ def test_pinned_runs_get_no_larger_pe(tmp_path):
                                              'conductor = "35 mm2 Cu"'))
     pinned = prepare(load_scenario(path), keep_pins=True)
     assert pinned.table.pe_step is None or not np.any(pinned.table.pe_step > 0)
+
+
+# --- another miniature-breaker curve where the scenario allows it (sizer.earthfault) ------
+
+
+def _curve_tree(tmp_path, curves: str | None, branch: int = 150):
+    prep = _iec_tree(tmp_path, 60, branch)
+    if curves is None:
+        return prep
+    path = Path(prep.scenario.file)
+    path.write_text(path.read_text().replace("[defaults]\n", f"[defaults]\ncurves = {curves}\n"))
+    return prepare(load_scenario(path))
+
+
+def _brute_force_curves(prep, cost) -> float:
+    """Least cost of LONG_FINAL, each row checked against its own device's trip current.
+
+    Independent of the per-run budget the engines see: the loop of the path (IEC 60909
+    c_min, magnitudes added as the engines do) against c_min · U0 / I_trip of the row's
+    own curve less the source's share (IEC 60364-4-41 411.4.4: Zs · Ia <= U0).
+    """
+    t, e = prep.table, prep.earth
+    raw = np.abs(loop_pu(t.loop_ohm, e.u0_v[t.segment], S_BASE_VA))
+    trip = trip_of_rows(prep, np.arange(len(t)))
+    source = abs(e.source_pu)
+
+    def within(loop_total, s, r):
+        return loop_total + source <= e.c_min * S_BASE_VA / (e.u0_v[s] * trip[r]) + 1e-9
+
+    rows = [range(t.offsets[s], t.offsets[s + 1]) for s in range(3)]
+    best = math.inf
+    for f in rows[0]:
+        for a in rows[1]:
+            for b in rows[2]:
+                if (t.vd_pct[f] + t.vd_pct[a] <= 5 + 1e-12
+                        and t.vd_pct[f] + t.vd_pct[b] <= 5 + 1e-12
+                        and within(raw[f], 0, f) and within(raw[f] + raw[a], 1, a)
+                        and within(raw[f] + raw[b], 2, b)):
+                    best = min(best, cost[f] + cost[a] + cost[b])
+    return best
+
+
+def test_curve_variants_only_where_they_can_matter(tmp_path):
+    prep = _curve_tree(tmp_path, '["B", "C"]')
+    t = prep.table
+    assert t.curve is not None and t.trip_a is not None
+    other = t.curve != ""
+    # FAR (150 m, 20 A, own device C by the iec profile's default) is at risk; NEAR (20 m)
+    # and the feeder DB (not a final circuit) get no variant
+    assert set(t.segment[other].tolist()) == {1}
+    assert set(t.curve[other].tolist()) == {"B"}
+    # IEC 60898-1: type B disconnects for sure at 5 x In, type C at 10 x In
+    assert set(t.trip_a[other].tolist()) == {100.0}
+    assert set(t.trip_a[(t.segment == 1) & ~other].tolist()) == {200.0}
+    # the run's budget is now type B's; type C rows carry the difference
+    assert prep.earth.trip_a[1] == 100.0
+
+
+def test_no_curve_variants_without_the_key_or_where_disconnection_is_met(tmp_path):
+    assert _curve_tree(tmp_path, None).table.curve is None
+    assert _curve_tree(tmp_path, '["B", "C"]', branch=20).table.curve is None
+    # D trips higher than the run's own C: it can never help disconnection
+    assert _curve_tree(tmp_path, '["C", "D"]').table.curve is None
+
+
+@pytest.mark.parametrize("objective", [Objective.CAPEX, Objective.LIFECYCLE])
+def test_a_lower_curve_meets_disconnection_and_engines_equal_brute_force(tmp_path, objective):
+    prep = _curve_tree(tmp_path, '["B", "C"]')
+    t = prep.table
+    cost = t.capex if objective is Objective.CAPEX else t.capex + t.loss_pv
+    best = _brute_force_curves(prep, cost)
+    only_c = _curve_tree(tmp_path, None)
+    cost_c = only_c.table.capex if objective is Objective.CAPEX else \
+        only_c.table.capex + only_c.table.loss_pv
+    assert best < _brute_force_curves(only_c, cost_c)  # type B lets less copper do
+    total = "capex" if objective is Objective.CAPEX else "lifecycle"
+    for engine in ("tree", "milp"):
+        d = optimise(prep, objective, engine=engine)
+        assert getattr(d.totals, total) == pytest.approx(best, rel=1e-9)
+        assert d.segments[1].curve == "B"       # JSON key curve
+        assert d.segments[2].curve == "C"       # NEAR keeps its own device
+        assert d.segments[0].curve == "C"       # DB 63 A: a feeder keeps its device
+        ver = verify_design(prep, np.asarray(d.choice))
+        assert ver.trip_a is not None and ver.earth_fault_a is not None
+        assert ver.trip_a[1] == 100.0
+        assert np.all(ver.earth_fault_a >= ver.trip_a)
+    driver = next(x for x in disconnection_drivers(prep, optimise(prep, objective))
+                  if x.segment == "FAR")
+    assert driver.curve == "B" and driver.trip_a == 100.0
+    assert "on a type B breaker instead of the" in disconnection_sentence(driver)
+    assert "on a type C breaker that drop" in disconnection_sentence(driver)
+
+
+def test_curves_in_the_json_and_bad_curves_are_one_line(tmp_path, capsys):
+    prep = _curve_tree(tmp_path, '["B", "C"]')
+    path = Path(prep.scenario.file)
+    out = tmp_path / "out.json"
+    assert main(["solve", str(path), "--json", str(out), "--quiet"]) == 0
+    doc = {s["id"]: s for s in json.loads(out.read_text())["segments"]}
+    assert (doc["FAR"]["curve"], doc["FAR"]["trip_a"]) == ("B", 100.0)
+    assert doc["NEAR"]["curve"] == "C"
+    path.write_text(path.read_text().replace('curves = ["B", "C"]', 'curves = ["B", "K"]'))
+    assert main(["solve", str(path), "--json", str(out)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "curves" in err[0] and "unknown curve" in err[0]
