@@ -585,3 +585,27 @@ def test_a_bounded_sub_solve_proves_nothing_about_shared_routes() -> None:
     assert not found.proven_optimal and bound == -np.inf
     assert found.objective == pytest.approx(proven.objective)  # the design is still good
     # (the iteration's own branch is checked on the tile works: test_determinism)
+
+
+def test_auto_hands_a_small_bounded_tree_solve_to_the_milp(monkeypatch) -> None:
+    # Found by the scenario fuzz with the larger-PE rows: a 15-run tree came back
+    # "bounded" (fronts thinned). On a small tree the MILP proves the optimum at once.
+    import dataclasses
+
+    import sizer.engines as engines
+
+    p = feeder_and_two_branches()
+    real = tree_engine.solve_tree
+
+    def thinned(q, **kw):
+        s = real(q, **kw)
+        return dataclasses.replace(s, status=SolveStatus.BOUNDED, proven_optimal=False,
+                                   gap=None, message=s.message + "; fronts bounded")
+
+    monkeypatch.setattr(engines._tree, "solve_tree", thinned)
+    exact = solve(p, engine="milp")
+    got = solve(p, engine="auto")
+    assert got.status is SolveStatus.OPTIMAL and got.proven_optimal
+    assert got.objective == pytest.approx(exact.objective, rel=1e-9)
+    assert "the MILP proved the optimum" in got.message
+    assert solve(p, engine="tree").status is SolveStatus.BOUNDED  # asked for: as it is
