@@ -592,12 +592,14 @@ def build_candidates(
     if service.any() and profile.service_bonding:
         egc[service] = _by_material(mat[service], lambda m, mask: bonding_jumper_size_index(
             profile, MATERIALS[m], size[service][mask]), dtype=np.int64)
-    if profile.pe_rule == "adiabatic":
+    adiabatic = adiabatic_pe_runs(segments, profile)[seg] & ~service
+    if adiabatic.any():
         if pe_fault is None:
             raise ValueError("the adiabatic PE rule needs the earth-fault terms (pe_fault)")
-        pe = adiabatic_pe_size_index(profile, catalogue, prices, segments, sa, inst_names,
-                                     inst_code, seg, mat, size, sets, pe_fault)
-        egc = np.where(service, egc, pe)
+        rows = np.flatnonzero(adiabatic)
+        egc[rows] = adiabatic_pe_size_index(profile, catalogue, prices, segments, sa,
+                                            inst_names, inst_code, seg[rows], mat[rows],
+                                            size[rows], sets[rows], pe_fault)
     egc_ok = egc >= 0
     egc = np.where(egc_ok, egc, 0)
 
@@ -912,6 +914,15 @@ def take_rows(table: CandidateTable, keep: np.ndarray) -> CandidateTable:
     return replace(table, offsets=offsets, **arrays)
 
 
+def adiabatic_pe_runs(segments: tuple[Segment, ...], profile: RuleProfile) -> np.ndarray:
+    """Per segment: its PE is sized by the adiabatic equation (IEC 60364-5-54 543.1.2).
+
+    The node's ``pe_rule`` (or ``[defaults]``) where given, else the profile's.
+    """
+    return np.array([(seg.node.pe_rule or profile.pe_rule) == "adiabatic"
+                     for seg in segments], dtype=bool)
+
+
 def loop_temperature_c(profile: RuleProfile, insulation_c: np.ndarray) -> np.ndarray:
     """Conductor temperature of the minimum fault loop (degC).
 
@@ -936,39 +947,59 @@ def adiabatic_pe_size_index(profile, catalogue, prices, segments, sa, inst_names
                             seg, mat, size, sets, pe_fault: PeFaultTerms) -> np.ndarray:
     """Smallest PE size of every row meeting S >= sqrt(I² t) / k (IEC 60364-5-54 543.1.2).
 
+    See :func:`adiabatic_pe_ok`. A larger PE lowers the loop and raises I, so sizes are
+    tried in ascending order. -1: no catalogue size suffices.
+    """
+    out = np.full(seg.shape[0], -1, dtype=np.int64)
+    for s in range(len(catalogue.sizes)):
+        todo = np.flatnonzero(out < 0)
+        if not todo.size:
+            break
+        ok = adiabatic_pe_ok(profile, catalogue, prices, segments, sa, inst_names, inst_code,
+                             seg[todo], mat[todo], size[todo], sets[todo],
+                             np.full(todo.size, s), pe_fault)
+        out[todo[ok]] = s
+    return out
+
+
+def adiabatic_pe_ok(profile, catalogue, prices, segments, sa, inst_names, inst_code, seg, mat,
+                    size, sets, pe, pe_fault: PeFaultTerms) -> np.ndarray:
+    """Whether each row's PE of size index ``pe`` meets IEC 60364-5-54 543.1.2.
+
     I is the far-end line-to-earth current per parallel set under IEC 60909 minimum
     conditions (c_min, conductors at the fault-loop temperature) with the row's own line
     and PE and only ``pe_fault.upstream_ohm`` above: cables above only lower it, so the
-    size also holds for the run's actual far-end current. A larger PE lowers the loop and
-    raises I, so sizes are tried in ascending order. -1: no catalogue size suffices.
+    size also holds for the run's actual far-end current; t the run's required
+    disconnection time; k by ``pe_k`` for the run's insulation and family.
     """
     temp = loop_temperature_c(profile, sa.insulation_c)[seg]
     length = sa.length_m[seg]
     k_pair = np.array([[pe_k(m, float(s.node.cable.insulation_c), profile.withstand_final_c(
         s.node.cable.insulation_c, withstand_family(s, prices, m))) for m in MATERIALS]
         for s in segments]).reshape(-1, len(MATERIALS))
-    need_k = k_pair[seg, mat] / np.sqrt(pe_fault.time_s[seg])   # A per mm2 allowed
-    out = np.full(seg.shape[0], -1, dtype=np.int64)
+    allowed_a_per_mm2 = k_pair[seg, mat] / np.sqrt(pe_fault.time_s[seg])
+    ok = np.zeros(seg.shape[0], dtype=bool)
     imp_code = inst_code[seg] * 2 + mat
     for code in np.unique(imp_code).tolist():
         rows = np.flatnonzero(imp_code == code)
         material, inst = MATERIALS[code % 2], inst_names[code // 2]
         r, x = impedance_ohm_per_m(catalogue, material, size[rows], temp[rows], inst,
                                    profile.frequency_hz)
-        above = (pe_fault.upstream_ohm[seg[rows]]
-                 + (r + 1j * x) * length[rows] / sets[rows])
-        u0 = pe_fault.u0_v[seg[rows]]
-        for s in range(len(catalogue.sizes)):
-            todo = out[rows] < 0
-            if not todo.any():
-                break
-            z_pe = pe_impedance_ohm(catalogue, material, np.full(rows.size, s), sets[rows],
-                                    length[rows], temp[rows], inst, profile.frequency_hz)
-            with np.errstate(divide="ignore", invalid="ignore"):
-                per_set_a = pe_fault.c_min * u0 / np.abs(above + z_pe) / sets[rows]
-                ok = todo & (catalogue.area_mm2[s] * need_k[rows] >= per_set_a)
-            out[rows[ok]] = s
-    return out
+        z_pe = pe_impedance_ohm(catalogue, material, pe[rows], sets[rows], length[rows],
+                                temp[rows], inst, profile.frequency_hz)
+        z = (pe_fault.upstream_ohm[seg[rows]] + (r + 1j * x) * length[rows] / sets[rows]
+             + z_pe)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            per_set_a = pe_fault.c_min * pe_fault.u0_v[seg[rows]] / np.abs(z) / sets[rows]
+            ok[rows] = catalogue.area_mm2[pe[rows]] * allowed_a_per_mm2[rows] >= per_set_a
+    return ok
+
+
+def fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc, sets,
+                   length) -> np.ndarray:
+    """Line + protective conductor impedance (complex ohm) of rows at the fault-loop temp."""
+    return _fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc,
+                           sets, length)
 
 
 def _fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc, sets,

@@ -318,6 +318,12 @@ FIELDS: tuple[Field, ...] = (
        "or D (miniature breaker curve), breaker (moulded case) or fuse", r.auto(r.read_device),
        default_text="auto: the profile's", bounds=" | ".join(r.DEVICE_WORDS) + ', or "auto"',
        attr="device", also_defaults=True, example='"C"'),
+    _F("node", "curves", "miniature-breaker curves the optimiser may choose from to meet "
+       "disconnection (a lower curve trips at a lower current: B 5, C 10, D 20 × In); "
+       "for runs whose device is a miniature breaker and no trip_multiple is given; the "
+       "run's own device is kept unless a lower curve is needed", r.auto(r.read_curves),
+       default_text="auto: the run's device only", bounds='a list of B, C, D, or "auto"',
+       attr="curves", also_defaults=True, example='["B", "C"]'),
     _F("node", "trip_multiple", "current that disconnects the device within the required "
        "time, × its rating (from its curve; replaces the device's default)",
        r.auto(r.read_trip_multiple), default_text="auto: by the device",
@@ -341,6 +347,11 @@ FIELDS: tuple[Field, ...] = (
        default_text="none: not checked", bounds=f"{MIN_FAULT_A:g} A to "
        f"{MAX_CURRENT_A / 1e3:g} kA", attr="interrupting_a", also_defaults=True,
        example='"22 kA"'),
+    _F("node", "pe_rule", "how the protective conductor (PE) is sized: by the profile's "
+       "table (IEC 60364-5-54 Table 54.2) or by the adiabatic equation of 543.1.2 with the "
+       "run's earth-fault current and disconnection time (iec only)", r.auto(r.read_pe_rule),
+       default_text="auto: the profile's (iec: table)", bounds='table | adiabatic, or "auto"',
+       attr="pe_rule", also_defaults=True, example='"adiabatic"'),
     _F("node", "transformer", "the node is a transformer: a table of the keys below",
        attr="transformer", subtable=True, example='{ rating = "75 kVA", ... }'),
     _F("node", "motor", "the node's load is a motor: a table of the keys below",

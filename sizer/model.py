@@ -260,6 +260,8 @@ class Node:
     let_through_a2s: float | None = None  # device let-through I²t (None: I² × clearing time)
     withstand: str = "finding"          # finding | enforce
     interrupting_a: float | None = None  # device interrupting rating (None: not checked)
+    pe_rule: str | None = None          # table | adiabatic (None: the profile's)
+    curves: tuple[str, ...] | None = None  # miniature-breaker curves allowed (None: device's)
     description: str = ""         # free text from the scenario, shown in reports
     operating: Operating = field(default_factory=Operating)  # how the load runs (losses)
     phase: str | None = None      # "A" | "B" | "C" | "AB" | "BC" | "CA"; None: assigned
@@ -412,6 +414,13 @@ class CandidateTable:
     build_fail: np.ndarray | None = None        # 0 buildable; 1 terminal, 2 raceway (pins only)
     route_count: np.ndarray | None = None       # conductors the row adds to its shared route
     route_top: np.ndarray | None = None         # most conductors its derating allows there
+    # sizes the EGC / PE stands above the profile's rule, bought to meet disconnection
+    # (sizer.earthfault); None when no row has one
+    pe_step: np.ndarray | None = None
+    # a miniature-breaker curve other than the run's own ("" own device) and the trip
+    # current of every row (sizer.earthfault); None when no row has another curve
+    curve: np.ndarray | None = None
+    trip_a: np.ndarray | None = None
 
     def __len__(self) -> int:
         return int(self.segment.shape[0])
@@ -464,6 +473,8 @@ class SegmentResult:
     fault_min_ka: float | None = None    # minimum three-phase fault (c_min, R hot, no motors)
     earth_fault_a: float | None = None   # minimum line-to-earth fault at the cable's far end
     trip_a: float | None = None          # current that disconnects the device in time
+    pe_step: int = 0     # sizes the EGC / PE stands above the rule's, to meet disconnection
+    curve: str | None = None  # miniature-breaker curve (B, C, D) of the run's device
 
 
 @dataclass(frozen=True)

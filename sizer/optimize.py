@@ -19,25 +19,34 @@ import numpy as np
 from sizer.candidates import (
     MATERIALS,
     LocalDiagnosis,
-    PeFaultTerms,
+    adiabatic_pe_runs,
     build_candidates,
     route_indices,
-    take_rows,
     transformer_drops_pct,
-    withstand_i2t_a2s,
 )
 from sizer.catalogue import Catalogue, load_catalogue
 from sizer.catalogue.prices import PriceList, load_price_list, resolve_price_list
+from sizer.earthfault import (
+    CURVE_TIE_BREAK,
+    MINIATURE_CURVES,
+    EarthFaultTerms,
+    curve_rows,
+    curve_shift_pu,
+    earth_fault_terms,
+    enforce_withstand,
+    pe_fault_terms,
+    pe_step_rows,
+    run_device,
+    with_curve_budgets,
+    with_curves,
+    with_larger_pe,
+)
 from sizer.economics import EconomicParams, demand_charge_per_w_year
 from sizer.engines import Problem, Solution, SolveStatus, solve
 from sizer.engines.problem import path_totals
 from sizer.faults import (
     S_BASE_VA,
-    default_device,
-    disconnection_time_s,
     loop_pu,
-    source_loop_ohm,
-    trip_current_a,
 )
 from sizer.loads import design_segments
 from sizer.model import (
@@ -102,27 +111,6 @@ class Prepared:
         return self.topology.parent
 
 
-@dataclass(frozen=True)
-class EarthFaultTerms:
-    """What the disconnection constraint needs per segment (see ``sizer.faults``).
-
-    ``u0_v``: voltage to earth of the run's line conductors; ``trip_a``: the current that
-    disconnects its device in time; ``source_pu`` and ``xfmr_pu`` (complex, per unit on
-    ``S_BASE_VA`` and each point's U0): the source's share of every loop, and each node's
-    transformer's share of the loops below it; ``limit_pu``: the most loop impedance
-    the run's own path of cables may add, from c_min · U0 / trip_a less |source| and the
-    |transformers| above (magnitudes added: conservative, so a design within it passes
-    the complex check).
-    """
-
-    u0_v: np.ndarray
-    trip_a: np.ndarray
-    source_pu: complex
-    xfmr_pu: np.ndarray
-    limit_pu: np.ndarray
-    c_min: float
-
-
 def economic_params(scenario: Scenario) -> EconomicParams:
     """The scenario's economics as the IEC 60287-3-2 method needs them."""
     e = scenario.economics
@@ -175,16 +163,27 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
         topology = Topology(np.array([s.parent_index for s in segments], dtype=np.int64))
         earth = earth_fault_terms(scenario, segments, profile, topology.parent)
     with stage("candidates"):
+        pe_fault = (pe_fault_terms(segments, profile, earth, topology.parent)
+                    if adiabatic_pe_runs(segments, profile).any() else None)
         table, local = build_candidates(
             segments, profile, catalogue, price_list, runs.loss_pv_per_w(econ),
             keep_pins=keep_pins,
             loss_a2=loss_current_squared_by_phase(segments, runs, phase_state),
             neutral_a=phase_state.neutral_a,
             neutral_a2=neutral_current_squared(segments, phase_state),
-            pe_fault=pe_fault_terms(segments, profile, earth, topology.parent)
-            if profile.pe_rule == "adiabatic" else None,
+            pe_fault=pe_fault,
             file=scenario.file,
         )
+        # a larger EGC / PE, priced, where it can meet disconnection (sizer.earthfault)
+        pe_rows, pe_size = pe_step_rows(segments, profile, catalogue, table, earth.u0_v,
+                                        earth.limit_pu, topology.parent)
+        table = with_larger_pe(segments, profile, catalogue, price_list, table, pe_rows,
+                               pe_size, pe_fault)
+        # another miniature-breaker curve where the scenario allows one (final circuits)
+        c_rows, c_curves = curve_rows(segments, profile.fault, table, earth.u0_v,
+                                      earth.trip_a, earth.limit_pu, topology.parent)
+        table = with_curves(segments, profile.fault, table, c_rows, c_curves, earth.trip_a)
+        earth = with_curve_budgets(earth, table)
         limit = np.where(topology.is_leaf, profile.drop_total_pct, np.inf)
         removed = np.zeros(len(segments), dtype=np.int64)
         if any(seg.node.withstand == "enforce" for seg in segments):
@@ -197,156 +196,38 @@ def prepare(scenario: Scenario, *, keep_pins: bool = False,
                     earth, removed)
 
 
-def near_fault_bound_a(scenario: Scenario, segments: tuple[Segment, ...],
-                       profile: RuleProfile) -> np.ndarray:
-    """A three-phase fault current no run's near end can exceed, whatever is chosen (A).
-
-    The source's level (or, below a transformer, the transformer's own level on an
-    infinite primary, S/(√3·V·z)) plus the locked-rotor current of every running motor
-    of the tree as if all were at that bus: cables only lower it, so the bound is
-    conservative and needs no choice. Infinite where the source level is not given.
-    """
-    rule = profile.fault
-    motors_va = sum(
-        rule.motor_multiple * (abs(seg.own_load_va) or seg.node.motor.power_w
-                               / max(seg.power_factor, 1e-6))
-        for seg in segments if seg.node.motor is not None and seg.phases == 3)
-    src = scenario.source
-    src_a = math.inf if src.fault_current_a is None else src.fault_current_a
-    bus = [0.0] * len(segments)
-    out = np.empty(len(segments))
-    for i, seg in enumerate(segments):
-        p = seg.parent_index
-        feed = src_a + motors_va / (math.sqrt(3.0) * src.voltage_v) if p < 0 else bus[p]
-        out[i] = feed
-        tx = seg.node.transformer
-        if tx is not None:
-            bus[i] = (tx.rating_va / (math.sqrt(3.0) * tx.secondary_v * tx.impedance_pct / 100)
-                      + motors_va / (math.sqrt(3.0) * tx.secondary_v))
-        else:
-            bus[i] = feed * (1.0 if seg.phases == 3 else math.sqrt(3.0))  # L-N: √3 I at U0
-    return out
-
-
-def enforce_withstand(scenario: Scenario, segments: tuple[Segment, ...],
-                      profile: RuleProfile, catalogue: Catalogue, prices: PriceList,
-                      table: CandidateTable, *, keep_pins: bool = False
-                      ) -> tuple[CandidateTable, np.ndarray]:
-    """Drop the rows of ``withstand = "enforce"`` runs that fail the adiabatic withstand.
-
-    Segment-local: each row's I²t (``withstand_i2t_a2s``) against the device's
-    let-through, or against ``near_fault_bound_a``² × clearing time. Returns the table
-    and the rows removed per segment.
-    """
-    bound = near_fault_bound_a(scenario, segments, profile)
-    seg_of = table.segment
-    enforce = np.array([s.node.withstand == "enforce" for s in segments])[seg_of]
-    rows = np.flatnonzero(enforce)
-    i2t, _ = withstand_i2t_a2s(profile, catalogue, prices, segments, table, rows)
-    need = np.array([
-        s.node.let_through_a2s if s.node.let_through_a2s is not None
-        else bound[i] ** 2 * (s.node.clearing_time_s or profile.default_clearing_time_s)
-        for i, s in enumerate(segments)])[seg_of[rows]]
-    keep = np.ones(len(table), dtype=bool)
-    keep[rows] = ~(i2t < need)  # an infinite need (no source level) is never met
-    if keep_pins:
-        pinned = np.array([s.node.pin is not None for s in segments])[seg_of]
-        keep |= pinned
-    removed = np.bincount(seg_of[~keep], minlength=len(segments))
-    return take_rows(table, keep), removed
-
-
-def pe_fault_terms(segments: tuple[Segment, ...], profile: RuleProfile,
-                   earth: EarthFaultTerms, parent: np.ndarray) -> PeFaultTerms:
-    """What the adiabatic PE rule needs: least loop above each run, its U0 and time.
-
-    The source and every transformer strictly above the run (complex, referred to the
-    run's U0 from the common per-unit base); the disconnection time of IEC 60364-4-41
-    Table 41.1 for the run (``sizer.faults.disconnection_time_s``).
-    """
-    above = np.zeros(len(segments), dtype=np.complex128)
-    for i in range(len(segments)):
-        p = int(parent[i])
-        above[i] = earth.source_pu if p < 0 else above[p] + earth.xfmr_pu[p]
-    time = np.array([disconnection_time_s(seg.ocpd_a, seg.is_leaf, profile.fault)
-                     for seg in segments])
-    return PeFaultTerms(above * earth.u0_v**2 / S_BASE_VA, earth.u0_v, time, earth.c_min)
-
-
-def earth_voltages_v(scenario: Scenario, segments: tuple[Segment, ...]) -> np.ndarray:
-    """U0 of every run: the voltage to earth of its line conductors (V).
-
-    The neutral voltage of the bus feeding it (V/√3 on a three-phase bus, V/2 on a
-    centre-tapped single-phase one), or the circuit voltage where the bus has none.
-    """
-    def neutral(volts: float, phases: int) -> float:
-        return volts / math.sqrt(3.0) if phases == 3 else volts / 2.0
-
-    src = scenario.source
-    bus = [0.0] * len(segments)  # neutral voltage of each node's own bus (0: none)
-    u0 = np.empty(len(segments))
-    for i, seg in enumerate(segments):
-        p = seg.parent_index
-        feed = neutral(src.voltage_v, src.phases) if p < 0 else bus[p]
-        u0[i] = feed if feed > 0 else seg.voltage_v
-        tx = seg.node.transformer
-        if tx is not None:
-            bus[i] = neutral(tx.secondary_v, tx.secondary_phases)
-        elif seg.phases == 3:
-            bus[i] = neutral(seg.voltage_v, 3)
-        elif seg.line_to_neutral:
-            bus[i] = 0.0
-        else:
-            bus[i] = feed if 0 < feed < seg.voltage_v else 0.0
-    return u0
-
-
-def earth_fault_terms(scenario: Scenario, segments: tuple[Segment, ...],
-                      profile: RuleProfile, parent: np.ndarray) -> EarthFaultTerms:
-    """Per-segment U0, trip current and loop-impedance budget of the disconnection rule."""
-    rule = profile.fault
-    src = scenario.source
-    n = len(segments)
-    u0 = earth_voltages_v(scenario, segments)
-    trip = np.array([trip_current_a(seg.node.device or default_device(seg.ocpd_a, rule),
-                                    seg.ocpd_a, seg.is_leaf, rule, seg.node.trip_multiple)
-                     for seg in segments])
-    src_u0 = src.voltage_v / (math.sqrt(3.0) if src.phases == 3 else 2.0)
-    z_src = source_loop_ohm(src.fault_current_a, src.voltage_v, src.phases, src.x_r,
-                            rule.c_max)
-    source_pu = complex(loop_pu(z_src, src_u0, S_BASE_VA))
-    xfmr = np.zeros(n, dtype=np.complex128)
-    for i, seg in enumerate(segments):
-        tx = seg.node.transformer
-        if tx is None:
-            continue
-        # Zero sequence equal to positive (a Dyn transformer, common practice): the loop
-        # share is the per-phase impedance, ohm at the secondary.
-        z_ohm = tx.impedance_pct / 100.0 * tx.secondary_v**2 / tx.rating_va
-        sec_u0 = tx.secondary_v / (math.sqrt(3.0) if tx.secondary_phases == 3 else 2.0)
-        angle = math.atan(tx.x_r)
-        z = complex(z_ohm * math.cos(angle), z_ohm * math.sin(angle))
-        xfmr[i] = complex(loop_pu(z, sec_u0, S_BASE_VA))
-    above = path_totals(parent, np.abs(xfmr)) - np.abs(xfmr)  # transformers strictly above
-    allowed = rule.c_min * S_BASE_VA / (u0 * trip)
-    limit = allowed - abs(source_pu) - above
-    return EarthFaultTerms(u0, trip, source_pu, xfmr, limit, rule.c_min)
+def trip_of_rows(prep: Prepared, rows: np.ndarray) -> np.ndarray:
+    """The current (A) that disconnects the device of each candidate row in time."""
+    t = prep.table
+    if t.trip_a is None:
+        return prep.earth.trip_a[t.segment[rows]]
+    return t.trip_a[rows]
 
 
 def loop_pu_of_rows(prep: Prepared) -> np.ndarray:
-    """|line + protective conductor| of every candidate row, per unit on its U0."""
+    """|line + protective conductor| of every candidate row, per unit on its U0.
+
+    Rows on a breaker curve tripping above their run's lowest carry the difference of
+    budgets (``sizer.earthfault.curve_shift_pu``), so one budget per run holds for all.
+    """
     t = prep.table
-    return np.abs(loop_pu(t.loop_ohm, prep.earth.u0_v[t.segment], S_BASE_VA))
+    return (np.abs(loop_pu(t.loop_ohm, prep.earth.u0_v[t.segment], S_BASE_VA))
+            + curve_shift_pu(t, prep.earth.u0_v, prep.earth.c_min, prep.earth.trip_a))
 
 
 def objective_costs(table: CandidateTable, objective: Objective,
                     loss_weight: float | None = None) -> np.ndarray:
-    """Per-candidate objective coefficient: capex, or capex + weight × loss PV."""
+    """Per-candidate objective coefficient: capex, or capex + weight × loss PV.
+
+    A row on another breaker curve costs ``CURVE_TIE_BREAK`` more, so that among
+    designs of equal cost a run keeps its own device.
+    """
+    tie = 0.0 if table.curve is None else np.where(table.curve != "", CURVE_TIE_BREAK, 0.0)
     if loss_weight is not None:
-        return table.capex + loss_weight * table.loss_pv
+        return table.capex + loss_weight * table.loss_pv + tie
     if objective is Objective.CAPEX:
-        return table.capex
-    return table.capex + table.loss_pv
+        return table.capex + tie
+    return table.capex + table.loss_pv + tie
 
 
 def build_problem(prep: Prepared, objective: Objective, *, loss_weight: float | None = None,
@@ -372,6 +253,16 @@ def build_problem(prep: Prepared, objective: Objective, *, loss_weight: float | 
         loop_limit_pu=prep.earth.limit_pu if disconnection else None,
         **side,  # type: ignore[arg-type]
     )
+
+
+def _curve_of(prep: Prepared, s: int, r: int) -> str | None:
+    """The miniature-breaker curve of run ``s`` on row ``r`` (None: another device)."""
+    t = prep.table
+    if t.curve is not None and t.curve[r]:
+        return str(t.curve[r])
+    device = run_device(prep.segments[s], prep.profile.fault)
+    return device if device in MINIATURE_CURVES and prep.segments[s].node.trip_multiple \
+        is None else None
 
 
 def _route_terms(prep: Prepared) -> dict[str, np.ndarray]:
@@ -473,6 +364,8 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
             route=seg.node.route,
             route_conductors=(int(min(t.route_top[r], 10**6))
                               if seg.node.route and t.route_top is not None else 0),
+            pe_step=0 if t.pe_step is None else int(t.pe_step[r]),
+            curve=_curve_of(prep, s, r),
         ))
     totals = Totals(
         capex=float(t.capex[choice].sum()),

@@ -372,6 +372,31 @@ def read_device(value: Any, text: bool = False) -> str:
                         f"(use {', '.join(DEVICE_WORDS)}, or \"auto\")")
 
 
+CURVE_WORDS = ("B", "C", "D")
+"""Miniature-breaker curves (IEC 60898-1) a run may be given to meet disconnection."""
+
+
+def read_curves(value: Any, text: bool = False) -> tuple[str, ...]:
+    """Miniature-breaker curves the optimiser may choose from: ["B", "C"] (or "B, C")."""
+    if isinstance(value, str):
+        parts: list[Any] = [p for p in re.split(r"[,;/\s]+", value.strip()) if p]
+    elif isinstance(value, list):
+        parts = value
+    else:
+        raise ScenarioError(f"must be a list such as [\"B\", \"C\"], got {show(value)}")
+    out = []
+    for part in parts:
+        word = read_text(part).upper()
+        if word not in CURVE_WORDS:
+            raise ScenarioError(f"unknown curve {show(part)} (use B, C or D: miniature "
+                                "breaker curves of IEC 60898-1)")
+        out.append(word)
+    curves = tuple(dict.fromkeys(out))
+    if not curves:
+        raise ScenarioError("must name at least one curve (\"B\", \"C\", \"D\")")
+    return curves
+
+
 def read_trip_multiple(value: Any, text: bool = False) -> float:
     """Current that disconnects the device in time, as a multiple of its rating."""
     x = read_number(value, text)
@@ -383,6 +408,7 @@ def read_trip_multiple(value: Any, text: bool = False) -> float:
 
 INSULATION_TYPES = ("thermoplastic", "thermoset")
 WITHSTAND_WORDS = ("finding", "enforce")
+PE_RULE_WORDS = ("table", "adiabatic")
 _I2T_SCALE = {"a2s": 1.0, "ka2s": 1e6, "ma2s": 1e12}
 
 
@@ -401,6 +427,15 @@ def read_withstand(value: Any, text: bool = False) -> str:
     word = read_text(value).lower()
     if word not in WITHSTAND_WORDS:
         raise ScenarioError(f"must be \"finding\" or \"enforce\", got {show(value)}")
+    return word
+
+
+def read_pe_rule(value: Any, text: bool = False) -> str:
+    """How the protective conductor is sized: by the profile's table or adiabatically."""
+    word = read_text(value).lower()
+    if word not in PE_RULE_WORDS:
+        raise ScenarioError(f"must be \"table\" or \"adiabatic\" (or \"auto\"), got "
+                            f"{show(value)}")
     return word
 
 

@@ -69,6 +69,7 @@ from sizer.validation import (
     build_tree,
     check_insulation,
     check_node_count,
+    check_pe_rule,
     check_pin,
     check_terminals,
     check_voltage_levels,
@@ -658,6 +659,11 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
         if message:
             report.add(message, field="defaults.terminals")
             given.bad.add("terminals")
+    if profile is not None and "pe_rule" not in given.bad:
+        message = check_pe_rule(defaults["pe_rule"], profile)
+        if message:
+            report.add(message, field="defaults.pe_rule")
+            given.bad.add("pe_rule")
     settings_cache: dict[tuple[Any, ...], CableSettings] = {}
     nodes: list[Node] = []
     # Most nodes give no cable setting or load profile of their own: they share the
@@ -697,6 +703,10 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 message = check_terminals(v["terminals"], profile)
                 if message:
                     report.add(message, node=d.id, field="terminals", file=d.file)
+            if "pe_rule" in v:
+                message = check_pe_rule(v["pe_rule"], profile)
+                if message:
+                    report.add(message, node=d.id, field="pe_rule", file=d.file)
             for size_key in ("load_terminal_max", "min_parallel_size"):
                 size = v.get(size_key, defaults.get(size_key))
                 if size is not None and size not in profile.sizes:
@@ -738,6 +748,8 @@ def _build_nodes(tree: Any, given: _Defaults, profile: Any,
                 let_through_a2s=v.get("let_through", defaults["let_through"]),
                 withstand=v.get("withstand", defaults["withstand"]),
                 interrupting_a=v.get("interrupting", defaults["interrupting"]),
+                pe_rule=v.get("pe_rule", defaults["pe_rule"]),
+                curves=v.get("curves", defaults["curves"]),
             ))
         except ScenarioError as exc:
             report.add_error(exc, node=d.id, file=d.file)
@@ -800,6 +812,8 @@ def _schedule_row(n: Node) -> dict[str, str]:
         "let_through": "" if n.let_through_a2s is None else f"{_num(n.let_through_a2s)} A2s",
         "withstand": n.withstand,
         "interrupting": "" if n.interrupting_a is None else f"{_num(n.interrupting_a)} A",
+        "pe_rule": n.pe_rule or "auto",
+        "curves": ", ".join(n.curves) if n.curves else "auto",
         "materials": ", ".join(c.materials),
         "insulation": f"{_num(c.insulation_c)} degC",
         "terminals": "auto" if c.terminals_c is None else f"{_num(c.terminals_c)} degC",

@@ -494,6 +494,20 @@ def check_terminals(terminals_c: float | None, profile: Any) -> str | None:
             f"terminals (use {shown} or \"auto\")")
 
 
+def check_pe_rule(pe_rule: str | None, profile: Any) -> str | None:
+    """Message when the profile cannot size the protective conductor by ``pe_rule``.
+
+    The adiabatic equation (IEC 60364-5-54 543.1.2) replaces a table by phase size
+    (Table 54.2); the NEC and CEC tables size the EGC by the device, which it cannot
+    replace.
+    """
+    if pe_rule == "adiabatic" and profile.egc_rule != "phase_area":
+        return (f"pe_rule = \"adiabatic\" (IEC 60364-5-54 543.1.2) needs a protective "
+                f"conductor sized by phase area; the {profile.name} profile sizes it by "
+                "the device (use \"table\" or \"auto\")")
+    return None
+
+
 def check_pin(pin: Any, materials: Sequence[str], max_sets: int, profile: Any) -> str | None:
     """Message when a pinned conductor cannot be used under the profile and node settings."""
     from sizer.catalogue import load_catalogue  # the catalogue module sits below this one

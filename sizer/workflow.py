@@ -24,7 +24,7 @@ from sizer.engines import solve
 from sizer.engines.problem import path_totals
 from sizer.errors import InternalError
 from sizer.faults import S_BASE_VA, disconnection_time_s, earth_fault_a, loop_pu
-from sizer.model import Design, DesignStatus, Scenario, Violation
+from sizer.model import Design, DesignStatus, Scenario, SegmentResult, Violation
 from sizer.optimize import (
     Objective,
     Prepared,
@@ -33,6 +33,7 @@ from sizer.optimize import (
     design_from_choice,
     optimise,
     prepare,
+    trip_of_rows,
 )
 from sizer.spare import has_spare, without_spare
 from sizer.stages import count, stage
@@ -276,7 +277,7 @@ def verify_design(prep: Prepared, choice: np.ndarray) -> Verification:
     source_level = src.fault_current_a if src.fault_current_a is not None else math.inf
     near = np.array([fault[p] if p >= 0 else source_level for p in prep.parent.tolist()])
     earth = earth_faults_a(prep, choice)
-    trip = prep.earth.trip_a
+    trip = trip_of_rows(prep, np.asarray(choice, dtype=np.int64))
     findings = list(_withstand_findings(prep, choice, near))
     findings += list(_interrupting_findings(prep, near))
     findings += list(disconnection_findings(prep, earth, trip))
@@ -390,14 +391,30 @@ class DisconnectionDriver:
     trip_a: float
     ocpd_a: float
     time_s: float
+    pe_upsized: bool = False  # the EGC / PE is above the profile's rule to meet it
+    curve: str = ""           # a lower miniature-breaker curve chosen to meet it
+
+
+_PE_WORDS = {"nec": "equipment grounding conductor", "cec": "bonding conductor"}
+
+
+def _conductor_text(s: SegmentResult, with_pe: bool, profile: str, with_curve: bool) -> str:
+    """The run's conductor ("2x 50 mm2 Cu"), its EGC / PE or breaker curve when changed."""
+    text = f"{s.sets}x {s.size} {s.material}".removeprefix("1x ")
+    if with_pe and s.egc:
+        text += f" with a {s.egc} {_PE_WORDS.get(profile, 'protective conductor')}"
+    if with_curve and s.curve:
+        text += f" on a type {s.curve} breaker"
+    return text
 
 
 def disconnection_drivers(prep: Prepared, design: Design) -> tuple[DisconnectionDriver, ...]:
     """Runs upsized by the disconnection rule, not by drop.
 
     Re-solves the design's objective without the rule and names every run whose
-    conductor (area × sets) is larger with it. Empty for objectives other than capex
-    and lifecycle, and when either solve has no design.
+    conductor (area × sets) is larger with it, or whose protective conductor stands
+    above the profile's rule (a priced row of ``sizer.earthfault``). Empty for
+    objectives other than capex and lifecycle, and when either solve has no design.
     """
     if design.objective not in (o.value for o in Objective) or not design.choice:
         return ()
@@ -408,19 +425,25 @@ def disconnection_drivers(prep: Prepared, design: Design) -> tuple[Disconnection
     area = prep.catalogue.area_mm2
     chosen = np.asarray(design.choice, dtype=np.int64)
     earth = earth_faults_a(prep, chosen)
+    trip = trip_of_rows(prep, chosen)
     rule = prep.profile.fault
     out = []
     for i, (seg, r, b) in enumerate(zip(prep.segments, chosen.tolist(), base.choice,
                                         strict=True)):
         grown = area[t.size_index[r]] * t.sets[r] > area[t.size_index[b]] * t.sets[b] * (1 + 1e-9)
-        if not grown:
+        # or a protective conductor above the profile's rule, or a lower breaker curve
+        # (sizer.earthfault)
+        pe_up = t.pe_step is not None and bool(t.pe_step[r] > 0)
+        curve = "" if t.curve is None else str(t.curve[r])
+        if not (grown or pe_up or curve):
             continue
         s_new, s_old = design.segments[i], base.segments[i]
         out.append(DisconnectionDriver(
-            seg.id, f"{s_old.sets}x {s_old.size} {s_old.material}".removeprefix("1x "),
-            f"{s_new.sets}x {s_new.size} {s_new.material}".removeprefix("1x "),
-            float(earth[i]), float(prep.earth.trip_a[i]), seg.ocpd_a,
-            disconnection_time_s(seg.ocpd_a, seg.is_leaf, rule)))
+            seg.id, _conductor_text(s_old, pe_up, prep.profile.name, bool(curve)),
+            _conductor_text(s_new, pe_up, prep.profile.name, bool(curve)),
+            float(earth[i]), float(trip[i]), seg.ocpd_a,
+            disconnection_time_s(seg.ocpd_a, seg.is_leaf, rule),
+            pe_upsized=pe_up, curve=curve))
     return tuple(out)
 
 

@@ -21,8 +21,15 @@ from builders import write_scenario
 
 from sizer.cli import main
 from sizer.engines import Problem, solve
-from sizer.faults import default_device, disconnection_time_s, trip_current_a, trip_multiple
-from sizer.optimize import Objective, check, loop_pu_of_rows, optimise, prepare
+from sizer.faults import (
+    S_BASE_VA,
+    default_device,
+    disconnection_time_s,
+    loop_pu,
+    trip_current_a,
+    trip_multiple,
+)
+from sizer.optimize import Objective, check, loop_pu_of_rows, optimise, prepare, trip_of_rows
 from sizer.report.tables import disconnection_sentence
 from sizer.rules import load_profile
 from sizer.rules.protection import overload_factor
@@ -441,6 +448,75 @@ def _pe_of_rule(tmp_path, monkeypatch, rule: str) -> dict[str, str]:
             for s, seg in enumerate(prep.segments)}
 
 
+def _pe_by_key(tmp_path, defaults_rule: str | None, node_rule: dict[str, str]
+               ) -> dict[str, str]:
+    """PE sizes of ADIABATIC_PE with ``pe_rule`` in [defaults] and on named nodes."""
+    nodes = ADIABATIC_PE
+    for node, rule in node_rule.items():
+        nodes = nodes.replace(f'id = "{node}"\n', f'id = "{node}"\npe_rule = "{rule}"\n')
+    path = write_scenario(tmp_path, nodes, rules="iec", currency="EUR",
+                          energy_price="0.2 EUR/kWh", voltage="400 V", insulation="70 degC",
+                          max_sets=1)
+    text = path.read_text().replace('terminals = "75 degC"\n', "")
+    if defaults_rule is not None:
+        text = text.replace("[defaults]\n", f'[defaults]\npe_rule = "{defaults_rule}"\n')
+    path.write_text(text.replace('fault_current = "22 kA"', 'fault_current = "10 kA"'))
+    prep = prepare(load_scenario(path), keep_pins=True)
+    choice = np.asarray(check(prep).choice)
+    return {seg.node.id: prep.catalogue.sizes[prep.table.egc_size_index[choice[s]]]
+            for s, seg in enumerate(prep.segments)}
+
+
+def test_pe_rule_by_scenario_key(tmp_path):
+    # The same hand figures as test_pe_by_the_adiabatic_equation_by_hand: Table 54.2
+    # (from memory) gives 2.5 and 50 mm2; 543.1.2 gives 10 and 35 mm2.
+    table = {"SHORT": "2.5 mm2", "FEEDER": "50 mm2"}
+    adiabatic = {"SHORT": "10 mm2", "FEEDER": "35 mm2"}
+    assert _pe_by_key(tmp_path, None, {}) == table
+    assert _pe_by_key(tmp_path, "table", {}) == table
+    assert _pe_by_key(tmp_path, "adiabatic", {}) == adiabatic
+    assert _pe_by_key(tmp_path, "auto", {}) == table
+    # a node overrides [defaults]
+    assert _pe_by_key(tmp_path, "adiabatic", {"FEEDER": "table"}) == {"SHORT": "10 mm2",
+                                                                      "FEEDER": "50 mm2"}
+    assert _pe_by_key(tmp_path, None, {"SHORT": "adiabatic"}) == {"SHORT": "10 mm2",
+                                                                  "FEEDER": "50 mm2"}
+
+
+_NEC_RUN = """
+[[node]]
+id = "PUMP"
+parent = "SRC"
+length = "100 ft"
+load = "20 kW"
+"""
+
+
+@pytest.mark.parametrize(("where", "field"), [("defaults", "defaults.pe_rule"),
+                                              ("node", "pe_rule")])
+def test_pe_rule_adiabatic_is_refused_where_the_egc_goes_by_the_device(tmp_path, capsys,
+                                                                       where, field):
+    # NEC Table 250.122 sizes the EGC by the device: the adiabatic PE rule cannot stand in.
+    nodes = _NEC_RUN if where == "defaults" else _NEC_RUN.replace(
+        'id = "PUMP"\n', 'id = "PUMP"\npe_rule = "adiabatic"\n', 1)
+    path = write_scenario(tmp_path, nodes)
+    if where == "defaults":
+        path.write_text(path.read_text().replace("[defaults]\n",
+                                                 '[defaults]\npe_rule = "adiabatic"\n'))
+    assert main(["solve", str(path), "--json", str(tmp_path / "out.json")]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and field in err[0] and "phase area" in err[0]
+    assert not (tmp_path / "out.json").exists()
+
+
+def test_an_unknown_pe_rule_word_is_one_line(tmp_path, capsys):
+    path = write_scenario(tmp_path, _NEC_RUN)
+    path.write_text(path.read_text().replace("[defaults]\n", '[defaults]\npe_rule = "guess"\n'))
+    assert main(["solve", str(path)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "pe_rule" in err[0] and "adiabatic" in err[0]
+
+
 def test_pe_by_table_54_2_is_the_default():
     # IEC 60364-5-54 Table 54.2 (from memory): S <= 16 -> S; S > 35 -> S/2 (95 -> 50 mm2)
     assert load_profile("iec").pe_rule == "table"
@@ -482,3 +558,232 @@ def test_an_unknown_pe_rule_is_refused():
         dataclasses.replace(load_profile("iec"), pe_rule="guess")
     with pytest.raises(ScenarioError, match="phase_area"):
         dataclasses.replace(load_profile("nec"), pe_rule="adiabatic")
+
+
+# --- a larger PE as a priced way to meet disconnection (sizer.earthfault) -----------------
+
+LONG_DISTRIBUTION = """
+[[node]]
+id = "DB"
+parent = "SRC"
+length = "30 m"
+ocpd = "125 A"
+
+[[node]]
+id = "FAR"
+parent = "DB"
+length = "{branch} m"
+load = "30 kW"
+power_factor = 1.0
+ocpd = "63 A"
+
+[[node]]
+id = "NEAR"
+parent = "DB"
+length = "20 m"
+phases = 1
+voltage = "230 V"
+load = "1.2 kW"
+power_factor = 1.0
+ocpd = "16 A"
+"""
+
+
+def _pe_tree(tmp_path, branch: int = 200):
+    path = write_scenario(tmp_path, LONG_DISTRIBUTION.format(branch=branch), rules="iec",
+                          currency="EUR", energy_price="0.2 EUR/kWh", voltage="400 V",
+                          materials='["Cu"]', max_sets=1)
+    path.write_text(path.read_text().replace('terminals = "75 degC"\n', ""))
+    return prepare(load_scenario(path))
+
+
+def _brute_force(prep, rows_ok, cost) -> float:
+    """Least cost of a three-run tree (DB feeding FAR and NEAR) over the rows allowed."""
+    t = prep.table
+    loop, budget = loop_pu_of_rows(prep), prep.earth.limit_pu
+    rows = [[r for r in range(t.offsets[s], t.offsets[s + 1]) if rows_ok[r]] for s in range(3)]
+    best = math.inf
+    for f in rows[0]:
+        for a in rows[1]:
+            for b in rows[2]:
+                if (t.vd_pct[f] + t.vd_pct[a] <= 5 + 1e-12
+                        and t.vd_pct[f] + t.vd_pct[b] <= 5 + 1e-12
+                        and loop[f] <= budget[0] and loop[f] + loop[a] <= budget[1]
+                        and loop[f] + loop[b] <= budget[2]):
+                    best = min(best, cost[f] + cost[a] + cost[b])
+    return best
+
+
+def test_larger_pe_rows_differ_only_in_pe_price_and_loop(tmp_path):
+    prep = _pe_tree(tmp_path)
+    t, k = prep.table, prep.catalogue.index
+    assert t.pe_step is not None
+    copy = t.pe_step > 0
+    # only FAR is at risk: 63 A type C, 5 s, trip 10 x 63 = 630 A (IEC 60898-1), and
+    # with its Table 54.2 PE (from memory: 35 -> 16, 50 -> 25 mm2) 200 m leave less
+    assert set(t.segment[copy].tolist()) == {1}
+    for r in np.flatnonzero(copy).tolist():
+        b = [q for q in range(t.offsets[1], t.offsets[2])
+             if t.pe_step[q] == 0 and t.size_index[q] == t.size_index[r]]
+        assert len(b) == 1
+        b = b[0]
+        assert t.egc_size_index[r] - t.egc_size_index[b] == t.pe_step[r]
+        assert 1 <= t.pe_step[r] <= 3
+        # never above the phase conductor (a cable's PE core at most its line cores)
+        assert t.egc_size_index[r] <= t.size_index[r]
+        assert t.capex[r] > t.capex[b] and abs(t.loop_ohm[r]) < abs(t.loop_ohm[b])
+        assert (t.vd_pct[r], t.loss_pv[r], t.ampacity_a[r]) == (t.vd_pct[b], t.loss_pv[b],
+                                                                 t.ampacity_a[b])
+    # 35 mm2 with a 35 mm2 PE: loop (0.524 + 0.524) x 1.275 x 0.2 = 0.27 ohm at 90 degC
+    # (IEC 60228 R20, alpha 0.00393), under 0.9 x 231 / 630 = 0.33 ohm (IEC 60909 c_min)
+    assert any(t.size_index[r] == k("35 mm2") and t.egc_size_index[r] == k("35 mm2")
+               for r in np.flatnonzero(copy).tolist())
+
+
+@pytest.mark.parametrize("objective", [Objective.CAPEX, Objective.LIFECYCLE])
+def test_a_larger_pe_meets_disconnection_cheaper_and_engines_equal_brute_force(tmp_path,
+                                                                               objective):
+    prep = _pe_tree(tmp_path)
+    t = prep.table
+    assert t.pe_step is not None
+    cost = t.capex if objective is Objective.CAPEX else t.capex + t.loss_pv
+    best = _brute_force(prep, np.ones(len(t), dtype=bool), cost)
+    best_rule_pe_only = _brute_force(prep, t.pe_step == 0, cost)
+    assert best < best_rule_pe_only  # the priced larger PE lowers the cost
+    total = "capex" if objective is Objective.CAPEX else "lifecycle"
+    for engine in ("tree", "milp"):
+        d = optimise(prep, objective, engine=engine)
+        assert getattr(d.totals, total) == pytest.approx(best, rel=1e-9)
+        far = d.choice[1]
+        assert t.pe_step[far] > 0
+        # JSON: the segment's egc is the chosen step's size
+        assert d.segments[1].egc == prep.catalogue.sizes[t.egc_size_index[far]]
+        ver = verify_design(prep, np.asarray(d.choice))
+        assert ver.earth_fault_a is not None and ver.trip_a is not None
+        assert np.all(ver.earth_fault_a >= ver.trip_a)
+    d = optimise(prep, objective)
+    driver = next(x for x in disconnection_drivers(prep, d) if x.segment == "FAR")
+    assert driver.pe_upsized
+    far = d.segments[1]
+    assert (f"FAR: {far.size} {far.material} with a {far.egc} protective conductor instead "
+            "of the ") in disconnection_sentence(driver)
+
+
+def test_no_larger_pe_where_disconnection_is_met_anyway(tmp_path):
+    # 20 m: every row meets its budget under any feasible choice above, so nothing is
+    # copied and the problem is as it was.
+    assert _pe_tree(tmp_path, branch=20).table.pe_step is None
+
+
+def test_pinned_runs_get_no_larger_pe(tmp_path):
+    prep = _pe_tree(tmp_path)
+    path = Path(prep.scenario.file)
+    path.write_text(path.read_text().replace('ocpd = "63 A"', 'ocpd = "63 A"\n'
+                                             'conductor = "35 mm2 Cu"'))
+    pinned = prepare(load_scenario(path), keep_pins=True)
+    assert pinned.table.pe_step is None or not np.any(pinned.table.pe_step > 0)
+
+
+# --- another miniature-breaker curve where the scenario allows it (sizer.earthfault) ------
+
+
+def _curve_tree(tmp_path, curves: str | None, branch: int = 150):
+    prep = _iec_tree(tmp_path, 60, branch)
+    if curves is None:
+        return prep
+    path = Path(prep.scenario.file)
+    path.write_text(path.read_text().replace("[defaults]\n", f"[defaults]\ncurves = {curves}\n"))
+    return prepare(load_scenario(path))
+
+
+def _brute_force_curves(prep, cost) -> float:
+    """Least cost of LONG_FINAL, each row checked against its own device's trip current.
+
+    Independent of the per-run budget the engines see: the loop of the path (IEC 60909
+    c_min, magnitudes added as the engines do) against c_min · U0 / I_trip of the row's
+    own curve less the source's share (IEC 60364-4-41 411.4.4: Zs · Ia <= U0).
+    """
+    t, e = prep.table, prep.earth
+    raw = np.abs(loop_pu(t.loop_ohm, e.u0_v[t.segment], S_BASE_VA))
+    trip = trip_of_rows(prep, np.arange(len(t)))
+    source = abs(e.source_pu)
+
+    def within(loop_total, s, r):
+        return loop_total + source <= e.c_min * S_BASE_VA / (e.u0_v[s] * trip[r]) + 1e-9
+
+    rows = [range(t.offsets[s], t.offsets[s + 1]) for s in range(3)]
+    best = math.inf
+    for f in rows[0]:
+        for a in rows[1]:
+            for b in rows[2]:
+                if (t.vd_pct[f] + t.vd_pct[a] <= 5 + 1e-12
+                        and t.vd_pct[f] + t.vd_pct[b] <= 5 + 1e-12
+                        and within(raw[f], 0, f) and within(raw[f] + raw[a], 1, a)
+                        and within(raw[f] + raw[b], 2, b)):
+                    best = min(best, cost[f] + cost[a] + cost[b])
+    return best
+
+
+def test_curve_variants_only_where_they_can_matter(tmp_path):
+    prep = _curve_tree(tmp_path, '["B", "C"]')
+    t = prep.table
+    assert t.curve is not None and t.trip_a is not None
+    other = t.curve != ""
+    # FAR (150 m, 20 A, own device C by the iec profile's default) is at risk; NEAR (20 m)
+    # and the feeder DB (not a final circuit) get no variant
+    assert set(t.segment[other].tolist()) == {1}
+    assert set(t.curve[other].tolist()) == {"B"}
+    # IEC 60898-1: type B disconnects for sure at 5 x In, type C at 10 x In
+    assert set(t.trip_a[other].tolist()) == {100.0}
+    assert set(t.trip_a[(t.segment == 1) & ~other].tolist()) == {200.0}
+    # the run's budget is now type B's; type C rows carry the difference
+    assert prep.earth.trip_a[1] == 100.0
+
+
+def test_no_curve_variants_without_the_key_or_where_disconnection_is_met(tmp_path):
+    assert _curve_tree(tmp_path, None).table.curve is None
+    assert _curve_tree(tmp_path, '["B", "C"]', branch=20).table.curve is None
+    # D trips higher than the run's own C: it can never help disconnection
+    assert _curve_tree(tmp_path, '["C", "D"]').table.curve is None
+
+
+@pytest.mark.parametrize("objective", [Objective.CAPEX, Objective.LIFECYCLE])
+def test_a_lower_curve_meets_disconnection_and_engines_equal_brute_force(tmp_path, objective):
+    prep = _curve_tree(tmp_path, '["B", "C"]')
+    t = prep.table
+    cost = t.capex if objective is Objective.CAPEX else t.capex + t.loss_pv
+    best = _brute_force_curves(prep, cost)
+    only_c = _curve_tree(tmp_path, None)
+    cost_c = only_c.table.capex if objective is Objective.CAPEX else \
+        only_c.table.capex + only_c.table.loss_pv
+    assert best < _brute_force_curves(only_c, cost_c)  # type B lets less copper do
+    total = "capex" if objective is Objective.CAPEX else "lifecycle"
+    for engine in ("tree", "milp"):
+        d = optimise(prep, objective, engine=engine)
+        assert getattr(d.totals, total) == pytest.approx(best, rel=1e-9)
+        assert d.segments[1].curve == "B"       # JSON key curve
+        assert d.segments[2].curve == "C"       # NEAR keeps its own device
+        assert d.segments[0].curve == "C"       # DB 63 A: a feeder keeps its device
+        ver = verify_design(prep, np.asarray(d.choice))
+        assert ver.trip_a is not None and ver.earth_fault_a is not None
+        assert ver.trip_a[1] == 100.0
+        assert np.all(ver.earth_fault_a >= ver.trip_a)
+    driver = next(x for x in disconnection_drivers(prep, optimise(prep, objective))
+                  if x.segment == "FAR")
+    assert driver.curve == "B" and driver.trip_a == 100.0
+    assert "on a type B breaker instead of the" in disconnection_sentence(driver)
+    assert "on a type C breaker that drop" in disconnection_sentence(driver)
+
+
+def test_curves_in_the_json_and_bad_curves_are_one_line(tmp_path, capsys):
+    prep = _curve_tree(tmp_path, '["B", "C"]')
+    path = Path(prep.scenario.file)
+    out = tmp_path / "out.json"
+    assert main(["solve", str(path), "--json", str(out), "--quiet"]) == 0
+    doc = {s["id"]: s for s in json.loads(out.read_text())["segments"]}
+    assert (doc["FAR"]["curve"], doc["FAR"]["trip_a"]) == ("B", 100.0)
+    assert doc["NEAR"]["curve"] == "C"
+    path.write_text(path.read_text().replace('curves = ["B", "C"]', 'curves = ["B", "K"]'))
+    assert main(["solve", str(path), "--json", str(out)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "curves" in err[0] and "unknown curve" in err[0]

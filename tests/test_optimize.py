@@ -76,7 +76,8 @@ def test_ampacity_protection_and_egc_hold(demo):
                 # CEC Table 16 (from memory): by the run's ampacity, not the device
                 table = egc_size_index(p, res.material, np.array([res.ampacity_a]),
                                        cat.area_mm2[[phase]], cat.area_mm2[[phase]])[0]
-                assert egc == min(table, phase)
+                # (a larger one only as a priced step to meet disconnection, sizer.earthfault)
+                assert egc == min(table, phase) + res.pe_step
                 continue
             # ... and never smaller than the table size for the device (no growth assumed).
             table = egc_size_index(p, res.material, np.array([res.ocpd_a]),

@@ -21,6 +21,9 @@ __all__ = ["ENGINES", "SOLVERS", "Problem", "Solution", "SolveStatus", "solve",
 
 ENGINES = ("auto", "tree", "milp")
 
+EXACT_BY_MILP_UP_TO = 2_000
+"""Up to this many runs ``auto`` hands a bounded tree solve (fronts thinned) to the MILP."""
+
 
 def solve(problem: Problem, engine: str = "auto", solver: str = "cbc",
           time_limit_s: float | None = None) -> Solution:
@@ -47,6 +50,15 @@ def solve(problem: Problem, engine: str = "auto", solver: str = "cbc",
     if engine == "milp" or (engine == "auto" and problem.has_side_constraints):
         return solve_milp(problem, solver=solver, time_limit_s=time_limit_s)
     first = _tree.solve_tree(problem, max_front=_tree.DEFAULT_MAX_FRONT)
+    if engine == "auto" and first.status is SolveStatus.BOUNDED \
+            and problem.n_segments <= EXACT_BY_MILP_UP_TO:
+        # a small tree whose fronts were thinned: the MILP proves the optimum quickly
+        exact = solve_milp(problem, solver=solver, time_limit_s=time_limit_s)
+        if exact.status is SolveStatus.OPTIMAL:
+            return dataclasses.replace(
+                exact, message=f"{first.message}; the MILP proved the optimum. "
+                f"{exact.message}", seconds=first.seconds + exact.seconds)
+        return first
     if engine == "tree" or first.status is not SolveStatus.ERROR:
         return first
     fallback = solve_milp(problem, solver=solver, time_limit_s=time_limit_s)

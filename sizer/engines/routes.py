@@ -77,11 +77,14 @@ def solve_tree_routes(problem: Problem, solve_pure) -> tuple[Solution, float]:
     relaxed = solve_pure(everything[0])
     if not relaxed.has_solution:
         return dataclasses.replace(relaxed, seconds=time.perf_counter() - t0), np.inf
-    bound = relaxed.objective
+    # A sub-solve that is not proven (a front thinned by ε-dominance: status bounded)
+    # gives a design but no lower bound, and nothing built on it is proven either.
+    exact = relaxed.proven_optimal
+    bound = relaxed.objective if exact else -np.inf
     choice = everything[1][relaxed.choice]
     if problem.route_consistent(choice):
         return dataclasses.replace(
-            relaxed, choice=choice, proven_optimal=True, gap=0.0,
+            relaxed, choice=choice, proven_optimal=exact, gap=0.0 if exact else None,
             message=f"{relaxed.message}; shared routes: the relaxation is consistent",
             seconds=time.perf_counter() - t0), bound
 
@@ -114,6 +117,9 @@ def solve_tree_routes(problem: Problem, solve_pure) -> tuple[Solution, float]:
         got = solve_pure(pure)
         if not got.has_solution:
             return None
+        if not got.proven_optimal:
+            nonlocal exact
+            exact = False
         pick = sub[1][got.choice]
         consider(pick)
         return pick, got.objective
@@ -144,11 +150,15 @@ def solve_tree_routes(problem: Problem, solve_pure) -> tuple[Solution, float]:
         return Solution(SolveStatus.ERROR, np.full(problem.n_segments, -1), np.nan, False,
                         None, "tree", "shared routes: no consistent design from the safe "
                         "side", seconds), bound
+    if not exact:
+        bound = -np.inf
     gap = max(0.0, (best_cost - bound) / abs(best_cost)) if best_cost else 0.0
-    proven = gap <= 1e-9
-    return Solution(SolveStatus.OPTIMAL, best, best_cost, proven, gap, "tree",
-                    f"shared routes: {rounds} tree solve(s) (safe side, then a bound per "
-                    f"band), gap to the bound {100 * gap:.3g} %", seconds), bound
+    proven = exact and gap <= 1e-9
+    said = (f"gap to the bound {100 * gap:.3g} %" if exact
+            else "no proven bound (a sub-solve's fronts were bounded)")
+    return Solution(SolveStatus.OPTIMAL, best, best_cost, proven, gap if exact else None,
+                    "tree", f"shared routes: {rounds} tree solve(s) (safe side, then a bound "
+                    f"per band), {said}", seconds), bound
 
 
 def _band_bound(problem: Problem, band: np.ndarray, at_bands, incumbent: float) -> float:
