@@ -227,20 +227,35 @@ def scenario_text(shape: str, size: int) -> str:
     return synthetic_scenario(size)
 
 
-def run_case(case: Case, scenario: Path, out: Path) -> dict[str, object]:
-    """Run the command in a fresh process; its wall time, peak memory and stage log."""
+def run_case(case: Case, scenario: Path, out: Path, timeout_s: float | None = None,
+             ) -> dict[str, object]:
+    """Run the command in a fresh process; its wall time, peak memory and stage log.
+
+    A command still running after ``timeout_s`` is stopped and reported as such.
+    """
     log = out / "stages.json"
     env = {**os.environ, "SIZER_STAGE_LOG": str(log)}
     argv = [sys.executable, "-m", "sizer.cli", *case.argv(scenario, out)]
     t0 = time.perf_counter()
-    proc = subprocess.Popen(argv, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
-                            env=env)
-    _, status, usage = os.wait4(proc.pid, 0)
-    wall = time.perf_counter() - t0
-    proc.returncode = os.waitstatus_to_exitcode(status)
-    err = proc.stderr.read().decode("utf-8", "replace") if proc.stderr else ""
-    if proc.stderr:
-        proc.stderr.close()
+    with tempfile.TemporaryFile() as err_file:
+        proc = subprocess.Popen(argv, stdout=subprocess.DEVNULL, stderr=err_file, env=env)
+        timed_out = False
+        while True:
+            pid, status, usage = os.wait4(proc.pid, os.WNOHANG)
+            if pid:
+                break
+            if timeout_s is not None and time.perf_counter() - t0 > timeout_s:
+                proc.kill()
+                _, status, usage = os.wait4(proc.pid, 0)
+                timed_out = True
+                break
+            time.sleep(0.05)
+        wall = time.perf_counter() - t0
+        proc.returncode = os.waitstatus_to_exitcode(status)
+        err_file.seek(0)
+        err = err_file.read().decode("utf-8", "replace")
+    if timed_out:
+        err = f"stopped after {timeout_s:g} s (--case-timeout)"
     stages = json.loads(log.read_text(encoding="utf-8")) if log.exists() else {}
     if log.exists():
         log.unlink()
@@ -248,6 +263,7 @@ def run_case(case: Case, scenario: Path, out: Path) -> dict[str, object]:
     return {"case": case.name, "shape": case.shape, "size": case.size,
             "command": "sizer " + " ".join(case.command), "exit_code": proc.returncode,
             "stderr_tail": err.strip().splitlines()[-1:] if proc.returncode else [],
+            "timed_out": timed_out,
             "wall_s": wall, "peak_mb": usage.ru_maxrss / 1024,
             "target_s": case.target_s, "target_mb": case.target_mb,
             "stages": stages.get("stages", []), "counts": stages.get("counts", {}),
@@ -358,7 +374,7 @@ def startup_s(repeats: int = 3) -> dict[str, float]:
 
 
 def run_bench(cases: Sequence[Case], *, compare_sizes: Sequence[int] = (1000, 5000),
-              milp_limit_s: float = 60.0, repeats: int = 1,
+              milp_limit_s: float = 60.0, repeats: int = 1, case_timeout_s: float = 1200.0,
               progress: Callable[[str], None] = lambda s: None) -> dict[str, object]:
     """Run every case (the fastest of ``repeats`` runs is kept) and the engine comparison."""
     progress("bench: start-up")
@@ -374,7 +390,7 @@ def run_bench(cases: Sequence[Case], *, compare_sizes: Sequence[int] = (1000, 50
             for _ in range(max(repeats, 1)):
                 out = Path(tmp) / "out"
                 out.mkdir(exist_ok=True)
-                runs.append(run_case(case, scenario, out))
+                runs.append(run_case(case, scenario, out, case_timeout_s))
                 for f in out.iterdir():
                     f.unlink()
             best = min(runs, key=lambda r: float(r["wall_s"]))  # type: ignore[arg-type]
@@ -403,6 +419,7 @@ def run_bench(cases: Sequence[Case], *, compare_sizes: Sequence[int] = (1000, 50
         "repeats": repeats,
         "startup_s": startup,
         "milp_time_limit_s": milp_limit_s,
+        "case_timeout_s": case_timeout_s,
         "cases": results,
         "engine_compare": compare,
     }
@@ -421,7 +438,9 @@ def table_text(doc: dict[str, object]) -> str:
         head = (f"{r['case']}: {r['wall_s']:.2f} s wall, peak {r['peak_mb']:.0f} MB, "
                 f"{int(counts.get('segments', 0)):,} segments, "
                 f"{int(counts.get('candidate_rows', 0)):,} candidate rows")
-        if r["exit_code"] not in (0, 1):
+        if r.get("timed_out"):
+            head += f" — STOPPED: {' '.join(r['stderr_tail'])}"
+        elif r["exit_code"] not in (0, 1):
             head += f" — EXIT {r['exit_code']}: {' '.join(r['stderr_tail'])}"
         lines.append(head)
         lines.append(f"  {'stage':<22} {'s':>8} {'calls':>5} {'rows/s':>10} "

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import gc
 import os
 import sys
 import typing
@@ -208,6 +209,9 @@ def _cmd_solve(args: argparse.Namespace) -> int:
                                 frontier_points=REPORT_FRONTIER_POINTS if args.report else 0,
                                 progress=say)
         say("writing files")
+        # What the solve built lives to the end of the run: keep the collector from
+        # walking it again while the outputs are written (0.1-0.4 s at 20,000 runs).
+        gc.freeze()
         makers = _design_makers(args, results)
         if args.report:   # an infeasible design's report carries its diagnosis
             from sizer.report.html import render_report
@@ -341,7 +345,8 @@ def _cmd_bench(args: argparse.Namespace) -> int:
     with _progress(args) as say:
         doc = run_bench(cases, compare_sizes=[n for n in (1000, 5000) if n <= max(sizes)]
                         or [min(sizes)], milp_limit_s=args.milp_time_limit,
-                        repeats=args.repeats, progress=say)
+                        repeats=args.repeats, case_timeout_s=args.case_timeout,
+                        progress=say)
     print(table_text(doc))
     if args.json:
         write_json(doc, args.json)
@@ -556,6 +561,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="runs per case, each in a fresh process; the fastest is kept")
     p.add_argument("--milp-time-limit", type=_option(_seconds), default=60.0,
                    help="seconds the straightforward MILP may take per size")
+    p.add_argument("--case-timeout", type=_option(_seconds), default=1200.0,
+                   help="seconds one case may run before it is stopped (default 1200)")
     p.add_argument("--json", help="write the measurements here")
     p.add_argument("--quiet", action="store_true", help="no progress display")
     p.set_defaults(run=_cmd_bench)

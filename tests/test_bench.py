@@ -95,3 +95,15 @@ def test_bench_command_runs_every_case_through_the_cli(tmp_path, capsys):
     assert set(doc["startup_s"]) == {"help", "reach"}  # beside the stages (issue 17)
     text = capsys.readouterr().out
     assert "x floor" in text and "start-up, fresh process, wall: sizer help" in text
+
+
+def test_a_case_running_too_long_is_stopped_and_said_so(tmp_path):
+    from sizer.bench import SOLVE_JSON, Case, run_case
+
+    path = tmp_path / "b.toml"
+    path.write_text(synthetic_scenario(400), encoding="utf-8")
+    out = tmp_path / "out"
+    out.mkdir()
+    result = run_case(Case("slow", "building", 400, SOLVE_JSON), path, out, timeout_s=0.05)
+    assert result["timed_out"] is True and result["exit_code"] != 0
+    assert "stopped after 0.05 s" in result["stderr_tail"][0]
