@@ -246,8 +246,9 @@ def _cmd_frontier(args: argparse.Namespace) -> int:
     _outputs(args)
     with _progress(args) as say:
         prep = _prepare(args)
-        points = frontier(prep, args.points, engine=args.engine, solver=args.solver,
-                          time_limit_s=args.time_limit, progress=say)
+        with stage("frontier"):
+            points = frontier(prep, args.points, engine=args.engine, solver=args.solver,
+                              time_limit_s=args.time_limit, progress=say)
     cur = prep.scenario.currency
     if not points:
         print("no feasible design: run `sizer solve` for the diagnosis")

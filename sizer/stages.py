@@ -85,9 +85,13 @@ def stage(name: str) -> Iterator[None]:
 
 
 def count(name: str, value: float) -> None:
-    """Record a size the bench divides by (segments, candidate rows, bytes written)."""
+    """Record a size the bench divides by (segments, candidate rows, rounds).
+
+    The first value of a name is kept: the run's own scenario is prepared first, and
+    the report's side-by-side options (all copper, …) prepare theirs afterwards.
+    """
     if _log is not None:
-        _log.counts[name] = value
+        _log.counts.setdefault(name, value)
 
 
 def write_log() -> None:

@@ -107,3 +107,25 @@ def test_a_case_running_too_long_is_stopped_and_said_so(tmp_path):
     result = run_case(Case("slow", "building", 400, SOLVE_JSON), path, out, timeout_s=0.05)
     assert result["timed_out"] is True and result["exit_code"] != 0
     assert "stopped after 0.05 s" in result["stderr_tail"][0]
+
+
+def test_the_report_options_do_not_overwrite_the_runs_own_counts(tmp_path, monkeypatch):
+    path = tmp_path / "b.toml"
+    path.write_text(synthetic_scenario(60), encoding="utf-8")
+    log = tmp_path / "stages.json"
+    monkeypatch.setenv(ENV, str(log))
+    assert main(["solve", str(path), "--quiet"]) == 0
+    alone = json.loads(log.read_text())["counts"]["candidate_rows"]
+    assert main(["solve", str(path), "--report", str(tmp_path / "r.html"), "--quiet"]) == 0
+    doc = json.loads(log.read_text())
+    assert doc["counts"]["candidate_rows"] == alone   # not the all-copper option's table
+    assert "options" in {s["stage"] for s in doc["stages"]}
+
+
+def test_frontier_marks_its_stage(tmp_path, monkeypatch):
+    path = tmp_path / "b.toml"
+    path.write_text(synthetic_scenario(60), encoding="utf-8")
+    log = tmp_path / "stages.json"
+    monkeypatch.setenv(ENV, str(log))
+    assert main(["frontier", str(path), "--points", "3", "--quiet"]) == 0
+    assert "frontier" in {s["stage"] for s in json.loads(log.read_text())["stages"]}
