@@ -43,6 +43,7 @@ import numpy as np
 
 from sizer.engines.problem import Problem, Solution, SolveStatus, path_totals
 from sizer.errors import InternalError
+from sizer.topology import Topology
 
 __all__ = ["DEFAULT_MAX_FRONT", "DEFAULT_MAX_FRONT_MULTI", "DEFAULT_MAX_QUERIES",
            "exact_grid_pct", "solve_tree", "solve_tree_multi", "undominated_rows"]
@@ -790,10 +791,14 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
     seg_of = problem.segment_of_row
     # A resource matters to a segment only when its subtree holds a finite limit of it;
     # elsewhere its values never enter a constrained sum and are set to 0 (exact).
-    relevant = np.column_stack([np.isfinite(lim) for lim in limits])
-    for s in range(n - 1, -1, -1):
-        if parent[s] >= 0:
-            relevant[parent[s]] |= relevant[s]
+    columns = []
+    for lim in limits:  # children come after their parents: one backward pass each
+        col = np.isfinite(lim).tolist()
+        for s in range(n - 1, -1, -1):
+            if col[s] and parent[s] >= 0:
+                col[parent[s]] = True
+        columns.append(col)
+    relevant = np.array(columns, dtype=bool).T.reshape(n, len(limits))
     own = np.column_stack(values) * relevant[seg_of]  # [rows, k]
     multi: np.ndarray = np.any(relevant[:, 1:], axis=1)
     usable = np.zeros(problem.n_candidates, dtype=bool)
@@ -812,12 +817,14 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
                                  for v in values]) + fix
     most_own = np.column_stack([np.maximum.reduceat(v, problem.offsets[:-1])
                                 for v in values]) + fix
+    # Σ over the strict ancestors = the parent's path sum (the same additions in order)
+    topo = Topology(problem.parent)
+    has = problem.parent >= 0
     above = np.zeros((n, k))
     above_most = np.zeros((n, k))
-    for s, p in enumerate(parent):
-        if p >= 0:
-            above[s] = above[p] + least_own[p]
-            above_most[s] = above_most[p] + most_own[p]
+    for j in range(k):
+        above[has, j] = topo.path_sum(least_own[:, j])[problem.parent[has]]
+        above_most[has, j] = topo.path_sum(most_own[:, j])[problem.parent[has]]
     cap = tol_pct - above
     # A requirement the path above always leaves room for, whatever it chooses, is as
     # good as any lower one: clamping to it lets such points collapse (exact).
