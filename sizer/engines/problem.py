@@ -264,25 +264,26 @@ class Problem:
             or self.has_routes
         )
 
+    def _extra_path_specs(self) -> list[tuple[np.ndarray, np.ndarray, str, str]]:
+        """Each further path constraint with a finite limit: (values, limits, name, unit).
+
+        Values per row, limits per segment.
+        """
+        return [(own, lim, name, unit) for own, lim, name, unit in (
+            (self.drop2_pct, self.limit2_pct, "starting dip", "%"),
+            (self.loop_pu, self.loop_limit_pu, "earth-fault loop", "pu"))
+            if own is not None and lim is not None and bool(np.any(np.isfinite(lim)))]
+
     def extra_paths(self) -> list[tuple[np.ndarray, np.ndarray]]:
         """The path constraints beyond the first drop: (value per row, limit per segment).
 
         Only those with at least one finite limit.
         """
-        out = []
-        for own, lim in ((self.drop2_pct, self.limit2_pct), (self.loop_pu, self.loop_limit_pu)):
-            if own is not None and lim is not None and bool(np.any(np.isfinite(lim))):
-                out.append((own, lim))
-        return out
+        return [(own, lim) for own, lim, _, _ in self._extra_path_specs()]
 
     def extra_path_names(self) -> list[tuple[str, str]]:
         """(name, unit) of each of ``extra_paths()``, in the same order."""
-        out = []
-        for own, lim, name in ((self.drop2_pct, self.limit2_pct, ("starting dip", "%")),
-                               (self.loop_pu, self.loop_limit_pu, ("earth-fault loop", "pu"))):
-            if own is not None and lim is not None and bool(np.any(np.isfinite(lim))):
-                out.append(name)
-        return out
+        return [(name, unit) for _, _, name, unit in self._extra_path_specs()]
 
     def path_sum(self, per_row: np.ndarray, choice: np.ndarray,
                  per_segment: np.ndarray | None = None) -> np.ndarray:
