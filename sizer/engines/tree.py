@@ -80,15 +80,24 @@ def undominated_rows(problem: Problem, drop_pct: np.ndarray | None = None
     pad_c = np.full((n, width), np.inf)
     pad_d[seg, pos] = drop
     pad_c[seg, pos] = problem.cost
-    order = np.lexsort((pad_c, pad_d), axis=1)  # drop, then cost, then position
+    order, keep = _padded_staircase(pad_d, pad_c)
+    kept_offsets = np.zeros(n + 1, dtype=np.int64)
+    np.cumsum(keep.sum(axis=1), out=kept_offsets[1:])
+    return (problem.offsets[:-1, None] + order)[keep], kept_offsets
+
+
+def _padded_staircase(pad_x: np.ndarray, pad_c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The staircase of every row of a padded table (padding: inf cost, never kept).
+
+    Returns ``order`` (per row, by x, then cost, then position) and ``keep`` (in that
+    order: the points no earlier one matches or beats in cost).
+    """
+    order = np.lexsort((pad_c, pad_x), axis=1)
     cost_sorted = np.take_along_axis(pad_c, order, axis=1)
     best_before = np.empty_like(cost_sorted)
     best_before[:, 0] = np.inf
     np.minimum.accumulate(cost_sorted[:, :-1], axis=1, out=best_before[:, 1:])
-    keep = cost_sorted < best_before
-    kept_offsets = np.zeros(n + 1, dtype=np.int64)
-    np.cumsum(keep.sum(axis=1), out=kept_offsets[1:])
-    return (problem.offsets[:-1, None] + order)[keep], kept_offsets
+    return order, cost_sorted < best_before
 
 
 def _path_extent(problem: Problem) -> tuple[float, int]:
@@ -517,8 +526,7 @@ def _bound_note(thinned: int, tolerances: list[tuple[str, float, str]]) -> str:
     """The sentence a bounded solve adds to its message ("" when nothing was thinned)."""
     if not thinned:
         return ""
-    tol = ", ".join(f"{name} {value:.3g} {unit}".replace(" %", " %") for name, value, unit
-                    in tolerances)
+    tol = ", ".join(f"{name} {value:.3g} {unit}" for name, value, unit in tolerances)
     return (f"; fronts bounded by ε-dominance at {thinned} segments: the design meets every "
             f"limit and costs no more than the least-cost design with every limit tightened "
             f"by {tol} (optimality within that tolerance, not proven)")
@@ -725,12 +733,7 @@ def _simple_leaf_fronts(leaves: np.ndarray, seg_rows: list[np.ndarray], cost: np
     pad_c = np.full((leaves.size, width), np.inf)
     pad_r[which[ok], pos[ok]] = req[ok, 0]
     pad_c[which[ok], pos[ok]] = cost[rows[ok]]
-    order = np.lexsort((pad_c, pad_r), axis=1)      # drop requirement, then cost, then row
-    c_sorted = np.take_along_axis(pad_c, order, axis=1)
-    best_before = np.empty_like(c_sorted)
-    best_before[:, 0] = np.inf
-    np.minimum.accumulate(c_sorted[:, :-1], axis=1, out=best_before[:, 1:])
-    keep = c_sorted < best_before
+    order, keep = _padded_staircase(pad_r, pad_c)
     start = (np.cumsum(counts) - counts).tolist()
     largest = 0
     for i, s in enumerate(leaves.tolist()):
