@@ -352,11 +352,7 @@ def _grid(sa: SegmentArrays, n_sizes: int) -> tuple[np.ndarray, ...]:
     NEC 250.122(B) measures the pin's EGC growth from.
     """
     pinned_seg = sa.pin_material >= 0
-    mats = np.where(pinned_seg[:, None], np.arange(2)[None, :] == sa.pin_material[:, None],
-                    sa.allowed)
-    pair_seg, pair_mat = np.nonzero(mats)                   # segment-major, then material
-    top = np.where(pinned_seg, np.maximum(sa.max_sets, sa.pin_sets), sa.max_sets)
-    span = top[pair_seg].astype(np.int64)
+    pair_seg, pair_mat, span = _grid_pairs(sa)
     counts = n_sizes * span
     start = np.cumsum(counts) - counts
     total = int(counts.sum())
@@ -382,12 +378,26 @@ PEAK_BYTES_PER_COMBINATION = 620
 MEMORY_LIMIT_ENV = "SIZER_MEMORY_LIMIT"
 
 
+def _grid_pairs(sa: SegmentArrays) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(segment, material) pairs of the grid, segment-major, and the sets each spans.
+
+    A pinned segment has its pin's material only, and spans to the larger of its
+    ``max_sets`` and the pin's sets.
+    """
+    pinned = sa.pin_material >= 0
+    mats = np.where(pinned[:, None], np.arange(2)[None, :] == sa.pin_material[:, None],
+                    sa.allowed)
+    pair_seg, pair_mat = np.nonzero(mats)
+    top = np.where(pinned, np.maximum(sa.max_sets, sa.pin_sets), sa.max_sets)
+    return pair_seg, pair_mat, top[pair_seg].astype(np.int64)
+
+
 def combinations(sa: SegmentArrays, n_sizes: int, n_bands: int) -> int:
     """How many (segment, material, size, sets[, band]) rows the table starts from."""
-    materials = np.where(sa.pin_material >= 0, 1, sa.allowed.sum(axis=1))
-    sets = np.maximum(sa.max_sets, np.maximum(sa.pin_sets, 1))
-    bands = np.where(sa.route >= 0, n_bands, 1) if sa.route is not None else 1
-    return int(np.sum(materials * n_sizes * sets * bands))
+    pair_seg, _, span = _grid_pairs(sa)
+    bands = (np.where(sa.route[pair_seg] >= 0, n_bands, 1) if sa.route is not None
+             else 1)
+    return int(np.sum(n_sizes * span * bands))
 
 
 def available_memory_bytes() -> float:
@@ -644,8 +654,8 @@ def build_candidates(
                 inst_names[code // 2], profile.frequency_hz)[0] * length[mask] / sets[mask]
         loss_w = loss_w + np.where(own_neutral, np.asarray(neutral_a2, float)[seg] * r_n, 0.0)
     loss_pv = loss_w * _per_row(loss_pv_per_w, seg)
-    loop = _fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc,
-                           sets, length)
+    loop = fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc,
+                          sets, length)
 
     idx = np.flatnonzero(keep)
     counts = np.bincount(seg[idx], minlength=n)
@@ -998,13 +1008,6 @@ def adiabatic_pe_ok(profile, catalogue, prices, segments, sa, inst_names, inst_c
 def fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc, sets,
                    length) -> np.ndarray:
     """Line + protective conductor impedance (complex ohm) of rows at the fault-loop temp."""
-    return _fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc,
-                           sets, length)
-
-
-def _fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc, sets,
-                    length) -> np.ndarray:
-    """Line + protective conductor impedance of every row at the fault-loop temperature."""
     temp = loop_temperature_c(profile, sa.insulation_c)[seg]
     loop = np.zeros(seg.shape[0], dtype=np.complex128)
     imp_code = inst_code[seg] * 2 + mat
