@@ -111,6 +111,11 @@ def test_reach_still_answers_a_sane_question():
     (["bench", "--milp-time-limit", "-5"], "--milp-time-limit"),
     (["bench", "--milp-time-limit", "nan"], "--milp-time-limit"),
     (["bench", "--repeats", "0"], "--repeats"),
+    (["bench", "--chain", "-1"], "--chain"),
+    (["bench", "--chain", "2e6"], "--chain"),
+    (["bench", "--panel", "half"], "--panel"),
+    (["bench", "--case-timeout", "0"], "--case-timeout"),
+    (["bench", "--case-timeout", "inf"], "--case-timeout"),
 ])
 def test_bench_options(argv, option):
     refused(*run(*argv), option)
