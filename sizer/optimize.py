@@ -446,6 +446,26 @@ def optimise(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
     ``motor_start`` adds each motor's starting dip as a further path constraint;
     ``disconnection`` (default) the earth-fault loop of every run.
     """
+    solved = optimal_choice(prep, objective, engine=engine, solver=solver,
+                            time_limit_s=time_limit_s, limit_pct=limit_pct,
+                            loss_weight=loss_weight, motor_start=motor_start,
+                            disconnection=disconnection, **side)
+    if isinstance(solved, Design):
+        return solved
+    return design_of(prep, solved, objective, limit_pct=limit_pct,
+                     disconnection=disconnection, motor_start=motor_start)
+
+
+def optimal_choice(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
+                   engine: str = "auto", solver: str = "cbc",
+                   time_limit_s: float | None = None, limit_pct: np.ndarray | None = None,
+                   loss_weight: float | None = None, motor_start: bool = False,
+                   disconnection: bool = True, **side: object) -> Solution | Design:
+    """The solver's outcome alone, before any Design is assembled (``optimise``'s first half).
+
+    A run with no candidate at all comes back at once as the diagnosed infeasible Design.
+    The closed loop with the load flow re-solves on this, and builds the Design once.
+    """
     if motor_start and any(seg.node.motor is not None for seg in prep.segments):
         side["drop2_pct"], side["limit2_pct"] = motor_start_terms(prep)
     empty = np.diff(prep.table.offsets) == 0
@@ -455,11 +475,16 @@ def optimise(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
     with stage("engine"):
         problem = build_problem(prep, objective, loss_weight=loss_weight,
                                 limit_pct=limit_pct, disconnection=disconnection, **side)
-        solution = solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
+        return solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
 
+
+def design_of(prep: Prepared, solution: Solution, objective: Objective, *,
+              limit_pct: np.ndarray | None = None, disconnection: bool = True,
+              motor_start: bool = False) -> Design:
+    """``optimise``'s second half: the Design of a solution, or why there is none."""
     def why() -> list[str]:
         lines = diagnose(prep, limit_pct)
-        if "drop2_pct" in side:
+        if motor_start and any(seg.node.motor is not None for seg in prep.segments):
             lines = [*_motor_start_diagnosis(prep), *lines[:-1]] or lines
         earth = disconnection_diagnosis(prep) if disconnection else []
         if earth:

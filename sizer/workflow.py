@@ -31,7 +31,11 @@ from sizer.optimize import (
     build_problem,
     check,
     design_from_choice,
+    design_of,
+    exact_route_rows,
+    optimal_choice,
     optimise,
+    path_drops_pct,
     prepare,
     trip_of_rows,
 )
@@ -39,6 +43,7 @@ from sizer.spare import has_spare, without_spare
 from sizer.stages import count, stage
 from sizer.topology import Topology
 from sizer.verify import (
+    LoadFlowResult,
     Network,
     fault_currents_a,
     load_flow,
@@ -260,10 +265,14 @@ def earth_faults_a(prep: Prepared, choice: np.ndarray) -> np.ndarray:
     return earth_fault_a(e.c_min, e.u0_v, e.source_pu + cables + (xf - e.xfmr_pu), S_BASE_VA)
 
 
-def verify_design(prep: Prepared, choice: np.ndarray) -> Verification:
-    """Load flow, fault levels, short-circuit withstand and motor-start dip of a choice."""
+def verify_design(prep: Prepared, choice: np.ndarray, *,
+                  flow: LoadFlowResult | None = None) -> Verification:
+    """Load flow, fault levels, short-circuit withstand and motor-start dip of a choice.
+
+    ``flow`` is this choice's load flow when the caller has it already.
+    """
     net = network_of(prep, choice)
-    lf = load_flow(net)
+    lf = load_flow(net) if flow is None else flow
     src = prep.scenario.source
     rule = prep.profile.fault
     net_max, net_min = fault_networks(prep, choice)
@@ -488,25 +497,25 @@ def solve_verified(prep: Prepared, objective: Objective, *, engine: str = "auto"
     limits = prep.leaf_limit_pct.copy()
     rounds = 0
     while True:
-        design = optimise(prep, objective, engine=engine, solver=solver,
-                          time_limit_s=time_limit_s, limit_pct=limits,
-                          motor_start=motor_start)
-        if not design.segments:
-            return design, None
-        with stage("audit"):
-            audit(prep, design)
-        choice = np.asarray(design.choice, dtype=np.int64)
+        solved = optimal_choice(prep, objective, engine=engine, solver=solver,
+                                time_limit_s=time_limit_s, limit_pct=limits,
+                                motor_start=motor_start)
+        if isinstance(solved, Design):
+            return solved, None
+        if not solved.has_solution:
+            return design_of(prep, solved, objective, limit_pct=limits,
+                             motor_start=motor_start), None
+        # Only the load flow decides another round: the Design, its audit and the fault
+        # checks are built once, for the choice that stands.
+        choice = exact_route_rows(prep, np.asarray(solved.choice, dtype=np.int64))
         with stage("verify"):
-            ver = verify_design(prep, choice)
-        over = ver.loadflow_drop_pct - prep.leaf_limit_pct
+            flow = load_flow(network_of(prep, choice))
+        over = np.asarray(flow.drop_pct, dtype=float) - prep.leaf_limit_pct
         bad = np.isfinite(over) & (over > 1e-6)
-        if not bad.any() or rounds >= max_rounds or not ver.converged:
-            ver = replace(ver, rounds=rounds)
-            count("loadflow_rounds", rounds + 1)
-            with stage("findings"):
-                return with_verification(prep, design, choice, ver), ver
-        est = np.array([s.path_vd_pct for s in design.segments])
-        short = ver.loadflow_drop_pct - est
+        if not bad.any() or rounds >= max_rounds or not flow.converged:
+            break
+        est = path_drops_pct(prep.parent, prep.table.vd_pct[choice], prep.fixed_drop_pct)
+        short = np.asarray(flow.drop_pct, dtype=float) - est
         # Tighten by the estimate's shortfall plus a hair, so the next round lands inside.
         limits[bad] = limits[bad] - short[bad] - 1e-4
         # Every other leaf the estimate under-states keeps room for its own shortfall,
@@ -518,7 +527,14 @@ def solve_verified(prep: Prepared, objective: Objective, *, engine: str = "auto"
         limits[room] = np.minimum(limits[room],
                                   prep.leaf_limit_pct[room] - 1.1 * short[room] - 1e-4)
         rounds += 1
-
+    design = design_of(prep, solved, objective, limit_pct=limits, motor_start=motor_start)
+    with stage("audit"):
+        audit(prep, design)
+    with stage("verify"):
+        ver = replace(verify_design(prep, choice, flow=flow), rounds=rounds)
+    count("loadflow_rounds", rounds + 1)
+    with stage("findings"):
+        return with_verification(prep, design, choice, ver), ver
 
 
 def check_verified(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",
