@@ -371,10 +371,14 @@ def _grid(sa: SegmentArrays, n_sizes: int) -> tuple[np.ndarray, ...]:
     return seg, mat, size, sets, ~pinned | pin_row
 
 
-# Peak memory per (segment × material × size × sets) combination while the table is
-# built, bytes: measured by `sizer bench` (about 2.0 GB for 3.5 million combinations of
-# the 20,000-run building), with a tenth of headroom.
+# Peak memory while the table is built, bytes: PEAK_BYTES_PER_COMBINATION for each
+# (segment × material × size × sets) combination of the slice being built (its work
+# arrays), TABLE_BYTES_PER_COMBINATION for each combination of the whole grid (the rows
+# that survive, and the copy made when rows are added to them). Measured by `sizer
+# bench` on the 20,000-run building (3.9 million combinations, about 0.9 GB above the
+# process's base), with a tenth of headroom.
 PEAK_BYTES_PER_COMBINATION = 620
+TABLE_BYTES_PER_COMBINATION = 250
 MEMORY_LIMIT_ENV = "SIZER_MEMORY_LIMIT"
 
 
@@ -392,12 +396,95 @@ def _grid_pairs(sa: SegmentArrays) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return pair_seg, pair_mat, top[pair_seg].astype(np.int64)
 
 
-def combinations(sa: SegmentArrays, n_sizes: int, n_bands: int) -> int:
-    """How many (segment, material, size, sets[, band]) rows the table starts from."""
+def segment_combinations(sa: SegmentArrays, n_sizes: int, n_bands: int) -> np.ndarray:
+    """Per segment, how many (material, size, sets[, band]) rows its grid starts from."""
     pair_seg, _, span = _grid_pairs(sa)
     bands = (np.where(sa.route[pair_seg] >= 0, n_bands, 1) if sa.route is not None
              else 1)
-    return int(np.sum(n_sizes * span * bands))
+    return np.bincount(pair_seg, weights=n_sizes * span * bands,
+                       minlength=len(sa.length_m)).astype(np.int64)
+
+
+def combinations(sa: SegmentArrays, n_sizes: int, n_bands: int) -> int:
+    """How many (segment, material, size, sets[, band]) rows the table starts from."""
+    return int(segment_combinations(sa, n_sizes, n_bands).sum())
+
+
+# The table is built in slices of whole runs of about this many grid combinations: the
+# work arrays of one slice (about PEAK_BYTES_PER_COMBINATION each) are the peak, not
+# those of the whole grid. Large enough that numpy's per-call overhead stays small.
+SLICE_COMBINATIONS = 1000000
+
+
+def _slices(sa: SegmentArrays, per_segment: np.ndarray,
+            most: int) -> list[tuple[int, int]]:
+    """Consecutive segment ranges of about ``most`` combinations each.
+
+    A shared route's runs stay in one range: they share its trench and its band count.
+    """
+    n = per_segment.shape[0]
+    inside_route = np.zeros(n + 1, dtype=bool)   # a cut before segment b splits a route
+    if sa.route is not None and np.any(sa.route >= 0):
+        members = np.flatnonzero(sa.route >= 0)
+        routes = sa.route[members]
+        first = np.full(int(routes.max()) + 1, n, dtype=np.int64)
+        last = np.full(int(routes.max()) + 1, -1, dtype=np.int64)
+        np.minimum.at(first, routes, members)
+        np.maximum.at(last, routes, members)
+        used = last >= 0
+        spans = np.zeros(n + 2, dtype=np.int64)
+        np.add.at(spans, first[used] + 1, 1)
+        np.add.at(spans, last[used] + 1, -1)
+        inside_route = np.cumsum(spans)[: n + 1] > 0
+    out = []
+    lo, total = 0, 0
+    for s, k in enumerate(per_segment.tolist()):
+        if total >= most and not inside_route[s]:
+            out.append((lo, s))
+            lo, total = s, 0
+        total += k
+    out.append((lo, n))
+    return out
+
+
+def _sliced(sa: SegmentArrays, lo: int, hi: int) -> SegmentArrays:
+    """The per-segment arrays of segments ``lo:hi``."""
+    return replace(sa, **{f.name: getattr(sa, f.name)[lo:hi] for f in fields(sa)
+                          if getattr(sa, f.name) is not None})
+
+
+def _joined(parts: list[tuple[CandidateTable, LocalDiagnosis]],
+            ) -> tuple[CandidateTable, LocalDiagnosis]:
+    """The tables and diagnoses of consecutive slices as one."""
+    if len(parts) == 1:
+        return parts[0]
+    diagnoses = [d for _, d in parts]
+    # Column by column, each slice's column let go once joined: the peak is one table
+    # and one column, not the slices and the table.
+    tables = [{f.name: getattr(t, f.name) for f in fields(t)} for t, _ in parts]
+    parts.clear()
+    first = np.cumsum([0] + [len(t["offsets"]) - 1 for t in tables])[:-1]
+    columns: dict[str, object] = {}
+    for f in fields(CandidateTable):
+        values = [t.pop(f.name) for t in tables]
+        if f.name == "offsets":
+            counts = np.concatenate([np.diff(v) for v in values])
+            columns[f.name] = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+        elif f.name == "segment":
+            columns[f.name] = np.concatenate(
+                [v + np.int32(k) for v, k in zip(values, first.tolist(), strict=True)])
+        elif isinstance(values[0], np.ndarray):
+            columns[f.name] = np.concatenate(values)
+        elif isinstance(values[0], tuple):
+            columns[f.name] = tuple(x for v in values for x in v)
+        else:
+            columns[f.name] = values[0]
+        del values
+    joined = {f.name: (np.concatenate([getattr(d, f.name) for d in diagnoses])
+                       if isinstance(getattr(diagnoses[0], f.name), np.ndarray)
+                       else tuple(x for d in diagnoses for x in getattr(d, f.name)))
+              for f in fields(LocalDiagnosis)}
+    return CandidateTable(**columns), LocalDiagnosis(**joined)  # type: ignore[arg-type]
 
 
 def available_memory_bytes() -> float:
@@ -437,8 +524,12 @@ def check_table_fits(sa: SegmentArrays, n_sizes: int, n_bands: int, file: str | 
     Raised before anything is built, instead of a traceback or the kernel stopping the
     process; the message says what to change.
     """
-    rows = combinations(sa, n_sizes, n_bands)
-    need = rows * PEAK_BYTES_PER_COMBINATION
+    per_segment = segment_combinations(sa, n_sizes, n_bands)
+    rows = int(per_segment.sum())
+    largest_slice = max(int(per_segment[lo:hi].sum())
+                        for lo, hi in _slices(sa, per_segment, SLICE_COMBINATIONS))
+    need = (largest_slice * PEAK_BYTES_PER_COMBINATION
+            + rows * TABLE_BYTES_PER_COMBINATION)
     limit = available_memory_bytes() if limit_bytes is None else limit_bytes
     if need > limit:
         raise ScenarioError(
@@ -492,10 +583,42 @@ def build_candidates(
     names the scenario in the message).
     """
     sa = segment_arrays(segments, profile, catalogue)
-    n = len(segments)
     # Shared routes: one copy of each row per grouping band, its derating at that band.
     tops = band_tops_conductors(profile.grouping_bands, profile.grouping_conductors_per_group)
+    per_segment = segment_combinations(sa, len(catalogue.sizes), len(tops))
     check_table_fits(sa, len(catalogue.sizes), len(tops), file)
+    parts = []
+    for lo, hi in _slices(sa, per_segment, SLICE_COMBINATIONS):
+        def cut(values: np.ndarray | None, lo: int = lo, hi: int = hi) -> np.ndarray | None:
+            return None if values is None else np.asarray(values)[lo:hi]
+        parts.append(_build_slice(
+            segments[lo:hi], _sliced(sa, lo, hi), tops, profile, catalogue, prices,
+            loss_pv_per_w if np.ndim(loss_pv_per_w) == 0 else cut(loss_pv_per_w),  # type: ignore[arg-type]
+            keep_pins=keep_pins, loss_a2=cut(loss_a2), neutral_a=cut(neutral_a),
+            neutral_a2=cut(neutral_a2),
+            pe_fault=None if pe_fault is None else replace(
+                pe_fault, upstream_ohm=pe_fault.upstream_ohm[lo:hi],
+                u0_v=pe_fault.u0_v[lo:hi], time_s=pe_fault.time_s[lo:hi])))
+    return _joined(parts)
+
+
+def _build_slice(
+    segments: tuple[Segment, ...],
+    sa: SegmentArrays,
+    tops: np.ndarray,
+    profile: RuleProfile,
+    catalogue: Catalogue,
+    prices: PriceList,
+    loss_pv_per_w: float | np.ndarray,
+    *,
+    keep_pins: bool,
+    loss_a2: np.ndarray | None,
+    neutral_a: np.ndarray | None,
+    neutral_a2: np.ndarray | None,
+    pe_fault: PeFaultTerms | None,
+) -> tuple[CandidateTable, LocalDiagnosis]:
+    """``build_candidates`` for a slice of whole runs (``sa`` and the arrays cut to it)."""
+    n = len(segments)
     seg, mat, size, sets, own = _grid(sa, len(catalogue.sizes))
     seg, mat, size, sets, own, band = _route_bands(sa, (seg, mat, size, sets, own), len(tops))
     route = sa.route[seg] if sa.route is not None else np.full(seg.shape, -1)
@@ -660,12 +783,15 @@ def build_candidates(
     idx = np.flatnonzero(keep)
     counts = np.bincount(seg[idx], minlength=n)
     offsets = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+    # Codes and counts in the narrowest integer type that holds them: a third less
+    # memory per row than int64 throughout, with the same values (a catalogue has far
+    # fewer than 2**15 sizes; runs fewer than 2**31).
     table = CandidateTable(
         offsets=offsets,
-        segment=seg[idx],
-        material=mat[idx],
-        size_index=size[idx],
-        sets=sets[idx],
+        segment=seg[idx].astype(np.int32),
+        material=mat[idx].astype(np.int8),
+        size_index=size[idx].astype(np.int16),
+        sets=sets[idx].astype(np.int16),
         ampacity_a=ampacity[idx],
         ampacity_before_a=(before_set * sets)[idx],
         temp_c=temp_c[idx],
@@ -675,15 +801,16 @@ def build_candidates(
         loss_w=loss_w[idx],
         capex=capex[idx],
         loss_pv=loss_pv[idx],
-        egc_size_index=egc[idx],
-        neutral_size_index=neutral_size[idx],
-        terminal_max=build.terminal_max[idx],
-        splice_ends=build.splice_ends[idx],
+        egc_size_index=egc[idx].astype(np.int16),
+        neutral_size_index=neutral_size[idx].astype(np.int16),
+        terminal_max=build.terminal_max[idx].astype(np.int16),
+        splice_ends=build.splice_ends[idx].astype(np.int8),
         termination_capex=np.where(build.ok, build.termination_capex, 0.0)[idx],
-        raceway_size=build.raceway_size[idx],
+        raceway_size=build.raceway_size[idx].astype(np.int16),
         raceway_capex=np.where(build.ok, build.raceway_capex, 0.0)[idx],
-        build_fail=np.where(build.terminal_ok, np.where(build.raceway_ok, 0, 2), 1)[idx],
-        route_count=route_count[idx],
+        build_fail=np.where(build.terminal_ok, np.where(build.raceway_ok, 0, 2), 1)[idx]
+        .astype(np.int8),
+        route_count=route_count[idx].astype(np.int32),
         route_top=route_top[idx],
         loop_ohm=loop[idx],
     )
