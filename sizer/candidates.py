@@ -26,7 +26,7 @@ from sizer.conductors import (
     operating_temperature_c,
 )
 from sizer.drop import drop_pct, transformer_regulation_pct
-from sizer.errors import ScenarioError
+from sizer.errors import InternalError, ScenarioError
 from sizer.faults import default_device, pe_impedance_ohm
 from sizer.model import CandidateTable, Segment
 from sizer.rules.ampacity import (
@@ -140,6 +140,14 @@ def installed_cost(prices: PriceList, length_m: np.ndarray, conductors: np.ndarr
     ``neutral_size`` (size index per row, −1: none of its own) prices a three-phase
     run's neutral at its own size: one of the ``conductors`` is then that size.
     """
+    return length_m * sets * cost_per_set_m(prices, conductors, mat, size, egc,
+                                            neutral_size=neutral_size)
+
+
+def cost_per_set_m(prices: PriceList, conductors: np.ndarray, mat: np.ndarray,
+                   size: np.ndarray, egc: np.ndarray, *,
+                   neutral_size: np.ndarray | None = None) -> np.ndarray:
+    """``installed_cost`` of one parallel set per metre of run (money/m)."""
     def pick(table_cu: np.ndarray, table_al: np.ndarray, k: np.ndarray) -> np.ndarray:
         return np.where(mat == 0, table_cu[k], table_al[k])
 
@@ -151,7 +159,7 @@ def installed_cost(prices: PriceList, length_m: np.ndarray, conductors: np.ndarr
         own = neutral_size >= 0
         per_set = per_set + np.where(
             own, pick(cu, al, np.where(own, neutral_size, 0)) - phase_cost, 0.0)
-    return length_m * sets * per_set
+    return per_set
 
 
 def segment_arrays(
@@ -617,15 +625,197 @@ def _build_slice(
     neutral_a2: np.ndarray | None,
     pe_fault: PeFaultTerms | None,
 ) -> tuple[CandidateTable, LocalDiagnosis]:
-    """``build_candidates`` for a slice of whole runs (``sa`` and the arrays cut to it)."""
+    """``build_candidates`` for a slice of whole runs (``sa`` and the arrays cut to it).
+
+    Runs alike in all but their length (twenty branch circuits of one panel, say) have
+    the same rows, ampacities, temperatures, EGCs, terminations and raceways: those are
+    worked out once per kind of run (``_length_free``, on one run of each kind) and
+    copied to the others; drop, resistance, cost, loss and loop are then worked out for
+    every row with its own length, by the same expressions as for a run alone.
+    """
     n = len(segments)
     seg, mat, size, sets, own = _grid(sa, len(catalogue.sizes))
     seg, mat, size, sets, own, band = _route_bands(sa, (seg, mat, size, sets, own), len(tops))
+    neutral = np.zeros(n) if neutral_a is None else np.asarray(neutral_a, dtype=float)
+    if loss_a2 is None:
+        loss_a2 = np.where(sa.phases == 1, 2.0, 3.0) * sa.current_a ** 2
+    loss_a2 = np.asarray(loss_a2, dtype=float)
+    adiabatic_seg = adiabatic_pe_runs(segments, profile)
+    # the adiabatic PE depends on the run's length: such runs are a kind of their own
+    kind = _run_kinds(sa, (neutral, loss_a2, neutral_a2, loss_pv_per_w), adiabatic_seg)
+    tpl, tmap = _template_rows(seg, kind)
+    free = _length_free(segments, sa, tops, profile, catalogue, prices, pe_fault, neutral,
+                        adiabatic_seg, seg[tpl], mat[tpl], size[tpl], sets[tpl], band[tpl])
+
+    def copied(name: str, rows: np.ndarray | slice = slice(None)) -> np.ndarray:
+        return free[name][tmap[rows]]
+
+    valid, ampacity, code_ok = copied("valid"), copied("ampacity"), copied("code_ok")
+    r_m, x_m = copied("r_m"), copied("x_m")
+    route_count, route_top = copied("route_count"), copied("route_top")
+    current = sa.current_a[seg]
+    length = sa.length_m[seg]
+    vd = drop_pct(current, length, r_m, x_m, sa.power_factor[seg], sa.phases[seg],
+                  sa.voltage_v[seg], sets)
+    drop_ok = vd <= sa.own_limit_pct[seg] + 1e-12
+
+    pinned = (sa.pin_material[seg] >= 0) & own
+    keep = code_ok & drop_ok & own & (route_count <= route_top)
+    if keep_pins:
+        keep |= pinned & valid
+
+    carries, protected = copied("carries"), copied("protected")
+    broken = {"ampacity": ~carries, "protection": carries & ~protected,
+              "small-conductor limit": ~copied("small_ok"),
+              parallel_rule_name(profile): ~copied("parallel_ok"),
+              "own voltage-drop limit": ~drop_ok}
+    diagnosis = _diagnose(n, seg, mat, size, sets, ampacity, vd, code_ok & own, pinned,
+                          broken, catalogue)
+    del broken, carries, protected, drop_ok, valid, code_ok, r_m, x_m, current
+
+    # The rows that cannot be kept have served the diagnosis: the rest of the work runs
+    # on the survivors only.
+    alive = np.flatnonzero(keep)
+    at = tmap[alive]
+    seg, mat, size, sets = seg[alive], mat[alive], size[alive], sets[alive]
+    length, vd, pinned = length[alive], vd[alive], pinned[alive]
+    route_count, route_top, ampacity = route_count[alive], route_top[alive], ampacity[alive]
+    del keep, own, band
+
+    def taken(name: str) -> np.ndarray:
+        return free[name][at]
+
+    egc_ok = taken("egc_ok")
+    keep = ~taken("neutral_missing")
+    build = BuildRows(*(taken(f"build_{f.name}") for f in fields(BuildRows)))
+    diagnosis = replace(diagnosis, build_limits=_build_limits(
+        n, seg, mat, size, sets, keep & egc_ok, build, profile, catalogue, sa))
+    # A pinned conductor stays for ``sizer check`` even when it cannot be landed or drawn
+    # in: check reports it as a violation.
+    keep &= build.ok | (pinned & keep_pins)
+
+    # --- money, loss and loop, each row at its own length --------------------------------
+    assert build.raceways is not None and build.raceway_each is not None
+    assert build.trench_share is not None
+    raceway_capex = raceway_capex_of(
+        length, build.raceways, build.raceway_each, build.trench_share,
+        prices.raceways.trench_per_m if prices.raceways is not None else 0.0)
+    termination_capex = np.where(build.ok, build.termination_capex, 0.0)
+    raceway_capex = np.where(build.ok, raceway_capex, 0.0)
+    capex = length * sets * taken("cost_per_set_m") + termination_capex + raceway_capex
+    keep &= np.isfinite(capex) & egc_ok
+
+    r_m = taken("r_m")
+    r_ohm = r_m * length / sets
+    x_ohm = taken("x_m") * length / sets
+    loss_w = loss_a2[seg] * r_ohm
+    if neutral_a2 is not None:
+        # The neutral's I²R at its own size (same temperature as the phases: a stated
+        # simplification; it carries less current and runs cooler).
+        own_neutral = sa.own_neutral[seg]
+        other = taken("neutral_other")
+        r_n = r_ohm.copy()
+        r_n[other] = taken("r_neutral_m")[other] * length[other] / sets[other]
+        loss_w = loss_w + np.where(own_neutral, np.asarray(neutral_a2, float)[seg] * r_n, 0.0)
+    loss_pv = loss_w * _per_row(loss_pv_per_w, seg)
+    loop = loop_of(taken("loop_line_m"), taken("loop_pe_m"), length, sets)
+
+    idx = np.flatnonzero(keep)
+    counts = np.bincount(seg[idx], minlength=n)
+    offsets = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+    at = at[idx]
+    # Codes and counts in the narrowest integer type that holds them: a third less
+    # memory per row than int64 throughout, with the same values (a catalogue has far
+    # fewer than 2**15 sizes; runs fewer than 2**31).
+    table = CandidateTable(
+        offsets=offsets,
+        segment=seg[idx].astype(np.int32),
+        material=mat[idx].astype(np.int8),
+        size_index=size[idx].astype(np.int16),
+        sets=sets[idx].astype(np.int16),
+        ampacity_a=ampacity[idx],
+        ampacity_before_a=free["ampacity_before"][at],
+        temp_c=free["temp_c"][at],
+        r_ohm=r_ohm[idx],
+        x_ohm=x_ohm[idx],
+        vd_pct=vd[idx],
+        loss_w=loss_w[idx],
+        capex=capex[idx],
+        loss_pv=loss_pv[idx],
+        egc_size_index=free["egc"][at].astype(np.int16),
+        neutral_size_index=free["neutral_size"][at].astype(np.int16),
+        terminal_max=build.terminal_max[idx].astype(np.int16),
+        splice_ends=build.splice_ends[idx].astype(np.int8),
+        termination_capex=termination_capex[idx],
+        raceway_size=build.raceway_size[idx].astype(np.int16),
+        raceway_capex=raceway_capex[idx],
+        build_fail=np.where(build.terminal_ok, np.where(build.raceway_ok, 0, 2), 1)[idx]
+        .astype(np.int8),
+        route_count=route_count[idx].astype(np.int32),
+        route_top=route_top[idx],
+        loop_ohm=loop[idx],
+    )
+    return table, diagnosis
+
+
+def _run_kinds(sa: SegmentArrays, per_segment: tuple[float | np.ndarray | None, ...],
+               by_length: np.ndarray) -> np.ndarray:
+    """Per segment, its kind: runs with every input but the length equal share a kind.
+
+    ``per_segment`` are further inputs (one value, an array per segment, or None);
+    runs flagged ``by_length`` share a kind only with runs of their very length.
+    """
+    n = sa.length_m.shape[0]
+    columns = [np.where(by_length, sa.length_m, 0.0)[:, None]]
+    for f in fields(sa):
+        value = getattr(sa, f.name)
+        if f.name == "length_m" or value is None:
+            continue
+        if f.name == "installation":
+            value = np.unique(np.asarray(value, dtype=object).astype(str),
+                              return_inverse=True)[1]
+        columns.append(np.asarray(value, dtype=float).reshape(n, -1))
+    for value in per_segment:
+        if value is not None and np.ndim(value) > 0:
+            columns.append(np.asarray(value, dtype=float).reshape(n, -1))
+    # equal bits, equal kind (no tolerance: a kind's rows are copied, not approximated)
+    bits = np.ascontiguousarray(np.concatenate(columns, axis=1)).view(np.uint64)
+    _, kind = np.unique(bits, axis=0, return_inverse=True)
+    return kind.ravel().astype(np.int64)
+
+
+def _template_rows(seg: np.ndarray, kind: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The grid rows of one run of each kind, and for every row its template's position.
+
+    Rows of a run are consecutive and a kind's runs have the same grid (the grid depends
+    only on inputs the kind compares), so row j of a run copies row j of its template.
+    """
+    n = kind.shape[0]
+    counts = np.bincount(seg, minlength=n)
+    start = np.concatenate([[0], np.cumsum(counts)[:-1]])
+    _, first = np.unique(kind, return_index=True)
+    template = first[kind]                               # per segment: its kind's template
+    if not np.array_equal(counts, counts[template]):
+        raise InternalError("runs of one kind have grids of different lengths")
+    is_template = np.zeros(n, dtype=bool)
+    is_template[first] = True
+    rows = np.flatnonzero(is_template[seg])
+    position = np.zeros(n, dtype=np.int64)
+    position[first] = np.searchsorted(rows, start[first])
+    tmap = position[template[seg]] + (np.arange(seg.shape[0]) - start[seg])
+    return rows, tmap
+
+
+def _length_free(segments, sa, tops, profile, catalogue, prices, pe_fault, neutral_a,
+                 adiabatic_seg, seg, mat, size, sets, band) -> dict[str, np.ndarray]:
+    """Every column of the given rows that does not depend on the run's length."""
+    n = len(segments)
+    out: dict[str, np.ndarray] = {}
     route = sa.route[seg] if sa.route is not None else np.full(seg.shape, -1)
     ccc = sa.per_set_ccc if sa.per_set_ccc is not None else np.where(sa.phases == 1, 2, 3)
     in_route = route >= 0
-    route_count = np.where(in_route, sets * ccc[seg], 0)
-    route_top = np.where(in_route, tops[np.maximum(band, 0)], np.inf)
+    out["route_count"] = np.where(in_route, sets * ccc[seg], 0)
+    route_top = out["route_top"] = np.where(in_route, tops[np.maximum(band, 0)], np.inf)
     inst_names = sorted(set(sa.installation))
     inst_code = np.array([inst_names.index(name) for name in sa.installation], dtype=np.int64)
 
@@ -639,34 +829,36 @@ def _build_slice(
                             grouped_conductors(sa.grouping[seg], sets, together[seg]))
     amp_set, before_set, thermal_set, amp_rows = _ampacity_lookup(
         profile, sa, inst_names, inst_code, seg, mat, size, len(catalogue.sizes), row_grouping)
-    ampacity = amp_set * sets
+    ampacity = out["ampacity"] = amp_set * sets
+    out["ampacity_before"] = before_set * sets
     ocpd = sa.ocpd_a[seg]
 
-    valid = np.isfinite(ampacity) & (ampacity > 0)
+    valid = out["valid"] = np.isfinite(ampacity) & (ampacity > 0)
     # NEC 210.19(A)(1)/215.2(A)(1): the two tests apart (motors: 430.22/430.24 in both).
-    carries = valid & carries_load(before_set * sets, ampacity, sa.required_a[seg],
-                                   sa.required_adjusted_a[seg])
+    carries = out["carries"] = valid & carries_load(before_set * sets, ampacity,
+                                                    sa.required_a[seg],
+                                                    sa.required_adjusted_a[seg])
     motor = sa.motor_overload[seg]
     # 240.4(G): a motor branch's conductors are protected by the overload relay; the
     # 430.52 device may exceed their ampacity and 240.4(D) does not apply. IEC 60364-4-43
     # overload coordination rates the device at a share of Iz (overload_factor).
-    protected = motor | protects(
+    protected = out["protected"] = motor | protects(
         profile, np.where(valid, ampacity, 0.0) * sa.overload_factor[seg], ocpd,
         next_size_up_allowed(profile, sa.secondary[seg]))
-    small_ok = motor | _by_material(mat, lambda m, mask: small_conductor_ok(
+    small_ok = out["small_ok"] = motor | _by_material(mat, lambda m, mask: small_conductor_ok(
         profile, MATERIALS[m], size[mask], ocpd[mask]), dtype=bool)
-    parallel_ok = (min_parallel_ok(profile, size, sets) if sa.min_parallel is None
-                   else (sets == 1) | (size >= sa.min_parallel[seg]))
-    code_ok = carries & protected & small_ok & parallel_ok
+    parallel_ok = out["parallel_ok"] = (
+        min_parallel_ok(profile, size, sets) if sa.min_parallel is None
+        else (sets == 1) | (size >= sa.min_parallel[seg]))
+    code_ok = out["code_ok"] = carries & protected & small_ok & parallel_ok
 
-    # --- temperature, impedance, drop ---------------------------------------------------
-    current = sa.current_a[seg]
-    temp_c = operating_temperature_c(
-        sa.ambient_c[seg], sa.insulation_c[seg], current,
+    # --- temperature and impedance per metre ----------------------------------------------
+    temp_c = out["temp_c"] = operating_temperature_c(
+        sa.ambient_c[seg], sa.insulation_c[seg], sa.current_a[seg],
         np.where(valid, thermal_set * sets, np.inf),
     )
-    r_m = np.empty(seg.shape[0])
-    x_m = np.empty(seg.shape[0])
+    r_m = out["r_m"] = np.empty(seg.shape[0])
+    x_m = out["x_m"] = np.empty(seg.shape[0])
     imp_code = inst_code[seg] * 2 + mat
     for code in np.unique(imp_code).tolist():
         mask = imp_code == code
@@ -674,44 +866,12 @@ def _build_slice(
             catalogue, MATERIALS[code % 2], size[mask], temp_c[mask],
             inst_names[code // 2], profile.frequency_hz,
         )
-    length = sa.length_m[seg]
-    vd = drop_pct(current, length, r_m, x_m, sa.power_factor[seg], sa.phases[seg],
-                  sa.voltage_v[seg], sets)
-    drop_ok = vd <= sa.own_limit_pct[seg] + 1e-12
-
-    pinned = (sa.pin_material[seg] >= 0) & own
-    keep = code_ok & drop_ok & own & (route_count <= route_top)
-    if keep_pins:
-        keep |= pinned & valid
-
-    broken = {"ampacity": ~carries, "protection": carries & ~protected,
-              "small-conductor limit": ~small_ok, parallel_rule_name(profile): ~parallel_ok,
-              "own voltage-drop limit": ~drop_ok}
-    diagnosis = _diagnose(n, seg, mat, size, sets, ampacity, vd, code_ok & own, pinned,
-                          broken, catalogue)
 
     # --- EGC: by the device, grown with the phase conductors (NEC 250.122(B)) -----------
     # "Increased in size" is measured from the smallest compliant conductor of the same
     # segment and material: the fewest circular mils in total over its parallel sets.
     min_size, min_sets = _smallest_compliant(seg, mat, size, sets, code_ok,
                                              catalogue.area_mm2, n)
-    # The rows that cannot be kept have served the diagnosis: the rest of the work (EGC,
-    # neutral, terminations, raceways, prices, fault loop) runs on the survivors only.
-    alive = np.flatnonzero(keep)
-    seg, mat, size, sets = seg[alive], mat[alive], size[alive], sets[alive]
-    valid, ampacity, before_set = valid[alive], ampacity[alive], before_set[alive]
-    ocpd, temp_c, r_m, x_m, vd = ocpd[alive], temp_c[alive], r_m[alive], x_m[alive], vd[alive]
-    length, imp_code = length[alive], imp_code[alive]
-    route_count, route_top = route_count[alive], route_top[alive]
-    pinned, keep = pinned[alive], keep[alive]
-    # the whole grid's masks go now: they are most of the peak memory
-    del (broken, carries, protected, small_ok, parallel_ok, code_ok, drop_ok, own, band,
-         route, in_route, row_grouping, amp_set, thermal_set, current, motor)
-    grid_amp_rows = amp_rows
-
-    def alive_amp_rows(rows: np.ndarray) -> np.ndarray:
-        return grid_amp_rows(alive[rows])
-
     pair = seg * 2 + mat
     # cec: bonding conductor by the ampacity of the run (CEC Table 16), not the device
     egc_key = (np.where(valid, ampacity, np.nan) if profile.egc_rule == "conductor_ampacity"
@@ -725,7 +885,7 @@ def _build_slice(
     if service.any() and profile.service_bonding:
         egc[service] = _by_material(mat[service], lambda m, mask: bonding_jumper_size_index(
             profile, MATERIALS[m], size[service][mask]), dtype=np.int64)
-    adiabatic = adiabatic_pe_runs(segments, profile)[seg] & ~service
+    adiabatic = adiabatic_seg[seg] & ~service
     if adiabatic.any():
         if pe_fault is None:
             raise ValueError("the adiabatic PE rule needs the earth-fault terms (pe_fault)")
@@ -733,88 +893,34 @@ def _build_slice(
         egc[rows] = adiabatic_pe_size_index(profile, catalogue, prices, segments, sa,
                                             inst_names, inst_code, seg[rows], mat[rows],
                                             size[rows], sets[rows], pe_fault)
-    egc_ok = egc >= 0
-    egc = np.where(egc_ok, egc, 0)
+    out["egc_ok"] = egc >= 0
+    egc = out["egc"] = np.where(egc >= 0, egc, 0)
 
     # --- the neutral of a three-phase four-wire run: its own size -------------------------
-    neutral_size = neutral_size_index(
-        profile.name, catalogue, sa, seg, mat, size, sets, egc,
-        np.zeros(n) if neutral_a is None else np.asarray(neutral_a, dtype=float),
-        alive_amp_rows)
+    neutral_size = neutral_size_index(profile.name, catalogue, sa, seg, mat, size, sets, egc,
+                                      neutral_a, amp_rows)
     own_neutral = sa.own_neutral[seg]
-    keep &= ~own_neutral | (neutral_size >= 0)
-    neutral_size = np.where(own_neutral & (neutral_size >= 0), neutral_size, size)
+    out["neutral_missing"] = own_neutral & (neutral_size < 0)
+    neutral_size = out["neutral_size"] = np.where(own_neutral & (neutral_size >= 0),
+                                                  neutral_size, size)
+    other = out["neutral_other"] = own_neutral & (neutral_size != size)
+    r_n = out["r_neutral_m"] = np.zeros(seg.shape[0])
+    for code in np.unique(imp_code[other]).tolist():
+        mask = other & (imp_code == code)
+        r_n[mask] = impedance_ohm_per_m(
+            catalogue, MATERIALS[code % 2], neutral_size[mask], temp_c[mask],
+            inst_names[code // 2], profile.frequency_hz)[0]
 
-    # --- what it takes to build: terminations and raceways ------------------------------
+    # --- what it takes to build, and its price per metre --------------------------------
     build = build_rows(profile, prices, sa, seg, mat, size, sets, egc)
-    diagnosis = replace(diagnosis, build_limits=_build_limits(
-        n, seg, mat, size, sets, keep & egc_ok, build, profile, catalogue, sa))
-    # A pinned conductor stays for ``sizer check`` even when it cannot be landed or drawn
-    # in: check reports it as a violation.
-    keep &= build.ok | (pinned & keep_pins)
-
-    # --- money --------------------------------------------------------------------------
-    capex = (installed_cost(prices, length, sa.conductors[seg], mat, size, sets, egc,
-                            neutral_size=np.where(own_neutral, neutral_size, -1))
-             + np.where(build.ok, build.termination_capex, 0.0)
-             + np.where(build.ok, build.raceway_capex, 0.0))
-    keep &= np.isfinite(capex) & egc_ok
-
-    r_ohm = r_m * length / sets
-    x_ohm = x_m * length / sets
-    if loss_a2 is None:
-        loss_a2 = np.where(sa.phases == 1, 2.0, 3.0) * sa.current_a ** 2
-    loss_w = np.asarray(loss_a2, dtype=float)[seg] * r_ohm
-    if neutral_a2 is not None:
-        # The neutral's I²R at its own size (same temperature as the phases: a stated
-        # simplification; it carries less current and runs cooler).
-        r_n = r_ohm.copy()
-        other = own_neutral & (neutral_size != size)
-        for code in np.unique(imp_code[other]).tolist():
-            mask = other & (imp_code == code)
-            r_n[mask] = impedance_ohm_per_m(
-                catalogue, MATERIALS[code % 2], neutral_size[mask], temp_c[mask],
-                inst_names[code // 2], profile.frequency_hz)[0] * length[mask] / sets[mask]
-        loss_w = loss_w + np.where(own_neutral, np.asarray(neutral_a2, float)[seg] * r_n, 0.0)
-    loss_pv = loss_w * _per_row(loss_pv_per_w, seg)
-    loop = fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc,
-                          sets, length)
-
-    idx = np.flatnonzero(keep)
-    counts = np.bincount(seg[idx], minlength=n)
-    offsets = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
-    # Codes and counts in the narrowest integer type that holds them: a third less
-    # memory per row than int64 throughout, with the same values (a catalogue has far
-    # fewer than 2**15 sizes; runs fewer than 2**31).
-    table = CandidateTable(
-        offsets=offsets,
-        segment=seg[idx].astype(np.int32),
-        material=mat[idx].astype(np.int8),
-        size_index=size[idx].astype(np.int16),
-        sets=sets[idx].astype(np.int16),
-        ampacity_a=ampacity[idx],
-        ampacity_before_a=(before_set * sets)[idx],
-        temp_c=temp_c[idx],
-        r_ohm=r_ohm[idx],
-        x_ohm=x_ohm[idx],
-        vd_pct=vd[idx],
-        loss_w=loss_w[idx],
-        capex=capex[idx],
-        loss_pv=loss_pv[idx],
-        egc_size_index=egc[idx].astype(np.int16),
-        neutral_size_index=neutral_size[idx].astype(np.int16),
-        terminal_max=build.terminal_max[idx].astype(np.int16),
-        splice_ends=build.splice_ends[idx].astype(np.int8),
-        termination_capex=np.where(build.ok, build.termination_capex, 0.0)[idx],
-        raceway_size=build.raceway_size[idx].astype(np.int16),
-        raceway_capex=np.where(build.ok, build.raceway_capex, 0.0)[idx],
-        build_fail=np.where(build.terminal_ok, np.where(build.raceway_ok, 0, 2), 1)[idx]
-        .astype(np.int8),
-        route_count=route_count[idx].astype(np.int32),
-        route_top=route_top[idx],
-        loop_ohm=loop[idx],
-    )
-    return table, diagnosis
+    for f in fields(BuildRows):
+        out[f"build_{f.name}"] = getattr(build, f.name)
+    out["cost_per_set_m"] = cost_per_set_m(prices, sa.conductors[seg], mat, size, egc,
+                                           neutral_size=np.where(own_neutral, neutral_size,
+                                                                 -1))
+    out["loop_line_m"], out["loop_pe_m"] = fault_loop_per_m(
+        profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc)
+    return out
 
 
 def _own_neutral(segments: tuple[Segment, ...], table: CandidateTable) -> np.ndarray | None:
@@ -862,6 +968,10 @@ class BuildRows:
     termination_capex: np.ndarray  # splices: ends × conductors × sets × price of one
     raceway_size: np.ndarray       # trade size or tray width index (-1: none)
     raceway_capex: np.ndarray      # raceways per set (tray per run) and trench, installed
+    # what raceway_capex is made of, per metre of run (``raceway_capex_of``)
+    raceways: np.ndarray | None = None      # raceways along the run (0: none priced)
+    raceway_each: np.ndarray | None = None  # price of one per metre (NaN: no size fits)
+    trench_share: np.ndarray | None = None  # share of the trench the run pays (0: none)
 
 
 def build_rows(profile: RuleProfile, prices: PriceList, sa: SegmentArrays, seg: np.ndarray,
@@ -906,7 +1016,9 @@ def build_rows(profile: RuleProfile, prices: PriceList, sa: SegmentArrays, seg: 
     term_capex = np.where(ends > 0, ends * conductors * sets * sold_splice, 0.0)
 
     race_size = np.full(rows, NO_RACEWAY, dtype=np.int64)
-    race_capex = np.zeros(rows)
+    race_count = np.zeros(rows, dtype=np.int64)
+    race_each = np.zeros(rows)
+    trench = np.zeros(rows)
     race_ok = np.ones(rows, dtype=bool)
     rules = profile.raceway
     if rules is not None:
@@ -944,16 +1056,24 @@ def build_rows(profile: RuleProfile, prices: PriceList, sa: SegmentArrays, seg: 
             race_ok[m] = k >= 0
             if priced is not None:
                 price = np.array([priced.price_per_m(kind, name) for name in names])
-                each = np.where(k >= 0, price[np.maximum(k, 0)], np.nan)
-                count = np.where(per_run == 1, 1, sets[m])
-                race_capex[m] = length[m] * count * each
+                race_each[m] = np.where(k >= 0, price[np.maximum(k, 0)], np.nan)
+                race_count[m] = np.where(per_run == 1, 1, sets[m])
         if priced is not None:
             in_trench = np.array([inst in rules.trench for inst in sa.installation])
             share = _trench_share(sa.route, in_trench)
-            race_capex = race_capex + np.where(in_trench[seg], length * priced.trench_per_m
-                                               * share[seg], 0.0)
+            trench = np.where(in_trench[seg], share[seg], 0.0)
+    trench_per_m = prices.raceways.trench_per_m if prices.raceways is not None else 0.0
     return BuildRows(term_ok & race_ok, term_ok, race_ok, term_max, ends, term_capex,
-                     race_size, race_capex)
+                     race_size, raceway_capex_of(length, race_count, race_each, trench,
+                                                 trench_per_m),
+                     race_count, race_each, trench)
+
+
+def raceway_capex_of(length_m: np.ndarray, raceways: np.ndarray, each: np.ndarray,
+                     trench_share: np.ndarray, trench_per_m: float) -> np.ndarray:
+    """Installed raceways (``raceways`` × price per metre) and trench share of each row."""
+    capex = np.where(raceways > 0, length_m * raceways * each, 0.0)
+    return capex + np.where(trench_share > 0, length_m * trench_per_m * trench_share, 0.0)
 
 
 def _trench_share(route: np.ndarray | None, in_trench: np.ndarray) -> np.ndarray:
@@ -1135,19 +1255,34 @@ def adiabatic_pe_ok(profile, catalogue, prices, segments, sa, inst_names, inst_c
 def fault_loop_ohm(profile, catalogue, sa, inst_names, inst_code, seg, mat, size, egc, sets,
                    length) -> np.ndarray:
     """Line + protective conductor impedance (complex ohm) of rows at the fault-loop temp."""
+    line_m, pe_m = fault_loop_per_m(profile, catalogue, sa, inst_names, inst_code, seg, mat,
+                                    size, egc)
+    return loop_of(line_m, pe_m, length, sets)
+
+
+def fault_loop_per_m(profile, catalogue, sa, inst_names, inst_code, seg, mat, size,
+                     egc) -> tuple[np.ndarray, np.ndarray]:
+    """Per metre of one set at the fault-loop temperature: the line's and the PE's Z (ohm/m)."""
     temp = loop_temperature_c(profile, sa.insulation_c)[seg]
-    loop = np.zeros(seg.shape[0], dtype=np.complex128)
+    line = np.zeros(seg.shape[0], dtype=np.complex128)
+    pe = np.zeros(seg.shape[0], dtype=np.complex128)
     imp_code = inst_code[seg] * 2 + mat
     for code in np.unique(imp_code).tolist():
         mask = imp_code == code
         material, inst = MATERIALS[code % 2], inst_names[code // 2]
         r, x = impedance_ohm_per_m(catalogue, material, size[mask], temp[mask], inst,
                                    profile.frequency_hz)
-        loop[mask] = ((r + 1j * x) * length[mask] / sets[mask]
-                      + pe_impedance_ohm(catalogue, material, egc[mask], sets[mask],
-                                         length[mask], temp[mask], inst,
-                                         profile.frequency_hz))
-    return loop
+        line[mask] = r + 1j * x
+        pe[mask] = pe_impedance_ohm(catalogue, material, egc[mask], 1, 1.0, temp[mask], inst,
+                                    profile.frequency_hz)
+    return line, pe
+
+
+def loop_of(line_per_m: np.ndarray, pe_per_m: np.ndarray, length_m: np.ndarray,
+            sets: np.ndarray) -> np.ndarray:
+    """Line + PE loop impedance (complex ohm) of runs of ``length_m`` in ``sets`` sets."""
+    return (line_per_m * length_m / sets
+            + pe_per_m * (np.asarray(length_m, dtype=float) / np.asarray(sets, dtype=float)))
 
 
 def _ampacity_lookup(profile, sa, inst_names, inst_code, seg, mat, size, n_sizes, row_grouping):
@@ -1250,19 +1385,26 @@ def parallel_rule_name(profile: RuleProfile) -> str:
 
 def _diagnose(n, seg, mat, size, sets, ampacity, vd, code_ok, pinned, broken,
               catalogue) -> LocalDiagnosis:
+    # Rows come segment by segment (the grid's order): per-segment reductions are
+    # reduceat over each segment's first row.
+    counts = np.bincount(seg, minlength=n)
+    has = counts > 0
+    start = (np.cumsum(counts) - counts)[has]
     best_amp = np.zeros(n)
-    np.maximum.at(best_amp, seg, np.where(np.isfinite(ampacity), ampacity, 0.0))
+    if seg.size:
+        best_amp[has] = np.maximum.reduceat(
+            np.where(np.isfinite(ampacity), ampacity, 0.0), start)
+        best_amp = np.maximum(best_amp, 0.0)
     best_drop = np.full(n, np.inf)
     labels = [""] * n
     if code_ok.any():
-        rows = np.flatnonzero(code_ok)
-        order = np.lexsort((vd[rows], seg[rows]))
-        rows = rows[order]
-        first = np.r_[True, seg[rows][1:] != seg[rows][:-1]]
+        best_drop[has] = np.minimum.reduceat(np.where(code_ok, vd, np.inf), start)
+        # the first row, in the grid's order, that gives its segment's best drop
+        rows = np.flatnonzero(code_ok & (vd == best_drop[seg]))
+        _, first = np.unique(seg[rows], return_index=True)
         for r in rows[first].tolist():
-            s = int(seg[r])
-            best_drop[s] = vd[r]
-            labels[s] = conductor_label(catalogue, int(mat[r]), int(size[r]), int(sets[r]))
+            labels[int(seg[r])] = conductor_label(catalogue, int(mat[r]), int(size[r]),
+                                                  int(sets[r]))
     fails = [""] * n
     for r in np.flatnonzero(pinned).tolist():
         fails[int(seg[r])] = " and ".join(name for name, bad in broken.items() if bad[r])

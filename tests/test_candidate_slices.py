@@ -78,3 +78,54 @@ def test_codes_are_narrow_integers(building, monkeypatch):
     assert table.segment.dtype == np.int32 and table.size_index.dtype == np.int16
     # the values still index every per-segment and per-size array the same way
     assert int(table.segment.max()) == table.offsets.size - 2
+
+
+def _alone(sa, per_segment, by_length):
+    """Every run a kind of its own: the table as if each run were built alone."""
+    return np.arange(sa.length_m.shape[0], dtype=np.int64)
+
+
+@pytest.mark.parametrize("name", ["kiln-hall.toml", "hollinmoor-campus.toml",
+                                  "kestrel-arena.toml", "building", "adiabatic"])
+def test_runs_alike_but_for_length_share_their_work(name, building, tmp_path, monkeypatch):
+    if name == "adiabatic":
+        # the adiabatic PE depends on the run's length: such runs must not share it
+        text = (SCENARIOS / "hollinmoor-campus.toml").read_text(encoding="utf-8")
+        path = tmp_path / "adiabatic.toml"
+        path.write_text(text.replace("[defaults]\n", '[defaults]\npe_rule = "adiabatic"\n', 1),
+                        encoding="utf-8")
+    else:
+        path = building if name == "building" else SCENARIOS / name
+    shared = prepare(load_scenario(path))
+    monkeypatch.setattr(candidates, "_run_kinds", _alone)
+    alone = prepare(load_scenario(path))
+    for f in fields(shared.table):
+        assert _same(getattr(shared.table, f.name), getattr(alone.table, f.name)), f.name
+    for f in fields(shared.local):
+        assert _same(getattr(shared.local, f.name), getattr(alone.local, f.name)), f.name
+
+
+def test_kinds_compare_everything_but_length(building):
+    prep = prepare(load_scenario(building))
+    sa = candidates.segment_arrays(prep.segments, prep.profile, prep.catalogue)
+    n = len(prep.segments)
+    kind = candidates._run_kinds(sa, (None,), np.zeros(n, dtype=bool))
+    assert kind.max() + 1 < n // 4                     # branch circuits share kinds
+    for k in np.unique(kind).tolist():
+        members = np.flatnonzero(kind == k)
+        for f in fields(sa):
+            value = getattr(sa, f.name)
+            if f.name == "length_m" or value is None:
+                continue
+            column = np.asarray(value, dtype=object)[members]
+            assert all(_same_value(v, column[0]) for v in column), f.name
+    # and a run compared by length shares its kind only with runs of its length
+    by_length = candidates._run_kinds(sa, (None,), np.ones(n, dtype=bool))
+    for k in np.unique(by_length).tolist():
+        assert len(set(sa.length_m[by_length == k].tolist())) == 1
+
+
+def _same_value(a, b) -> bool:
+    if isinstance(a, np.ndarray):
+        return bool(np.array_equal(a, b, equal_nan=a.dtype.kind in "fc"))
+    return bool(a == b or (a != a and b != b))
