@@ -39,6 +39,7 @@ from sizer.optimize import (
     prepare,
     trip_of_rows,
 )
+from sizer.parallel import ordered_map, workers
 from sizer.spare import has_spare, without_spare
 from sizer.stages import count, stage
 from sizer.topology import Topology
@@ -95,17 +96,27 @@ def frontier(prep: Prepared, points: int = 12, *, engine: str = "auto", solver: 
     found: dict[tuple[int, ...], FrontierPoint] = {}
     # Weights from pure capex (0) to losses weighing 50× their present value.
     weights = [0.0, *list(np.geomspace(0.05, 50.0, max(points - 1, 1)))]
-    for i, w in enumerate(weights):
-        progress(f"frontier: weight {w:.3g} ({i + 1}/{len(weights)})")
+    progress(f"frontier: {len(weights)} loss weights, {min(workers(), len(weights))} "
+             f"at a time")
+
+    def weighted(w: float) -> tuple[tuple[int, ...], bool] | None:
         problem = build_problem(prep, Objective.LIFECYCLE, loss_weight=float(w))
         sol = solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
         if not sol.has_solution:
+            return None
+        return tuple(int(r) for r in sol.choice), sol.proven_optimal
+
+    # The weights are independent solves: side by side where the machine has the cores.
+    for w, answer in zip(weights, ordered_map(weighted, [float(w) for w in weights]),
+                         strict=True):
+        if answer is None:
             return []
-        key = tuple(int(r) for r in sol.choice)
+        key, proven = answer
         if key not in found:
-            found[key] = FrontierPoint(float(t.capex[sol.choice].sum()),
-                                       float(t.loss_pv[sol.choice].sum()), "weighted sum",
-                                       float(w), sol.proven_optimal, key)
+            chosen = np.asarray(key, dtype=np.int64)
+            found[key] = FrontierPoint(float(t.capex[chosen].sum()),
+                                       float(t.loss_pv[chosen].sum()), "weighted sum",
+                                       float(w), proven, key)
     pts = sorted(found.values(), key=lambda p: (p.capex, p.loss_pv))
     # The gap-filling MILP is worth its time on small trees only; on large ones the
     # weighted sums by the tree engine are the frontier.
@@ -130,16 +141,20 @@ def frontier(prep: Prepared, points: int = 12, *, engine: str = "auto", solver: 
 
 
 def frontier_designs(prep: Prepared, points: Sequence[FrontierPoint]) -> list[Design]:
-    """Each frontier point as a design, checked by the same load flow as the optimum."""
-    out = []
-    for p in points:
+    """Each frontier point as a design, checked by the same load flow as the optimum.
+
+    The points are independent: they are built and verified side by side where the
+    machine has the cores (``sizer.parallel``).
+    """
+    def verified(p: FrontierPoint) -> Design:
         choice = np.asarray(p.choice, dtype=np.int64)
         d = design_from_choice(prep, choice, objective="frontier",
                                status=DesignStatus.OPTIMAL if p.proven_optimal
                                else DesignStatus.TIME_LIMIT)
         choice = np.asarray(d.choice, dtype=np.int64)  # routes at their actual derating
-        out.append(with_verification(prep, d, choice, verify_design(prep, choice)))
-    return out
+        return with_verification(prep, d, choice, verify_design(prep, choice))
+
+    return ordered_map(verified, list(points))
 
 
 def _non_dominated(points: list[FrontierPoint]) -> list[FrontierPoint]:
@@ -588,38 +603,50 @@ def compare_options(prep: Prepared, *, engine: str = "auto", solver: str = "cbc"
     """
     known = {d.objective: d for d in solved if d.segments}
 
-    def solved_or_solve(objective: Objective) -> Design:
+    def solved_or_solve(objective: Objective) -> Design | Callable[[], Design]:
         if objective.value in known:
             return known[objective.value]
-        return solve_verified(prep, objective, engine=engine, solver=solver,
+        return lambda: solve_verified(prep, objective, engine=engine, solver=solver,
+                                      time_limit_s=time_limit_s)[0]
+
+    def all_copper_option() -> Design:
+        cu = prepare(all_copper(prep.scenario), prices=prep.prices)
+        return solve_verified(cu, Objective.LIFECYCLE, engine=engine, solver=solver,
                               time_limit_s=time_limit_s)[0]
 
-    out = []
-    progress("option: code minimum (least upfront cost)")
-    out.append(Option("code_minimum", "Code minimum (least upfront cost)",
-                      solved_or_solve(Objective.CAPEX)))
-    progress("option: lifecycle optimum")
-    out.append(Option("lifecycle", "Lifecycle optimum (upfront + losses)",
-                      solved_or_solve(Objective.LIFECYCLE)))
-    if any("Al" in n.cable.materials for n in prep.scenario.nodes if n.pin is None):
-        progress("option: all copper")
-        cu = prepare(all_copper(prep.scenario), prices=prep.prices)
-        out.append(Option("all_copper", "All copper, lifecycle optimum",
-                          solve_verified(cu, Objective.LIFECYCLE, engine=engine, solver=solver,
-                                         time_limit_s=time_limit_s)[0]))
-    if has_spare(prep.scenario):
-        progress("option: without the spare capacity")
+    def without_spare_option() -> Design:
         bare = prepare(without_spare(prep.scenario), prices=prep.prices)
-        out.append(Option("without_spare", "Lifecycle optimum without the spare capacity",
-                          solve_verified(bare, Objective.LIFECYCLE, engine=engine,
-                                         solver=solver, time_limit_s=time_limit_s)[0]))
-    if any(n.pin is not None for n in prep.scenario.nodes):
-        progress("option: the design as pinned")
+        return solve_verified(bare, Objective.LIFECYCLE, engine=engine, solver=solver,
+                              time_limit_s=time_limit_s)[0]
+
+    def pinned_option() -> Design:
         pinned = prepare(prep.scenario, keep_pins=True, prices=prep.prices)
-        design, _ = check_verified(pinned, engine=engine, solver=solver,
-                                   time_limit_s=time_limit_s)
-        out.append(Option("as_pinned", "Your pinned design (rest at least cost)", design))
-    return out
+        return check_verified(pinned, engine=engine, solver=solver,
+                              time_limit_s=time_limit_s)[0]
+
+    jobs: list[tuple[str, str, Design | Callable[[], Design]]] = [
+        ("code_minimum", "Code minimum (least upfront cost)",
+         solved_or_solve(Objective.CAPEX)),
+        ("lifecycle", "Lifecycle optimum (upfront + losses)",
+         solved_or_solve(Objective.LIFECYCLE))]
+    if any("Al" in n.cable.materials for n in prep.scenario.nodes if n.pin is None):
+        jobs.append(("all_copper", "All copper, lifecycle optimum", all_copper_option))
+    if has_spare(prep.scenario):
+        jobs.append(("without_spare", "Lifecycle optimum without the spare capacity",
+                     without_spare_option))
+    if any(n.pin is not None for n in prep.scenario.nodes):
+        jobs.append(("as_pinned", "Your pinned design (rest at least cost)", pinned_option))
+    # The options are independent solves: side by side where the machine has the cores.
+    progress(f"options: {', '.join(key for key, _, _ in jobs)}")
+
+    def run(k: int) -> Design:
+        job = jobs[k][2]
+        return job if isinstance(job, Design) else job()
+
+    todo = [k for k, (_, _, job) in enumerate(jobs) if not isinstance(job, Design)]
+    done = dict(zip(todo, ordered_map(run, todo), strict=True))
+    return [Option(key, title, done[k] if k in done else run(k))
+            for k, (key, title, _) in enumerate(jobs)]
 
 
 # --- an independent look at the answer ---------------------------------------------------

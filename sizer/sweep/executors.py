@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import os
 import signal
 import threading
 from collections import OrderedDict
@@ -19,6 +20,7 @@ from sizer.catalogue.prices import PriceList, RacewayPrices
 from sizer.errors import ScenarioError, SizerError
 from sizer.model import Design, DesignStatus, Scenario
 from sizer.optimize import Objective, Prepared, optimise, prepare
+from sizer.parallel import WORKERS_ENV
 from sizer.results import Results
 from sizer.sweep.points import prepared_at
 from sizer.workflow import solve_verified
@@ -187,6 +189,8 @@ def _pool_init(payload: _Payload) -> None:
     # A forked worker inherits the command line's SIGTERM handler; the pool stops its
     # workers with SIGTERM, which should simply end them.
     signal.signal(signal.SIGTERM, signal.SIG_DFL)
+    # the sweep's workers already fill the cores: their own solves run one at a time
+    os.environ[WORKERS_ENV] = "1"
     _worker_for(payload)
 
 

@@ -1,0 +1,61 @@
+"""Independent solves side by side on the machine's cores, results in the order asked.
+
+The frontier's weights and the report's options are separate solves of one prepared
+scenario. Where the platform forks, worker processes inherit the prepared scenario
+without copying or pickling it, and each returns its small answer; elsewhere, or with
+``SIZER_WORKERS=1``, the same calls run one after another. Either way the answers, and
+their order, are the same.
+"""
+
+from __future__ import annotations
+
+import multiprocessing
+import os
+from collections.abc import Callable, Sequence
+from typing import TypeVar
+
+__all__ = ["WORKERS_ENV", "ordered_map", "workers"]
+
+WORKERS_ENV = "SIZER_WORKERS"
+
+T = TypeVar("T")
+R = TypeVar("R")
+
+_task: Callable[[object], object] | None = None
+
+
+def workers() -> int:
+    """Processes to use: ``SIZER_WORKERS`` if set (at least 1), else the usable cores."""
+    given = os.environ.get(WORKERS_ENV, "").strip()
+    if given.isdigit() and int(given) >= 1:
+        return int(given)
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):
+        return max(1, os.cpu_count() or 1)
+
+
+def _run(item: object) -> object:
+    assert _task is not None
+    return _task(item)
+
+
+def ordered_map(func: Callable[[T], R], items: Sequence[T]) -> list[R]:
+    """``[func(x) for x in items]``, on forked worker processes when that can help.
+
+    ``func`` may close over large read-only data (a prepared scenario): the workers see
+    it by forking. Its answers must pickle. An exception in a worker is raised here.
+    """
+    n = min(workers(), len(items))
+    # a pool's own workers may not start processes: they run the calls themselves
+    if (n <= 1 or multiprocessing.current_process().daemon
+            or "fork" not in multiprocessing.get_all_start_methods()):
+        return [func(x) for x in items]
+    global _task
+    _task = func  # type: ignore[assignment]
+    try:
+        with multiprocessing.get_context("fork").Pool(n) as pool:
+            answers: list[R] = pool.map(_run, items, chunksize=1)  # type: ignore[arg-type]
+            return answers
+    finally:
+        _task = None
