@@ -402,12 +402,21 @@ def _append_rows(table: CandidateTable, src: np.ndarray,
     columns = {f.name: getattr(table, f.name) for f in fields(table)
                if isinstance(getattr(table, f.name), np.ndarray) and f.name != "offsets"
                and getattr(table, f.name).shape[:1] == (m,)}
-    copy = {name: (changes[name].astype(col.dtype, copy=False) if name in changes
-                   else col[src]) for name, col in columns.items()}
-    segment = np.concatenate([table.segment, copy["segment"]])
-    order = np.argsort(segment, kind="stable")
-    merged = {name: np.concatenate([col, copy[name]])[order] for name, col in columns.items()}
-    counts = np.bincount(segment[order], minlength=table.offsets.size - 1)
+    # Each copy goes after the last original row of its segment, copies of a segment in
+    # the order given: one mask of where the originals land serves every column.
+    seg_of_copy = table.segment[src]
+    order = np.argsort(seg_of_copy, kind="stable")
+    at = table.offsets[seg_of_copy[order] + 1] + np.arange(order.size)
+    original = np.ones(m + order.size, dtype=bool)
+    original[at] = False
+    merged = {}
+    for name, col in columns.items():
+        new = changes[name].astype(col.dtype, copy=False) if name in changes else col[src]
+        out = np.empty(m + order.size, dtype=col.dtype)
+        out[original] = col
+        out[at] = new[order]
+        merged[name] = out
+    counts = np.diff(table.offsets) + np.bincount(seg_of_copy, minlength=table.offsets.size - 1)
     offsets = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
     return replace(table, offsets=offsets, **merged)  # type: ignore[arg-type]
 

@@ -329,42 +329,57 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
     cost_year = loss_w * prep.runs.annual_cost_per_w(prep.economics)
     results = []
     race = prep.profile.raceway
+    sizes = cat.sizes
+    n = len(prep.segments)
+
+    # Columns of the chosen rows as Python lists: one conversion per column, not one per
+    # value (the same numbers).
+    def column(values: np.ndarray | None, default: float | int) -> list[Any]:
+        return [default] * n if values is None else values[choice].tolist()
+
+    material, size_k, sets = column(t.material, 0), column(t.size_index, 0), column(t.sets, 1)
+    egc_k, ampacity = column(t.egc_size_index, 0), column(t.ampacity_a, 0.0)
+    r_ohm, x_ohm, capex = column(t.r_ohm, 0.0), column(t.x_ohm, 0.0), column(t.capex, 0.0)
+    loss_w, loss_pv, temp = column(t.loss_w, 0.0), column(t.loss_pv, 0.0), column(t.temp_c, 0.0)
+    top_k, ends = column(t.terminal_max, -1), column(t.splice_ends, 0)
+    term_capex, race_capex = column(t.termination_capex, 0.0), column(t.raceway_capex, 0.0)
+    race_k, pe_step = column(t.raceway_size, -1), column(t.pe_step, 0)
+    route_top = column(t.route_top, 0.0)
+    vd_list, path_list = vd.tolist(), path.tolist()
+    operating, kwh_list, cost_list = (prep.runs.operating_a.tolist(), kwh.tolist(),
+                                      cost_year.tolist())
+    ids = [node.id for node in prep.scenario.nodes]
     for s, seg in enumerate(prep.segments):
         r = int(choice[s])
-        top = -1 if t.terminal_max is None else int(t.terminal_max[r])
-        ends = 0 if t.splice_ends is None else int(t.splice_ends[r])
-        term_capex = 0.0 if t.termination_capex is None else float(t.termination_capex[r])
-        race_capex = 0.0 if t.raceway_capex is None else float(t.raceway_capex[r])
-        race_k = -1 if t.raceway_size is None else int(t.raceway_size[r])
-        parent_id = (prep.scenario.nodes[seg.parent_index].id if seg.parent_index >= 0
+        parent_id = (ids[seg.parent_index] if seg.parent_index >= 0
                      else prep.scenario.source.id)
         results.append(SegmentResult(
             id=seg.id, parent=parent_id, kind=seg.kind,
-            material=MATERIALS[int(t.material[r])],
-            size=cat.sizes[int(t.size_index[r])],
-            sets=int(t.sets[r]),
-            egc=None if service[s] else cat.sizes[int(t.egc_size_index[r])],
-            bonding_jumper=cat.sizes[int(t.egc_size_index[r])] if service[s] else None,
+            material=MATERIALS[material[s]],
+            size=sizes[size_k[s]],
+            sets=sets[s],
+            egc=None if service[s] else sizes[egc_k[s]],
+            bonding_jumper=sizes[egc_k[s]] if service[s] else None,
             length_m=seg.length_m, current_a=seg.current_a,
-            ampacity_a=float(t.ampacity_a[r]), vd_pct=float(vd[s]),
-            path_vd_pct=float(path[s]), r_ohm=float(t.r_ohm[r]), x_ohm=float(t.x_ohm[r]),
-            ocpd_a=seg.ocpd_a, capex=float(t.capex[r]), loss_kw=float(t.loss_w[r]) / 1e3,
-            loss_pv=float(t.loss_pv[r]), temp_c=float(t.temp_c[r]),
+            ampacity_a=ampacity[s], vd_pct=vd_list[s],
+            path_vd_pct=path_list[s], r_ohm=r_ohm[s], x_ohm=x_ohm[s],
+            ocpd_a=seg.ocpd_a, capex=capex[s], loss_kw=loss_w[s] / 1e3,
+            loss_pv=loss_pv[s], temp_c=temp[s],
             voltage_v=seg.voltage_v, phases=seg.phases, pinned=seg.node.pin is not None,
-            operating_a=float(prep.runs.operating_a[s]), loss_kwh_per_year=float(kwh[s]),
-            loss_cost_per_year=float(cost_year[s]), **_phase_fields(prep, s, r),
-            terminal_max=cat.sizes[top] if top >= 0 else "",
-            termination="reducing splice" if ends > 0 else "direct",
+            operating_a=operating[s], loss_kwh_per_year=kwh_list[s],
+            loss_cost_per_year=cost_list[s], **_phase_fields(prep, s, r),
+            terminal_max=sizes[top_k[s]] if top_k[s] >= 0 else "",
+            termination="reducing splice" if ends[s] > 0 else "direct",
             raceway=(race.label(seg.node.cable.installation,
-                                1 if seg.node.cable.sets_in_one_raceway else int(t.sets[r]),
-                                race_k)
+                                1 if seg.node.cable.sets_in_one_raceway else sets[s],
+                                race_k[s])
                      if race is not None else ""),
-            conductor_capex=float(t.capex[r]) - term_capex - race_capex,
-            termination_capex=term_capex, raceway_capex=race_capex,
+            conductor_capex=capex[s] - term_capex[s] - race_capex[s],
+            termination_capex=term_capex[s], raceway_capex=race_capex[s],
             route=seg.node.route,
-            route_conductors=(int(min(t.route_top[r], 10**6))
+            route_conductors=(int(min(route_top[s], 10**6))
                               if seg.node.route and t.route_top is not None else 0),
-            pe_step=0 if t.pe_step is None else int(t.pe_step[r]),
+            pe_step=pe_step[s],
             curve=_curve_of(prep, s, r),
         ))
     totals = Totals(
