@@ -619,6 +619,7 @@ def build_candidates(
     per_segment = segment_combinations(sa, len(catalogue.sizes), len(tops))
     check_table_fits(sa, len(catalogue.sizes), len(tops), file)
     parts = []
+    with_routes = sa.route is not None and bool(np.any(sa.route >= 0))
     for lo, hi in _slices(sa, per_segment, SLICE_COMBINATIONS):
         def cut(values: np.ndarray | None, lo: int = lo, hi: int = hi) -> np.ndarray | None:
             return None if values is None else np.asarray(values)[lo:hi]
@@ -629,7 +630,8 @@ def build_candidates(
             neutral_a2=cut(neutral_a2),
             pe_fault=None if pe_fault is None else replace(
                 pe_fault, upstream_ohm=pe_fault.upstream_ohm[lo:hi],
-                u0_v=pe_fault.u0_v[lo:hi], time_s=pe_fault.time_s[lo:hi])))
+                u0_v=pe_fault.u0_v[lo:hi], time_s=pe_fault.time_s[lo:hi]),
+            with_routes=with_routes))
     return _joined(parts)
 
 
@@ -647,8 +649,11 @@ def _build_slice(
     neutral_a: np.ndarray | None,
     neutral_a2: np.ndarray | None,
     pe_fault: PeFaultTerms | None,
+    with_routes: bool,
 ) -> tuple[CandidateTable, LocalDiagnosis]:
     """``build_candidates`` for a slice of whole runs (``sa`` and the arrays cut to it).
+
+    ``with_routes``: the tree has shared routes (the route columns are kept).
 
     Runs alike in all but their length (twenty branch circuits of one panel, say) have
     the same rows, ampacities, temperatures, EGCs, terminations and raceways: those are
@@ -774,8 +779,9 @@ def _build_slice(
         raceway_capex=raceway_capex[idx],
         build_fail=np.where(build.terminal_ok, np.where(build.raceway_ok, 0, 2), 1)[idx]
         .astype(np.int8),
-        route_count=route_count[idx].astype(np.int32),
-        route_top=route_top[idx],
+        # without shared routes the two columns would say nothing (0 and inf throughout)
+        route_count=route_count[idx].astype(np.int32) if with_routes else None,
+        route_top=route_top[idx] if with_routes else None,
         loop_ohm=loop[idx],
     )
     return table, diagnosis
