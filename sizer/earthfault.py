@@ -24,7 +24,7 @@ engines' work close to what it was.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, fields, replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -374,8 +374,7 @@ def with_larger_pe(segments: tuple[Segment, ...], profile: RuleProfile, catalogu
     if keep.size == 0:
         return table
     m = len(table)
-    step = np.zeros(m, dtype=np.int64) if table.pe_step is None else table.pe_step
-    table = replace(table, pe_step=step)
+    step = np.zeros(m, dtype=np.int8) if table.pe_step is None else table.pe_step
     src = rows[keep]
     changes = {
         "egc_size_index": egc[keep], "capex": capex[keep],
@@ -388,20 +387,20 @@ def with_larger_pe(segments: tuple[Segment, ...], profile: RuleProfile, catalogu
         "raceway_size": build.raceway_size[keep], "raceway_capex": build.raceway_capex[keep],
         "build_fail": np.zeros(keep.size, dtype=np.int64),
     }
-    return _append_rows(table, src, changes)
+    return _append_rows(table, src, changes, {"pe_step": step})
 
 
-def _append_rows(table: CandidateTable, src: np.ndarray,
-                 changes: dict[str, np.ndarray]) -> CandidateTable:
+def _append_rows(table: CandidateTable, src: np.ndarray, changes: dict[str, np.ndarray],
+                 added: dict[str, np.ndarray]) -> CandidateTable:
     """The table plus copies of rows ``src`` with the columns in ``changes`` replaced.
 
-    Columns the table does not have (None) stay absent. Rows of a segment stay
-    together, the originals first (a stable order).
+    ``added`` are columns the table gains (a value for every original row). Columns the
+    table does not have (None) stay absent. Rows of a segment stay together, the
+    originals first (a stable order). The table passed in is taken over (left empty):
+    its columns are let go one by one as they are copied, so that at most one column
+    exists twice.
     """
     m = len(table)
-    columns = {f.name: getattr(table, f.name) for f in fields(table)
-               if isinstance(getattr(table, f.name), np.ndarray) and f.name != "offsets"
-               and getattr(table, f.name).shape[:1] == (m,)}
     # Each copy goes after the last original row of its segment, copies of a segment in
     # the order given: one mask of where the originals land serves every column.
     seg_of_copy = table.segment[src]
@@ -409,16 +408,20 @@ def _append_rows(table: CandidateTable, src: np.ndarray,
     at = table.offsets[seg_of_copy[order] + 1] + np.arange(order.size)
     original = np.ones(m + order.size, dtype=bool)
     original[at] = False
-    merged = {}
-    for name, col in columns.items():
+    counts = np.diff(table.offsets) + np.bincount(seg_of_copy, minlength=table.offsets.size - 1)
+    fields_of = {**table.hand_over(), **added}
+    fields_of["offsets"] = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+    for name in list(fields_of):
+        col = fields_of[name]
+        if name == "offsets" or not isinstance(col, np.ndarray) or col.shape[:1] != (m,):
+            continue
         new = changes[name].astype(col.dtype, copy=False) if name in changes else col[src]
         out = np.empty(m + order.size, dtype=col.dtype)
         out[original] = col
         out[at] = new[order]
-        merged[name] = out
-    counts = np.diff(table.offsets) + np.bincount(seg_of_copy, minlength=table.offsets.size - 1)
-    offsets = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
-    return replace(table, offsets=offsets, **merged)  # type: ignore[arg-type]
+        fields_of[name] = out
+        del col, new
+    return CandidateTable(**fields_of)
 
 
 # --- another miniature-breaker curve --------------------------------------------------------
@@ -504,12 +507,12 @@ def with_curves(segments: tuple[Segment, ...], rule: FaultRule, table: Candidate
     if rows.size == 0:
         return table
     m = len(table)
-    table = replace(table, curve=np.full(m, "", dtype="<U1"),
-                    trip_a=np.asarray(trip_a, dtype=float)[table.segment])
     trip = np.array([trip_current_a(c, segments[s].ocpd_a, True, rule)
                      for s, c in zip(table.segment[rows].tolist(), curves.tolist(),
                                      strict=True)])
-    return _append_rows(table, rows, {"curve": curves, "trip_a": trip})
+    return _append_rows(table, rows, {"curve": curves, "trip_a": trip},
+                        {"curve": np.full(m, "", dtype="<U1"),
+                         "trip_a": np.asarray(trip_a, dtype=float)[table.segment]})
 
 
 def curve_shift_pu(table: CandidateTable, u0_v: np.ndarray, c_min: float,

@@ -7,10 +7,10 @@ with the unit in the field name where it is not obvious.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, fields
 from enum import StrEnum
 from pathlib import Path
-from typing import Literal
+from typing import Any, Literal
 
 import numpy as np
 
@@ -424,6 +424,18 @@ class CandidateTable:
 
     def __len__(self) -> int:
         return int(self.segment.shape[0])
+
+    def hand_over(self) -> dict[str, Any]:
+        """Every field by name, this table left empty (None throughout).
+
+        For a step that replaces the table by a larger one: each column can then be let
+        go as soon as it is copied, instead of two whole tables living at once. The
+        table is not used again.
+        """
+        out = {f.name: getattr(self, f.name) for f in fields(self)}
+        for name in out:
+            object.__setattr__(self, name, None)
+        return out
 
 
 @dataclass(frozen=True)

@@ -129,3 +129,25 @@ def _same_value(a, b) -> bool:
     if isinstance(a, np.ndarray):
         return bool(np.array_equal(a, b, equal_nan=a.dtype.kind in "fc"))
     return bool(a == b or (a != a and b != b))
+
+
+def test_rows_added_after_the_build_leave_no_second_table_behind():
+    # prepare replaces the table by one with larger-PE copies; the table it replaces
+    # hands its columns over and is left empty (never two whole tables at once)
+    from sizer.earthfault import pe_step_rows, with_larger_pe
+
+    scenario = load_scenario(SCENARIOS / "kiln-hall.toml")
+    prep = prepare(scenario)
+    table = prep.table
+    # a table without its copies, rebuilt from the prepared one's original rows
+    original = candidates.take_rows(table, (table.pe_step == 0))
+    base = candidates.take_rows(original, np.ones(len(original), dtype=bool))
+    rows, size = pe_step_rows(prep.segments, prep.profile, prep.catalogue, base,
+                              prep.earth.u0_v, prep.earth.limit_pu, prep.parent)
+    assert rows.size
+    grown = with_larger_pe(prep.segments, prep.profile, prep.catalogue, prep.prices, base,
+                           rows, size, None)
+    assert base.segment is None and base.capex is None          # handed over
+    assert len(grown) == len(table)
+    assert np.array_equal(grown.capex, table.capex) and np.array_equal(grown.pe_step,
+                                                                       table.pe_step)
