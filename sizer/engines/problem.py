@@ -39,8 +39,13 @@ class SolveStatus(StrEnum):
 
 
 def _frozen(array: np.ndarray) -> np.ndarray:
-    """Return a read-only copy, so a frozen Problem cannot change underneath an engine."""
-    out = np.array(array, copy=True)
+    """A read-only view: an engine cannot change a Problem's arrays.
+
+    A view, not a copy: a problem's rows are the candidate table's columns (millions of
+    rows on a large tree), which nothing changes once prepared; a caller that built an
+    array for the problem passes it over.
+    """
+    out = array.view()
     out.setflags(write=False)
     return out
 
@@ -91,7 +96,7 @@ class Problem:
 
     ``fixed_drop_pct`` (a transformer's regulation at the segment's far end) and
     ``limit_pct`` (max cumulative drop source → far end, ``np.inf`` = none) may be given
-    as scalars and are broadcast. Arrays are copied and made read-only.
+    as scalars and are broadcast. Arrays are taken as read-only views (not copied).
 
     Side constraints (the MILP engine only; the tree engine refuses them):
     ``capex ≤ capex_cap`` and ``loss_pv ≤ loss_pv_cap`` summed over chosen rows;
