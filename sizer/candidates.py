@@ -405,11 +405,11 @@ def _grid(sa: SegmentArrays, n_sizes: int) -> tuple[np.ndarray, ...]:
 # Peak memory while the table is built, bytes: PEAK_BYTES_PER_COMBINATION for each
 # (segment × material × size × sets) combination of the slice being built (its work
 # arrays), TABLE_BYTES_PER_COMBINATION for each combination of the whole grid (the rows
-# that survive, and the copy made when rows are added to them). Measured by `sizer
-# bench` on the 20,000-run building (3.9 million combinations, about 0.9 GB above the
-# process's base), with a tenth of headroom.
+# that survive, in place). Measured by `sizer bench`: about 0.49 GB above the process's
+# base for the 20,000-run building's 3.9 million combinations, 2.1 GB for the
+# 100,000-run one's 19 million; with a tenth of headroom.
 PEAK_BYTES_PER_COMBINATION = 620
-TABLE_BYTES_PER_COMBINATION = 250
+TABLE_BYTES_PER_COMBINATION = 140
 MEMORY_LIMIT_ENV = "SIZER_MEMORY_LIMIT"
 
 
@@ -444,7 +444,7 @@ def combinations(sa: SegmentArrays, n_sizes: int, n_bands: int) -> int:
 # The table is built in slices of whole runs of about this many grid combinations: the
 # work arrays of one slice (about PEAK_BYTES_PER_COMBINATION each) are the peak, not
 # those of the whole grid. Large enough that numpy's per-call overhead stays small.
-SLICE_COMBINATIONS = 1000000
+SLICE_COMBINATIONS = 250_000
 
 
 def _slices(sa: SegmentArrays, per_segment: np.ndarray,
@@ -484,38 +484,58 @@ def _sliced(sa: SegmentArrays, lo: int, hi: int) -> SegmentArrays:
                           if getattr(sa, f.name) is not None})
 
 
-def _joined(parts: list[tuple[CandidateTable, LocalDiagnosis]],
-            ) -> tuple[CandidateTable, LocalDiagnosis]:
-    """The tables and diagnoses of consecutive slices as one."""
-    if len(parts) == 1:
-        return parts[0]
-    diagnoses = [d for _, d in parts]
-    # Column by column, each slice's column let go once joined: the peak is one table
-    # and one column, not the slices and the table.
-    tables = [{f.name: getattr(t, f.name) for f in fields(t)} for t, _ in parts]
-    parts.clear()
-    first = np.cumsum([0] + [len(t["offsets"]) - 1 for t in tables])[:-1]
-    columns: dict[str, object] = {}
-    for f in fields(CandidateTable):
-        values = [t.pop(f.name) for t in tables]
-        if f.name == "offsets":
-            counts = np.concatenate([np.diff(v) for v in values])
-            columns[f.name] = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
-        elif f.name == "segment":
-            columns[f.name] = np.concatenate(
-                [v + np.int32(k) for v, k in zip(values, first.tolist(), strict=True)])
-        elif isinstance(values[0], np.ndarray):
-            columns[f.name] = np.concatenate(values)
-        elif isinstance(values[0], tuple):
-            columns[f.name] = tuple(x for v in values for x in v)
-        else:
-            columns[f.name] = values[0]
-        del values
-    joined = {f.name: (np.concatenate([getattr(d, f.name) for d in diagnoses])
-                       if isinstance(getattr(diagnoses[0], f.name), np.ndarray)
-                       else tuple(x for d in diagnoses for x in getattr(d, f.name)))
-              for f in fields(LocalDiagnosis)}
-    return CandidateTable(**columns), LocalDiagnosis(**joined)  # type: ignore[arg-type]
+class _TableFill:
+    """The table's columns, filled slice by slice in place.
+
+    Each column is allocated once for every combination of the grid (an upper bound on
+    the rows; pages never written are never resident) and the slices' rows are copied
+    in as they come: no second copy of the table when the slices are joined, and no
+    slices left about the heap between the work arrays.
+    """
+
+    def __init__(self, most_rows: int) -> None:
+        self.most = most_rows
+        self.rows = 0
+        self.columns: dict[str, np.ndarray] = {}
+        self.other: dict[str, object] = {}
+        self.counts: list[np.ndarray] = []
+
+    def add(self, part: CandidateTable, first_segment: int) -> None:
+        """Append a slice's table (its segments numbered from ``first_segment``)."""
+        k = len(part)
+        for f in fields(part):
+            value = getattr(part, f.name)
+            if f.name == "offsets":
+                self.counts.append(np.diff(value))
+            elif isinstance(value, np.ndarray) and value.shape[:1] == (k,):
+                column = self.columns.get(f.name)
+                if column is None:
+                    column = self.columns[f.name] = np.empty(
+                        (self.most, *value.shape[1:]), dtype=value.dtype)
+                column[self.rows:self.rows + k] = value
+                if f.name == "segment":
+                    column[self.rows:self.rows + k] += first_segment
+            else:
+                self.other.setdefault(f.name, value)
+        self.rows += k
+
+    def finished(self) -> CandidateTable:
+        """The table: each column the filled part of its allocation."""
+        counts = np.concatenate(self.counts) if self.counts else np.zeros(0, dtype=np.int64)
+        offsets = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+        columns = {name: column[:self.rows] for name, column in self.columns.items()}
+        return CandidateTable(offsets=offsets, **columns, **self.other)  # type: ignore[arg-type]
+
+
+def _joined_diagnoses(diagnoses: list[LocalDiagnosis]) -> LocalDiagnosis:
+    """The diagnoses of consecutive slices as one."""
+    if len(diagnoses) == 1:
+        return diagnoses[0]
+    return LocalDiagnosis(**{  # type: ignore[arg-type]
+        f.name: (np.concatenate([getattr(d, f.name) for d in diagnoses])
+                 if isinstance(getattr(diagnoses[0], f.name), np.ndarray)
+                 else tuple(x for d in diagnoses for x in getattr(d, f.name)))
+        for f in fields(LocalDiagnosis)})
 
 
 def available_memory_bytes() -> float:
@@ -618,12 +638,13 @@ def build_candidates(
     tops = band_tops_conductors(profile.grouping_bands, profile.grouping_conductors_per_group)
     per_segment = segment_combinations(sa, len(catalogue.sizes), len(tops))
     check_table_fits(sa, len(catalogue.sizes), len(tops), file)
-    parts = []
+    table = _TableFill(int(per_segment.sum()))
+    diagnoses = []
     with_routes = sa.route is not None and bool(np.any(sa.route >= 0))
     for lo, hi in _slices(sa, per_segment, SLICE_COMBINATIONS):
         def cut(values: np.ndarray | None, lo: int = lo, hi: int = hi) -> np.ndarray | None:
             return None if values is None else np.asarray(values)[lo:hi]
-        parts.append(_build_slice(
+        part, diagnosis = _build_slice(
             segments[lo:hi], _sliced(sa, lo, hi), tops, profile, catalogue, prices,
             loss_pv_per_w if np.ndim(loss_pv_per_w) == 0 else cut(loss_pv_per_w),  # type: ignore[arg-type]
             keep_pins=keep_pins, loss_a2=cut(loss_a2), neutral_a=cut(neutral_a),
@@ -631,8 +652,11 @@ def build_candidates(
             pe_fault=None if pe_fault is None else replace(
                 pe_fault, upstream_ohm=pe_fault.upstream_ohm[lo:hi],
                 u0_v=pe_fault.u0_v[lo:hi], time_s=pe_fault.time_s[lo:hi]),
-            with_routes=with_routes))
-    return _joined(parts)
+            with_routes=with_routes)
+        table.add(part, lo)
+        diagnoses.append(diagnosis)
+        del part
+    return table.finished(), _joined_diagnoses(diagnoses)
 
 
 def _build_slice(
