@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import multiprocessing
 import os
+import signal
 from collections.abc import Callable, Sequence
 from typing import TypeVar
 
@@ -40,6 +41,15 @@ def _run(item: object) -> object:
     return _task(item)
 
 
+def _worker_start() -> None:
+    """Leave Ctrl-C to the parent; end quietly when the pool stops this worker.
+
+    A forked worker inherits the command line's own signal handlers.
+    """
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+
+
 def ordered_map(func: Callable[[T], R], items: Sequence[T]) -> list[R]:
     """``[func(x) for x in items]``, on forked worker processes when that can help.
 
@@ -53,9 +63,14 @@ def ordered_map(func: Callable[[T], R], items: Sequence[T]) -> list[R]:
         return [func(x) for x in items]
     global _task
     _task = func  # type: ignore[assignment]
+    pool = multiprocessing.get_context("fork").Pool(n, initializer=_worker_start)
     try:
-        with multiprocessing.get_context("fork").Pool(n) as pool:
-            answers: list[R] = pool.map(_run, items, chunksize=1)  # type: ignore[arg-type]
-            return answers
+        answers: list[R] = pool.map(_run, items, chunksize=1)  # type: ignore[arg-type]
+        pool.close()
+        return answers
+    except BaseException:
+        pool.terminate()
+        raise
     finally:
+        pool.join()
         _task = None

@@ -78,3 +78,17 @@ def test_the_options_are_the_same_on_one_or_two_workers(kiln, monkeypatch):
     assert [o.key for o in side] == [o.key for o in alone]
     assert [o.design.choice for o in side] == [o.design.choice for o in alone]
     assert [o.design.totals for o in side] == [o.design.totals for o in alone]
+
+
+def test_the_command_line_with_workers_says_nothing_from_them(tmp_path, monkeypatch, capfd):
+    # workers inherit the command line's signal handlers by forking; stopping the pool
+    # must not print their tracebacks
+    from sizer.cli import main
+
+    monkeypatch.setenv(parallel.WORKERS_ENV, "2")
+    report = tmp_path / "report.html"
+    assert main(["solve", str(SCENARIOS / "kiln-hall.toml"), "--report", str(report),
+                 "--quiet"]) == 0
+    err = capfd.readouterr().err
+    assert "Traceback" not in err and "ForkPoolWorker" not in err
+    assert report.exists()
