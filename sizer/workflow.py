@@ -143,18 +143,23 @@ def frontier(prep: Prepared, points: int = 12, *, engine: str = "auto", solver: 
 def frontier_designs(prep: Prepared, points: Sequence[FrontierPoint]) -> list[Design]:
     """Each frontier point as a design, checked by the same load flow as the optimum.
 
-    The points are independent: they are built and verified side by side where the
-    machine has the cores (``sizer.parallel``).
+    The points are independent: their load flows and fault checks run side by side
+    where the machine has the cores (``sizer.parallel``); each design is assembled here
+    (a Design of many runs costs more to pass between processes than to build).
     """
-    def verified(p: FrontierPoint) -> Design:
-        choice = np.asarray(p.choice, dtype=np.int64)
-        d = design_from_choice(prep, choice, objective="frontier",
+    def checked(p: FrontierPoint) -> Verification:
+        # routes at their actual derating, as design_from_choice reports them
+        return verify_design(prep, exact_route_rows(prep, np.asarray(p.choice,
+                                                                     dtype=np.int64)))
+
+    out = []
+    for p, ver in zip(points, ordered_map(checked, list(points)), strict=True):
+        d = design_from_choice(prep, np.asarray(p.choice, dtype=np.int64),
+                               objective="frontier",
                                status=DesignStatus.OPTIMAL if p.proven_optimal
                                else DesignStatus.TIME_LIMIT)
-        choice = np.asarray(d.choice, dtype=np.int64)  # routes at their actual derating
-        return with_verification(prep, d, choice, verify_design(prep, choice))
-
-    return ordered_map(verified, list(points))
+        out.append(with_verification(prep, d, np.asarray(d.choice, dtype=np.int64), ver))
+    return out
 
 
 def _non_dominated(points: list[FrontierPoint]) -> list[FrontierPoint]:
