@@ -151,3 +151,14 @@ def test_rows_added_after_the_build_leave_no_second_table_behind():
     assert len(grown) == len(table)
     assert np.array_equal(grown.capex, table.capex) and np.array_equal(grown.pe_step,
                                                                        table.pe_step)
+
+
+def test_the_loop_in_real_arithmetic_is_the_complex_expression_bit_for_bit():
+    rng = np.random.default_rng(7)
+    n = 20_000
+    line = rng.random(n) * 1e-3 + 1j * rng.random(n) * 2e-4
+    pe = rng.random(n) * 2e-3 + 1j * rng.random(n) * 2e-4
+    length = rng.random(n) * 300.0
+    sets = rng.integers(1, 11, n).astype(np.int16)
+    plain = line * length / sets + pe * (length / sets.astype(float))
+    assert np.array_equal(candidates.loop_of(line, pe, length, sets), plain)
