@@ -293,23 +293,29 @@ def design_segments(scenario: Scenario, profile: RuleProfile) -> tuple[Segment, 
                    "rating", node=nodes[k].id, field="transformer.rating")
     report.raise_if_any()
 
+    # Every per-run array as a Python list once, not one numpy scalar per field and run.
+    (parent_l, leaf_l, current_l, required_l, adjusted_l, motor_l, share_l, from_3ph_l,
+     secondary_l, ocpd_l, chosen_l, pf_l, s_l, has_ln_l, ln_l) = (
+        np.asarray(a).tolist() for a in (
+            parent, leaf, current, required, required_adjusted, is_motor, share, from_3ph,
+            secondary, ocpd, np.isnan(given), seg_pf, s, has_ln, ln))
     return tuple(
         Segment(
-            index=i, node=nd, parent_index=int(parent[i]),
-            kind="branch" if leaf[i] else "feeder",
+            index=i, node=nd, parent_index=int(parent_l[i]),
+            kind="branch" if leaf_l[i] else "feeder",
             voltage_v=nd.voltage_v, phases=nd.phases,
-            current_a=float(current[i]), required_ampacity_a=float(required[i]),
-            required_adjusted_a=float(required_adjusted[i]),
-            motor_branch=bool(is_motor[i]), motor_basis=basis[i],
-            service=bool(parent[i] < 0),
-            nonlinear_share=float(share[i]),
-            from_three_phase=bool(from_3ph[i]),
-            secondary=bool(secondary[i]),
-            ocpd_a=float(ocpd[i]), ocpd_chosen=bool(np.isnan(given[i])),
-            power_factor=float(seg_pf[i]), demand_va=complex(s[i]),
-            own_load_va=complex(s[i]) if leaf[i] else 0j,
-            neutral=bool(has_ln[i]) if nd.neutral is None else nd.neutral,
-            is_leaf=bool(leaf[i]), line_to_neutral=bool(ln[i]),
+            current_a=float(current_l[i]), required_ampacity_a=float(required_l[i]),
+            required_adjusted_a=float(adjusted_l[i]),
+            motor_branch=bool(motor_l[i]), motor_basis=basis[i],
+            service=parent_l[i] < 0,
+            nonlinear_share=float(share_l[i]),
+            from_three_phase=bool(from_3ph_l[i]),
+            secondary=bool(secondary_l[i]),
+            ocpd_a=float(ocpd_l[i]), ocpd_chosen=bool(chosen_l[i]),
+            power_factor=float(pf_l[i]), demand_va=complex(s_l[i]),
+            own_load_va=complex(s_l[i]) if leaf_l[i] else 0j,
+            neutral=bool(has_ln_l[i]) if nd.neutral is None else nd.neutral,
+            is_leaf=bool(leaf_l[i]), line_to_neutral=bool(ln_l[i]),
         )
         for i, nd in enumerate(nodes)
     )
