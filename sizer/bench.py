@@ -31,6 +31,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TypeVar
 
+from sizer.parallel import workers
+
 T = TypeVar("T")
 
 # The top-level stages the CLI marks (sizer.stages), in the order they run.
@@ -414,7 +416,8 @@ def run_bench(cases: Sequence[Case], *, compare_sizes: Sequence[int] = (1000, 50
         if payload["milp_status"] != "optimal":
             break  # it no longer finishes: larger trees would only time out
     return {
-        "machine": {"cores": os.cpu_count(), "python": platform.python_version(),
+        "machine": {"cores": os.cpu_count(), "workers": workers(),
+                    "python": platform.python_version(),
                     "platform": platform.platform()},
         "repeats": repeats,
         "startup_s": startup,
@@ -484,8 +487,12 @@ def table_text(doc: dict[str, object]) -> str:
         lines.append("start-up, fresh process, wall: " + ", ".join(
             f"sizer {name} {seconds:.2f} s" for name, seconds in startup.items()))
     cores = doc["machine"]["cores"]  # type: ignore[index]
+    side = doc["machine"].get("workers", 1)  # type: ignore[attr-defined]
     lines.append(f"fastest of {doc['repeats']} run(s) per case, each in a fresh process; "
-                 f"{cores} cores; peak MB is the command's resident peak; x floor = "
+                 f"{cores} cores, {side} worker process(es) for the independent solves "
+                 "(frontier weights, options: their own stages are not in the table, "
+                 "their wall time is); peak MB is the command's resident peak (the "
+                 "largest process; workers share the command's pages); x floor = "
                  "stage seconds per call over the stage's physical floor (sizer.bench."
                  "physical_floors); MILP = CBC, time limit "
                  f"{doc['milp_time_limit_s']:g} s (>= : it did not finish)")
