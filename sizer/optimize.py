@@ -11,6 +11,7 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass, replace
 from enum import StrEnum
+from functools import cached_property
 from pathlib import Path
 from typing import Any
 
@@ -109,6 +110,13 @@ class Prepared:
     def parent(self) -> np.ndarray:
         """Parent segment of every segment (-1: fed from the source), parents first."""
         return self.topology.parent
+
+    @cached_property
+    def loop_pu(self) -> np.ndarray:
+        """``loop_pu_of_rows``, worked out once: every solve of the table uses it."""
+        out = loop_pu_of_rows(self)
+        out.setflags(write=False)
+        return out
 
 
 def economic_params(scenario: Scenario) -> EconomicParams:
@@ -249,7 +257,7 @@ def build_problem(prep: Prepared, objective: Objective, *, loss_weight: float | 
         capex=t.capex,
         loss_pv=t.loss_pv,
         **_route_terms(prep),  # type: ignore[arg-type]
-        loop_pu=loop_pu_of_rows(prep) if disconnection else None,
+        loop_pu=prep.loop_pu if disconnection else None,
         loop_limit_pu=prep.earth.limit_pu if disconnection else None,
         **side,  # type: ignore[arg-type]
     )
@@ -579,7 +587,7 @@ def disconnection_diagnosis(prep: Prepared) -> list[str]:
     With the lowest-impedance conductors everywhere: the path, the best current, the fix.
     """
     t = prep.table
-    loop = loop_pu_of_rows(prep)
+    loop = prep.loop_pu
     best = np.full(len(prep.segments), np.inf)
     np.minimum.at(best, t.segment, loop)
     path = path_totals(prep.parent, best)
