@@ -100,36 +100,73 @@ def peak_phase_a(assignment: dict[int, str], current_a: list[float],
 
 def _exact(free: list[int], current_a: list[float], pair: list[bool], start: list[float],
            incumbent: dict[int, str]) -> dict[int, str]:
-    """Branch and bound over the free circuits (largest first), from the LPT incumbent."""
-    best_peak = [peak_phase_a(incumbent, current_a, start)]
-    best_pick = [dict(incumbent)]
+    """Branch and bound over the free circuits (largest first), from the LPT incumbent.
+
+    Depth first, options in A, B, C / AB, BC, CA order; a leaf replaces the incumbent
+    when its top phase is lower by more than ``eps``. Two prunings cut the search without
+    changing which leaf is found first, because neither skips a leaf that could replace
+    the incumbent:
+
+    * the mean bound: every line ends at least at the mean of the three, the loads so far
+      plus what the remaining circuits add (a pair adds its current to two lines); a
+      small relative margin covers the rounding of the sums;
+    * failed states: relabelling the phases (any permutation of A, B, C maps the line
+      options A/B/C and the pairs AB/BC/CA onto themselves) maps the completions of a
+      state onto those of the permuted state with the same top phase, so a state whose
+      search found nothing better is remembered by its depth and sorted loads, and an
+      equal state met later is skipped (the incumbent only falls).
+
+    Loads are restored from saved values, not by subtraction, so a leaf's loads are the
+    plain sums along its path whatever was searched before it.
+    """
+    best_peak = peak_phase_a(incumbent, current_a, start)
+    best_pick = dict(incumbent)
     load = list(start)
     chosen: dict[int, str] = {}
     eps = 1e-9
+    m = len(free)
+    rest = [0.0] * (m + 1)   # what the circuits from each position on add over the lines
+    for pos in range(m - 1, -1, -1):
+        i = free[pos]
+        rest[pos] = rest[pos + 1] + current_a[i] * len(LINES[_options(pair[i])[0]])
+    margin = 1e-12 * (abs(sum(start)) + rest[0] + 1.0)
+    failed: set[tuple[int, float, float, float]] = set()
+    options = [[LINES[ph] for ph in _options(pair[i])] for i in free]
+    names = [_options(pair[i]) for i in free]
 
     def dfs(pos: int) -> None:
-        if max(load) >= best_peak[0] - eps:
+        nonlocal best_peak, best_pick
+        if max(load) >= best_peak - eps:
             return
-        if pos == len(free):
-            best_peak[0], best_pick[0] = max(load), dict(chosen)
+        if pos == m:
+            best_peak, best_pick = max(load), dict(chosen)
             return
+        if (load[0] + load[1] + load[2] + rest[pos]) / 3.0 - margin >= best_peak - eps:
+            return
+        a, b, c = sorted(load)
+        state = (pos, a, b, c)
+        if state in failed:
+            return
+        before = best_peak
         i = free[pos]
+        cur = current_a[i]
+        saved = tuple(load)
         seen = set()
-        for ph in _options(pair[i]):
-            lines = LINES[ph]
+        for ph, lines in zip(names[pos], options[pos], strict=True):
             for k in lines:
-                load[k] += current_a[i]
+                load[k] = saved[k] + cur
             key = tuple(load)
             if key not in seen:      # symmetric states need exploring once
                 seen.add(key)
                 chosen[i] = ph
                 dfs(pos + 1)
                 del chosen[i]
-            for k in lines:
-                load[k] -= current_a[i]
+            load[0], load[1], load[2] = saved
+        if best_peak == before:
+            failed.add(state)
 
     dfs(0)
-    return best_pick[0]
+    return best_pick
 
 
 def brute_force_peak_a(current_a: list[float], pair: list[bool]) -> float:
@@ -155,8 +192,25 @@ class PhaseState:
     operating_neutral_a: np.ndarray               # neutral at the operating peak, A
 
 
-def _phasor(mag: float, angle_deg: float, pf: float) -> complex:
-    return mag * cmath.exp(1j * (math.radians(angle_deg) - math.acos(min(max(pf, 0), 1))))
+_ANGLE_COLUMN = {ph: k for k, ph in enumerate(ANGLE_DEG)}
+
+
+def _unit_phasors(power_factor: list[float]) -> np.ndarray:
+    """Unit phasor ``e^{j(angle − acos pf)}`` of every run at the angles of ``ANGLE_DEG``, [n, 6].
+
+    A load at power factor ``pf`` on a line at ``angle`` lags it by ``acos pf``; its
+    current phasor is its magnitude times this. One cmath call per distinct power factor.
+    """
+    known: dict[float, list[complex]] = {}
+    rows = []
+    for pf in power_factor:
+        row = known.get(pf)
+        if row is None:
+            lag = math.acos(min(max(pf, 0), 1))
+            row = known[pf] = [cmath.exp(1j * (math.radians(a) - lag))
+                               for a in ANGLE_DEG.values()]
+        rows.append(row)
+    return np.array(rows, dtype=complex).reshape(len(power_factor), len(ANGLE_DEG))
 
 
 @np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore")
@@ -203,13 +257,15 @@ def assign_phases(scenario: Scenario, segments: tuple[Segment, ...], runs: RunPr
         elif seg.node.transformer is not None and seg.node.transformer.secondary_phases == 3:
             settle(3, children[i])
 
+    # Each run's unit phasor at the six angles (A, B, C, AB, BC, CA).
+    unit = _unit_phasors([s.power_factor for s in segments])
+    own = np.asarray(runs.operating_a, dtype=float)[:, None] * unit
     sizing = np.zeros((n, 3))
     op = np.zeros((n, 3), dtype=complex)
     trip_sizing = np.zeros(n)
     trip_op = np.zeros(n)
     for i in range(n - 1, -1, -1):           # children first
         seg = segments[i]
-        pf = seg.power_factor
         h = seg.node.triplen
         if seg.phases == 1:
             ph = phase[i]
@@ -217,7 +273,7 @@ def assign_phases(scenario: Scenario, segments: tuple[Segment, ...], runs: RunPr
                 for k in LINES[ph]:
                     sizing[i, k] = seg.current_a
                 lines = LINES[ph]
-                z = _phasor(runs.operating_a[i], ANGLE_DEG[ph], pf)
+                z = own[i, _ANGLE_COLUMN[ph]]
                 op[i, lines[0]] = z
                 if len(lines) == 2:
                     op[i, lines[1]] = -z
@@ -226,7 +282,7 @@ def assign_phases(scenario: Scenario, segments: tuple[Segment, ...], runs: RunPr
                     trip_op[i] = h * runs.operating_a[i]
         elif seg.is_leaf or seg.node.transformer is not None:
             sizing[i] = seg.current_a
-            op[i] = [_phasor(runs.operating_a[i], ANGLE_DEG[p], pf) for p in SINGLE]
+            op[i] = own[i, :3]
         else:
             df = seg.node.demand_factor
             coinc = (seg.node.operating.coincidence
@@ -240,10 +296,7 @@ def assign_phases(scenario: Scenario, segments: tuple[Segment, ...], runs: RunPr
             kids = children[i]
             trip_sizing[i] = max(trip_sizing[i], trip_sizing[kids].sum() if kids else 0.0)
     # Neutral: phasor sum of the fundamental (sizing: at each load's own angle too).
-    sizing_phasor = np.zeros((n, 3), dtype=complex)
-    for i in range(n):
-        pf = segments[i].power_factor
-        sizing_phasor[i] = [_phasor(sizing[i, k], ANGLE_DEG[SINGLE[k]], pf) for k in range(3)]
+    sizing_phasor = sizing * unit[:, :3]
     neutral = np.sqrt(np.abs(sizing_phasor.sum(axis=1)) ** 2 + trip_sizing ** 2)
     neutral_op = np.sqrt(np.abs(op.sum(axis=1)) ** 2 + trip_op ** 2)
     return PhaseState(tuple(phase), sizing, neutral, op, neutral_op)
