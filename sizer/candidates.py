@@ -1197,19 +1197,38 @@ def withstand_i2t_a2s(profile: RuleProfile, catalogue: Catalogue, prices: PriceL
     IEC 60949: I²t = K² S² ln((θf + β)/(θi + β)), θi the insulation rating (the
     conductor may be at it when the fault starts), θf by the insulation family
     (``RuleProfile.withstand_final_c``); sets share the fault current, so the sets'
-    I²t is sets² times one conductor's.
+    I²t is sets² times one conductor's. One numpy pass per metal; the final temperature
+    is looked up once per (run, metal) pair the rows use, in the rows' order, so a bad
+    insulation rating fails on the same row as a row-by-row walk would.
     """
     rows = np.asarray(rows, dtype=np.int64)
-    i2t = np.empty(rows.size)
-    final = np.empty(rows.size)
-    for k, r in enumerate(rows.tolist()):
-        seg = segments[int(table.segment[r])]
-        material = MATERIALS[int(table.material[r])]
-        ins = seg.node.cable.insulation_c
-        final[k] = profile.withstand_final_c(ins, withstand_family(seg, prices, material))
-        one_s = float(adiabatic_withstand_a(catalogue.area_mm2[int(table.size_index[r])], 1.0,
-                                            material, ins, final[k]))
-        i2t[k] = (one_s * int(table.sets[r])) ** 2
+    seg = table.segment[rows].astype(np.int64)
+    mat = table.material[rows].astype(np.int64)
+    pair = seg * len(MATERIALS) + mat
+    used, first, inverse = np.unique(pair, return_index=True, return_inverse=True)
+    final_of_pair = np.empty(used.size)
+    ins_of_pair = np.empty(used.size)
+    by_family: dict[tuple[float, str | None], float] = {}
+    for k in np.argsort(first, kind="stable").tolist():  # in the order the rows meet them
+        s = segments[int(used[k]) // len(MATERIALS)]
+        material = MATERIALS[int(used[k]) % len(MATERIALS)]
+        ins = s.node.cable.insulation_c
+        key = (ins, withstand_family(s, prices, material))
+        if key not in by_family:
+            by_family[key] = profile.withstand_final_c(*key)
+        final_of_pair[k] = by_family[key]
+        ins_of_pair[k] = ins
+        if not final_of_pair[k] > ins:
+            raise ScenarioError("final short-circuit temperature must exceed the initial one")
+    final = final_of_pair[inverse.reshape(-1)]
+    initial = ins_of_pair[inverse.reshape(-1)]
+    one_s = np.empty(rows.size)
+    area = catalogue.area_mm2[table.size_index[rows].astype(np.int64)]
+    for m, material in enumerate(MATERIALS):
+        on = mat == m
+        if on.any():
+            one_s[on] = adiabatic_withstand_a(area[on], 1.0, material, initial[on], final[on])
+    i2t = (one_s * table.sets[rows].astype(float)) ** 2
     return i2t, final
 
 

@@ -340,73 +340,99 @@ def verify_design(prep: Prepared, choice: np.ndarray, *,
     )
 
 
-def disconnection_findings(prep: Prepared, earth_a: np.ndarray, trip_a: np.ndarray):
-    """A ``disconnection`` violation for every run whose far-end earth fault is below trip."""
+def disconnection_findings(prep: Prepared, earth_a: np.ndarray,
+                           trip_a: np.ndarray) -> list[Violation]:
+    """A ``disconnection`` violation for every run whose far-end earth fault is below trip.
+
+    One comparison over all runs; messages only for the runs that fail, in run order.
+    """
     rule = prep.profile.fault
-    for i, seg in enumerate(prep.segments):
-        if earth_a[i] >= trip_a[i] * (1 - 1e-9):
-            continue
+    earth_a = np.asarray(earth_a, dtype=float)
+    trip_a = np.asarray(trip_a, dtype=float)
+    out = []
+    for i in np.flatnonzero(~(earth_a >= trip_a * (1 - 1e-9))).tolist():
+        seg = prep.segments[i]
         time_s = disconnection_time_s(seg.ocpd_a, seg.is_leaf, rule)
-        yield Violation(
+        out.append(Violation(
             seg.id, "disconnection", float(earth_a[i]), float(trip_a[i]),
             f"the minimum earth fault at the far end is {earth_a[i]:.0f} A, below the "
             f"{trip_a[i]:.0f} A that disconnects the {seg.ocpd_a:g} A device within "
             f"{time_s:g} s; fix: a larger line or protective conductor on this path, a "
             f"device that trips at a lower current (curve B, a lower instantaneous "
-            f"setting), or residual-current protection")
+            f"setting), or residual-current protection"))
+    return out
 
 
-def _interrupting_findings(prep: Prepared, near_a: np.ndarray):
+def _interrupting_findings(prep: Prepared, near_a: np.ndarray) -> list[Violation]:
     """Devices whose interrupting rating is below the maximum fault where they sit."""
-    for i, seg in enumerate(prep.segments):
-        rating = seg.node.interrupting_a
-        if rating is None or not near_a[i] > rating:
-            continue
-        yield Violation(
-            seg.id, "interrupting rating", near_a[i] / 1e3, rating / 1e3,
+    rating = np.array([math.nan if s.node.interrupting_a is None else s.node.interrupting_a
+                       for s in prep.segments], dtype=float)
+    near_a = np.asarray(near_a, dtype=float)
+    near_ka = near_a / 1e3
+    out = []
+    # NaN (no rating given) compares False: those runs are not checked
+    for i in np.flatnonzero(near_a > rating).tolist():
+        seg = prep.segments[i]
+        given = seg.node.interrupting_a
+        assert given is not None
+        out.append(Violation(
+            seg.id, "interrupting rating", near_ka[i], given / 1e3,
             f"the maximum fault where the {seg.ocpd_a:g} A device sits is "
-            f"{near_a[i] / 1e3:.1f} kA (c_max, motors contributing), above its "
-            f"{rating / 1e3:g} kA interrupting rating; fix: a device rated for the fault, "
-            "or a series-rated combination listed for it")
+            f"{near_ka[i]:.1f} kA (c_max, motors contributing), above its "
+            f"{given / 1e3:g} kA interrupting rating; fix: a device rated for the fault, "
+            "or a series-rated combination listed for it"))
+    return out
 
 
-def _withstand_findings(prep: Prepared, choice: np.ndarray, near_a: np.ndarray):
+def _withstand_findings(prep: Prepared, choice: np.ndarray,
+                        near_a: np.ndarray) -> list[Violation]:
     """Runs whose conductors would pass their final temperature in a fault at the near end.
 
     Adiabatic I²t of the chosen sets (IEC 60949, final temperature by insulation family,
     ``withstand_i2t_a2s``) against the device's let-through I²t when the node gives one,
     else against I² × clearing time with I the maximum fault at the run's near end.
+    One numpy pass over all runs; messages only for the runs that fail, in run order.
     """
     p = prep.profile
     rows = np.asarray(choice, dtype=np.int64)
     i2t, final = withstand_i2t_a2s(p, prep.catalogue, prep.prices, prep.segments,
                                    prep.table, rows)
-    for i, seg in enumerate(prep.segments):
+    near_a = np.asarray(near_a, dtype=float)
+    let = np.array([math.nan if s.node.let_through_a2s is None else s.node.let_through_a2s
+                    for s in prep.segments], dtype=float)
+    has_let = np.array([s.node.let_through_a2s is not None for s in prep.segments],
+                       dtype=bool)
+    time_s = np.array([s.node.clearing_time_s or p.default_clearing_time_s
+                       for s in prep.segments], dtype=float)
+    capacity = np.sqrt(i2t / time_s)
+    over_let = has_let & (let > i2t)
+    over_fault = ~has_let & np.isfinite(near_a) & (capacity < near_a)
+    near_ka = near_a / 1e3
+    material = prep.table.material[rows]
+    out = []
+    for i in np.flatnonzero(over_let | over_fault).tolist():
+        seg = prep.segments[i]
         ins = seg.node.cable.insulation_c
-        family = withstand_family(seg, prep.prices, MATERIALS[int(prep.table.material[rows[i]])])
+        family = withstand_family(seg, prep.prices, MATERIALS[int(material[i])])
         kind = f"{family}, " if family else ""
         limits = f"{kind}{ins:g} → {final[i]:g} degC, IEC 60949"
         better = "" if final[i] >= p.family_final_c["thermoset"] else ", or thermoset insulation"
-        let_through = seg.node.let_through_a2s
-        if let_through is not None:
-            if let_through > i2t[i]:
-                yield Violation(
-                    seg.id, "short-circuit withstand", let_through, float(i2t[i]),
-                    f"the device lets through {let_through:.3g} A²s, more than the "
-                    f"conductor's {i2t[i]:.3g} A²s ({limits}); fix: a device that lets "
-                    f"through less, or a larger conductor{better}")
+        if over_let[i]:
+            let_through = seg.node.let_through_a2s
+            out.append(Violation(
+                seg.id, "short-circuit withstand", let_through, float(i2t[i]),
+                f"the device lets through {let_through:.3g} A²s, more than the "
+                f"conductor's {i2t[i]:.3g} A²s ({limits}); fix: a device that lets "
+                f"through less, or a larger conductor{better}"))
             continue
-        if not math.isfinite(near_a[i]):
-            continue
-        time_s = seg.node.clearing_time_s or p.default_clearing_time_s
-        capacity = math.sqrt(i2t[i] / time_s)
-        if capacity < near_a[i]:
-            yield Violation(
-                seg.id, "short-circuit withstand", near_a[i] / 1e3, capacity / 1e3,
-                f"{near_a[i] / 1e3:.1f} kA for {time_s:g} s exceeds the conductor's "
-                f"{capacity / 1e3:.1f} kA adiabatic limit ({limits}); fix: a device "
-                f"letting through at most {i2t[i]:.3g} A²s (give its let_through), a "
-                f"shorter clearing time, or a larger conductor{better}")
+        cap_ka = float(capacity[i]) / 1e3
+        out.append(Violation(
+            seg.id, "short-circuit withstand", near_ka[i], cap_ka,
+            f"{near_ka[i]:.1f} kA for {time_s[i]:g} s exceeds the conductor's "
+            f"{cap_ka:.1f} kA adiabatic limit ({limits}); fix: a device "
+            f"letting through at most {i2t[i]:.3g} A²s (give its let_through), a "
+            f"shorter clearing time, or a larger conductor{better}"))
+    return out
 
 
 @dataclass(frozen=True)
@@ -480,18 +506,35 @@ def _ka(current_a: float) -> float | None:
     return float(current_a) / 1e3 if math.isfinite(current_a) else None
 
 
+def _with_fields(s: SegmentResult, **changes: object) -> SegmentResult:
+    """``dataclasses.replace`` for a SegmentResult, without its per-call field walk.
+
+    SegmentResult is a frozen dataclass with no ``__post_init__``; a copy of its fields
+    with some changed is the same object ``replace`` builds, at a tenth of the cost
+    (20,000 runs: 0.05 s instead of 0.5 s).
+    """
+    new = object.__new__(SegmentResult)
+    values = new.__dict__
+    values.update(s.__dict__)
+    values.update(changes)
+    return new
+
+
 def with_verification(prep: Prepared, design: Design, choice: np.ndarray,
                       ver: Verification) -> Design:
     """The design with load-flow drops, fault levels and findings filled in."""
+    n = len(design.segments)
+    none: list[float | None] = [None] * n
+    fault_min = none if ver.fault_min_a is None else [_ka(a) for a in ver.fault_min_a.tolist()]
+    earth = none if ver.earth_fault_a is None else [
+        a if math.isfinite(a) else None for a in ver.earth_fault_a.tolist()]
+    trip = none if ver.trip_a is None else ver.trip_a.tolist()
     segments = tuple(
-        replace(s, loadflow_drop_pct=float(ver.loadflow_drop_pct[i]),
-                fault_ka=_ka(ver.fault_a[i]),
-                fault_min_ka=None if ver.fault_min_a is None else _ka(ver.fault_min_a[i]),
-                earth_fault_a=(None if ver.earth_fault_a is None
-                               or not math.isfinite(ver.earth_fault_a[i])
-                               else float(ver.earth_fault_a[i])),
-                trip_a=None if ver.trip_a is None else float(ver.trip_a[i]))
-        for i, s in enumerate(design.segments))
+        _with_fields(s, loadflow_drop_pct=drop, fault_ka=_ka(fault), fault_min_ka=f_min,
+                     earth_fault_a=e, trip_a=t)
+        for s, drop, fault, f_min, e, t in zip(
+            design.segments, ver.loadflow_drop_pct.tolist(), ver.fault_a.tolist(),
+            fault_min, earth, trip, strict=True))
     notes = list(design.notes)
     if not ver.converged:
         notes.append(f"the AC load flow did not converge in {ver.iterations} iterations")
