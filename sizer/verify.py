@@ -26,6 +26,7 @@ a running sum, so both sweeps are two ``numpy.cumsum`` calls whatever the tree's
 
 from __future__ import annotations
 
+import copy
 import math
 from dataclasses import dataclass, field
 
@@ -173,6 +174,18 @@ class Network:
         _check("xfmr_secondary_v", has & (~np.isfinite(sec) | (sec <= 0)),
                "must be a positive voltage where there is a transformer")
         object.__setattr__(self, "_tree", _Tree(parent))
+
+    def with_z_ohm(self, z_ohm: np.ndarray) -> Network:
+        """The same network with other cable impedances; the tree's walks are shared.
+
+        ``dataclasses.replace`` would check every array and lay out the tree again.
+        """
+        z = _array("z_ohm", z_ohm, np.complex128, self.n)
+        _check("z_ohm", ~np.isfinite(z) | (z.real < 0) | (z.imag < 0),
+               "must be finite with R >= 0 and X >= 0")
+        out = copy.copy(self)
+        object.__setattr__(out, "z_ohm", z)
+        return out
 
     @property
     def n(self) -> int:
@@ -443,6 +456,8 @@ def motor_start_dip_pct(
     running_va: complex = 0j,
     tol_pu: float = 1e-8,
     max_iter: int = 100,
+    *,
+    before: LoadFlowResult | None = None,
 ) -> float:
     """Voltage dip (% of nominal) at ``node``'s bus while a motor there starts.
 
@@ -456,6 +471,8 @@ def motor_start_dip_pct(
 
     If the tree cannot carry its running load (no convergence), an InternalError is
     raised; if it collapses only during the start, the dip is reported as 100 %.
+    ``before``: the running load flow, ``load_flow(net, tol_pu, max_iter)``, when the
+    caller has it (one for all the motors of a tree instead of one per motor).
     """
     _check_iteration(tol_pu, max_iter)
     if not (0 <= node < net.n):
@@ -464,7 +481,8 @@ def motor_start_dip_pct(
     if not (np.isfinite(start_va) and np.isfinite(running_va)):
         raise InternalError("starting and running demand must be finite", field="motor")
     s_pu = net.load_va / S_BASE_VA
-    before = _sweep(net, s_pu, tol_pu, max_iter)
+    if before is None:
+        before = _sweep(net, s_pu, tol_pu, max_iter)
     if not before.converged:
         raise InternalError("the load flow does not converge at running load, so no "
                             "motor-start dip can be computed", field="motor")

@@ -257,18 +257,21 @@ def motor_contribution_y_pu(prep: Prepared) -> np.ndarray:
     return motor_shunt_y_pu(running, multiple, rule.motor_r_x)
 
 
-def fault_networks(prep: Prepared, choice: np.ndarray) -> tuple[Network, Network]:
+def fault_networks(prep: Prepared, choice: np.ndarray,
+                   net: Network | None = None) -> tuple[Network, Network]:
     """The networks of the maximum and minimum fault calculations of IEC 60909-0.
 
-    Maximum: conductor R at 20 degC; minimum: at the fault-loop temperature.
+    Maximum: conductor R at 20 degC; minimum: at the fault-loop temperature. ``net``:
+    the load-flow network of the same choice, when the caller has it.
     """
-    net = network_of(prep, choice)
+    if net is None:
+        net = network_of(prep, choice)
     n = len(prep.segments)
     cold = chosen_impedance_ohm(prep, choice, np.full(n, 20.0))
     hot_c = loop_temperature_c(prep.profile, np.array(
         [s.node.cable.insulation_c for s in prep.segments]))
     hot = chosen_impedance_ohm(prep, choice, hot_c)
-    return replace(net, z_ohm=cold), replace(net, z_ohm=hot)
+    return net.with_z_ohm(cold), net.with_z_ohm(hot)
 
 
 def earth_faults_a(prep: Prepared, choice: np.ndarray) -> np.ndarray:
@@ -295,7 +298,7 @@ def verify_design(prep: Prepared, choice: np.ndarray, *,
     lf = load_flow(net) if flow is None else flow
     src = prep.scenario.source
     rule = prep.profile.fault
-    net_max, net_min = fault_networks(prep, choice)
+    net_max, net_min = fault_networks(prep, choice, net)
     fault = fault_currents_a(net_max, src.fault_current_a, src.voltage_v, src.x_r,
                              source_phases=src.phases, c=rule.c_max,
                              shunt_y_pu=motor_contribution_y_pu(prep))
@@ -304,7 +307,9 @@ def verify_design(prep: Prepared, choice: np.ndarray, *,
                                  source_phases=src.phases, c=rule.c_min, source_c=rule.c_max)
     # A fault just past the near end of a cable sees the parent bus's level.
     source_level = src.fault_current_a if src.fault_current_a is not None else math.inf
-    near = np.array([fault[p] if p >= 0 else source_level for p in prep.parent.tolist()])
+    parent = prep.parent
+    near = np.where(parent >= 0, np.asarray(fault, dtype=float)[np.maximum(parent, 0)],
+                    source_level)
     earth = earth_faults_a(prep, choice)
     trip = trip_of_rows(prep, np.asarray(choice, dtype=np.int64))
     findings = list(_withstand_findings(prep, choice, near))
@@ -326,7 +331,7 @@ def verify_design(prep: Prepared, choice: np.ndarray, *,
         start_s = motor.start_multiple * running
         phi = math.acos(motor.start_pf)
         start_va = complex(start_s * motor.start_pf, start_s * math.sin(phi))
-        dip = motor_start_dip_pct(net, i, start_va, running_va=seg.own_load_va)
+        dip = motor_start_dip_pct(net, i, start_va, running_va=seg.own_load_va, before=lf)
         dips.append((seg.id, dip))
         if dip > limit + 1e-9:
             findings.append(Violation(seg.id, "motor-start dip", dip, limit,
@@ -407,30 +412,38 @@ def _withstand_findings(prep: Prepared, choice: np.ndarray,
     capacity = np.sqrt(i2t / time_s)
     over_let = has_let & (let > i2t)
     over_fault = ~has_let & np.isfinite(near_a) & (capacity < near_a)
-    near_ka = near_a / 1e3
-    material = prep.table.material[rows]
+    # plain floats from here: formatting them is several times faster than numpy scalars
+    near_ka = (near_a / 1e3).tolist()
+    i2t_l, final_l, cap_l, time_l = i2t.tolist(), final.tolist(), capacity.tolist(), time_s.tolist()
+    material = prep.table.material[rows].tolist()
     out = []
+    # the limits' wording depends on a few values only: worded once for each
+    words: dict[tuple[str | None, int, float, float], tuple[str, str]] = {}
+    thermoset_c = p.family_final_c["thermoset"]
     for i in np.flatnonzero(over_let | over_fault).tolist():
         seg = prep.segments[i]
         ins = seg.node.cable.insulation_c
-        family = withstand_family(seg, prep.prices, MATERIALS[int(material[i])])
-        kind = f"{family}, " if family else ""
-        limits = f"{kind}{ins:g} → {final[i]:g} degC, IEC 60949"
-        better = "" if final[i] >= p.family_final_c["thermoset"] else ", or thermoset insulation"
+        key = (seg.node.insulation_type, material[i], ins, final_l[i])
+        if key not in words:
+            family = withstand_family(seg, prep.prices, MATERIALS[material[i]])
+            kind = f"{family}, " if family else ""
+            words[key] = (f"{kind}{ins:g} → {final_l[i]:g} degC, IEC 60949",
+                          "" if final_l[i] >= thermoset_c else ", or thermoset insulation")
+        limits, better = words[key]
         if over_let[i]:
             let_through = seg.node.let_through_a2s
             out.append(Violation(
-                seg.id, "short-circuit withstand", let_through, float(i2t[i]),
+                seg.id, "short-circuit withstand", let_through, i2t_l[i],
                 f"the device lets through {let_through:.3g} A²s, more than the "
-                f"conductor's {i2t[i]:.3g} A²s ({limits}); fix: a device that lets "
+                f"conductor's {i2t_l[i]:.3g} A²s ({limits}); fix: a device that lets "
                 f"through less, or a larger conductor{better}"))
             continue
-        cap_ka = float(capacity[i]) / 1e3
+        cap_ka = cap_l[i] / 1e3
         out.append(Violation(
             seg.id, "short-circuit withstand", near_ka[i], cap_ka,
-            f"{near_ka[i]:.1f} kA for {time_s[i]:g} s exceeds the conductor's "
+            f"{near_ka[i]:.1f} kA for {time_l[i]:g} s exceeds the conductor's "
             f"{cap_ka:.1f} kA adiabatic limit ({limits}); fix: a device "
-            f"letting through at most {i2t[i]:.3g} A²s (give its let_through), a "
+            f"letting through at most {i2t_l[i]:.3g} A²s (give its let_through), a "
             f"shorter clearing time, or a larger conductor{better}"))
     return out
 
