@@ -9,8 +9,10 @@ of three currents 120° apart: textbook circuit analysis).
 
 from __future__ import annotations
 
+import cmath
 import json
 import math
+import random
 
 import pytest
 from builders import write_scenario
@@ -20,9 +22,14 @@ from hypothesis import strategies as st
 from sizer.cli import main
 from sizer.optimize import prepare
 from sizer.phases import (
+    ANGLE_DEG,
+    EXACT_LIMIT,
     LINES,
     LPT_BOUND,
+    PAIRS,
+    SINGLE,
     _lpt,
+    _unit_phasors,
     assign_panel,
     brute_force_peak_a,
     peak_phase_a,
@@ -317,3 +324,100 @@ def test_iec_reduction_stops_above_15_percent_triplens(tmp_path, triplen, reduce
     own = slice(int(t.offsets[0]), int(t.offsets[1]))
     smaller = t.neutral_size_index[own] < t.size_index[own]
     assert smaller.any() == reduced
+
+
+# --- the exact search: the same assignment as the plain branch and bound ---------------
+
+
+def plain_search(current_a, pair, fixed):
+    """The panel's assignment by depth-first branch and bound with no bound but the top
+    phase so far (the search before issue 18): options in A, B, C / AB, BC, CA order, a
+    leaf replaces the LPT incumbent when lower by more than 1e-9. The specification the
+    pruned search must reproduce circuit for circuit."""
+    n = len(current_a)
+    start = [0.0, 0.0, 0.0]
+    for i in range(n):
+        if fixed[i] is not None:
+            for k in LINES[fixed[i]]:
+                start[k] += current_a[i]
+    free = sorted((i for i in range(n) if fixed[i] is None), key=lambda i: (-current_a[i], i))
+    incumbent = _lpt(free, current_a, pair, start)
+    if len(free) > EXACT_LIMIT:
+        best = incumbent
+    else:
+        best_peak = [peak_phase_a(incumbent, current_a, start)]
+        best_pick = [dict(incumbent)]
+        load = list(start)
+        chosen = {}
+
+        def dfs(pos):
+            if max(load) >= best_peak[0] - 1e-9:
+                return
+            if pos == len(free):
+                best_peak[0], best_pick[0] = max(load), dict(chosen)
+                return
+            i = free[pos]
+            seen = set()
+            for ph in (PAIRS if pair[i] else SINGLE):
+                for k in LINES[ph]:
+                    load[k] += current_a[i]
+                if tuple(load) not in seen:
+                    seen.add(tuple(load))
+                    chosen[i] = ph
+                    dfs(pos + 1)
+                    del chosen[i]
+                for k in LINES[ph]:
+                    load[k] -= current_a[i]
+        dfs(0)
+        best = best_pick[0]
+    out = list(fixed)
+    for i, ph in best.items():
+        out[i] = ph
+    return out
+
+
+def drawn_panel(r):
+    """A panel as designers fill them: equal circuits, round currents, odd floats."""
+    n = r.randint(1, EXACT_LIMIT + 1)
+    kind = r.random()
+    if kind < 0.3:
+        current = [float(r.randint(1, 20)) for _ in range(n)]
+    elif kind < 0.5:
+        current = [r.choice([1500 / 277, 8.333333333333334, 16.67, 12.5, 0.1 + 0.2])
+                   for _ in range(n)]
+    elif kind < 0.6:
+        current = [r.choice([0.0, 1.0, 2.0]) for _ in range(n)]
+    else:
+        current = [r.uniform(0.5, 50.0) for _ in range(n)]
+    pair = [r.random() < (0.0 if kind < 0.4 else 0.3) for _ in range(n)]
+    fixed = [r.choice(PAIRS if pair[i] else SINGLE) if r.random() < 0.1 else None
+             for i in range(n)]
+    return current, pair, fixed
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_pruned_search_picks_the_same_phases_as_the_plain_search(seed):
+    r = random.Random(seed)
+    for _ in range(250):
+        current, pair, fixed = drawn_panel(r)
+        assert assign_panel(current, pair, fixed) == plain_search(current, pair, fixed)
+
+
+@given(st.lists(st.sampled_from([4.0, 6.0, 7.5, 10.0, 12.0, 15.0]), min_size=1, max_size=12),
+       st.data())
+def test_pruned_search_equals_the_plain_search_on_repeated_currents(current_a, data):
+    pair = data.draw(st.lists(st.booleans(), min_size=len(current_a), max_size=len(current_a)))
+    free = [None] * len(current_a)
+    got = assign_panel(current_a, pair, free)
+    assert got == plain_search(current_a, pair, free)
+    if len(current_a) <= 8:
+        assert peak_of(got, current_a) == pytest.approx(brute_force_peak_a(current_a, pair))
+
+
+@pytest.mark.parametrize("pf", [1.0, 0.95, 0.8, 0.0, 1.2, -0.1])
+def test_unit_phasors_lag_each_line_by_the_power_factor_angle(pf):
+    # I = |I|·e^{j(θ_line − acos pf)}, pf clamped to [0, 1] (textbook phasor form)
+    unit = _unit_phasors([pf])
+    for k, angle in enumerate(ANGLE_DEG.values()):
+        want = cmath.exp(1j * (math.radians(angle) - math.acos(min(max(pf, 0), 1))))
+        assert unit[0, k] == want
