@@ -21,7 +21,6 @@ from sizer.candidates import (
 )
 from sizer.conductors import impedance_ohm_per_m
 from sizer.engines import solve
-from sizer.engines.problem import path_totals
 from sizer.errors import InternalError
 from sizer.faults import S_BASE_VA, disconnection_time_s, earth_fault_a, loop_pu
 from sizer.model import Design, DesignStatus, Scenario, SegmentResult, Violation
@@ -282,9 +281,9 @@ def earth_faults_a(prep: Prepared, choice: np.ndarray) -> np.ndarray:
     """
     e = prep.earth
     own = loop_pu(prep.table.loop_ohm[np.asarray(choice, dtype=np.int64)], e.u0_v, S_BASE_VA)
-    cables = path_totals(prep.parent, own.real) + 1j * path_totals(prep.parent, own.imag)
-    xf = path_totals(prep.parent, e.xfmr_pu.real) + 1j * path_totals(prep.parent,
-                                                                        e.xfmr_pu.imag)
+    path_sum = prep.topology.path_sum  # the prepared tree's walk, not a new one per sum
+    cables = path_sum(own.real) + 1j * path_sum(own.imag)
+    xf = path_sum(e.xfmr_pu.real) + 1j * path_sum(e.xfmr_pu.imag)
     return earth_fault_a(e.c_min, e.u0_v, e.source_pu + cables + (xf - e.xfmr_pu), S_BASE_VA)
 
 
@@ -379,7 +378,7 @@ def _interrupting_findings(prep: Prepared, near_a: np.ndarray) -> list[Violation
     for i in np.flatnonzero(near_a > rating).tolist():
         seg = prep.segments[i]
         given = seg.node.interrupting_a
-        assert given is not None
+        assert given is not None  # a run without a rating compared NaN: never over
         out.append(Violation(
             seg.id, "interrupting rating", near_ka[i], given / 1e3,
             f"the maximum fault where the {seg.ocpd_a:g} A device sits is "
@@ -432,6 +431,7 @@ def _withstand_findings(prep: Prepared, choice: np.ndarray,
         limits, better = words[key]
         if over_let[i]:
             let_through = seg.node.let_through_a2s
+            assert let_through is not None  # over_let holds only runs that give one
             out.append(Violation(
                 seg.id, "short-circuit withstand", let_through, i2t_l[i],
                 f"the device lets through {let_through:.3g} A²s, more than the "
