@@ -329,6 +329,20 @@ def test_iec_reduction_stops_above_15_percent_triplens(tmp_path, triplen, reduce
 # --- the exact search: the same assignment as the plain branch and bound ---------------
 
 
+def plain_lpt(free, current_a, pair, start):
+    """LPT as a ``min`` over the options (the code before issue 18): the specification."""
+    load = list(start)
+    out = {}
+    for i in free:
+        best = min(PAIRS if pair[i] else SINGLE,
+                   key=lambda ph: (max(load[k] + current_a[i] for k in LINES[ph]),
+                                   sum(load[k] for k in LINES[ph])))
+        for k in LINES[best]:
+            load[k] += current_a[i]
+        out[i] = best
+    return out
+
+
 def plain_search(current_a, pair, fixed):
     """The panel's assignment by depth-first branch and bound with no bound but the top
     phase so far (the search before issue 18): options in A, B, C / AB, BC, CA order, a
@@ -341,7 +355,7 @@ def plain_search(current_a, pair, fixed):
             for k in LINES[fixed[i]]:
                 start[k] += current_a[i]
     free = sorted((i for i in range(n) if fixed[i] is None), key=lambda i: (-current_a[i], i))
-    incumbent = _lpt(free, current_a, pair, start)
+    incumbent = plain_lpt(free, current_a, pair, start)
     if len(free) > EXACT_LIMIT:
         best = incumbent
     else:
@@ -376,9 +390,9 @@ def plain_search(current_a, pair, fixed):
     return out
 
 
-def drawn_panel(r):
+def drawn_panel(r, most=EXACT_LIMIT + 1):
     """A panel as designers fill them: equal circuits, round currents, odd floats."""
-    n = r.randint(1, EXACT_LIMIT + 1)
+    n = r.randint(1, most)
     kind = r.random()
     if kind < 0.3:
         current = [float(r.randint(1, 20)) for _ in range(n)]
@@ -421,3 +435,13 @@ def test_unit_phasors_lag_each_line_by_the_power_factor_angle(pf):
     for k, angle in enumerate(ANGLE_DEG.values()):
         want = cmath.exp(1j * (math.radians(angle) - math.acos(min(max(pf, 0), 1))))
         assert unit[0, k] == want
+
+
+@pytest.mark.parametrize("seed", range(2))
+def test_lpt_picks_the_same_phases_as_the_min_over_options(seed):
+    r = random.Random(seed)
+    for _ in range(300):
+        current, pair, _fixed = drawn_panel(r, most=60)
+        start = [r.choice([0.0, 3.0, 0.1 + 0.2, 1e17]) for _ in range(3)]
+        free = sorted(range(len(current)), key=lambda i: (-current[i], i))
+        assert _lpt(free, current, pair, start) == plain_lpt(free, current, pair, start)
