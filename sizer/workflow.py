@@ -8,8 +8,10 @@ from __future__ import annotations
 
 import itertools
 import math
+import weakref
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
+from functools import partial
 
 import numpy as np
 
@@ -193,9 +195,23 @@ class Verification:
     trip_a: np.ndarray | None = None         # current that disconnects the device in time
 
 
-def network_of(prep: Prepared, choice: np.ndarray) -> Network:
-    """The load-flow network of the chosen rows."""
-    t = prep.table
+# The part of each prepared scenario's load-flow network that no choice changes, kept
+# while the Prepared lives (its id, checked by a weak reference: ids are reused).
+_NETWORK_OF: dict[int, tuple[weakref.ref[Prepared], Network]] = {}
+
+
+def _forget_network(key: int, ref: weakref.ref[Prepared]) -> None:
+    known = _NETWORK_OF.get(key)
+    if known is not None and known[0] is ref:
+        del _NETWORK_OF[key]
+
+
+def _fixed_network(prep: Prepared) -> Network:
+    """The load-flow network of ``prep`` with zero cable impedance, built once per prep."""
+    key = id(prep)
+    known = _NETWORK_OF.get(key)
+    if known is not None and known[0]() is prep:
+        return known[1]
     segs = prep.segments
     n = len(segs)
     rating = np.zeros(n)
@@ -210,9 +226,9 @@ def network_of(prep: Prepared, choice: np.ndarray) -> Network:
     # Loads at the design basis: each scaled by the demand factors of the panels above it,
     # so the source carries the same diversified demand as the design currents assume.
     diversity = prep.topology.above_product([s.node.demand_factor for s in segs])
-    return Network(
+    net = Network(
         parent=prep.parent,
-        z_ohm=t.r_ohm[choice] + 1j * t.x_ohm[choice],
+        z_ohm=np.zeros(n, dtype=complex),
         circuit_v=np.array([s.voltage_v for s in segs], dtype=float),
         phases=np.array([s.phases for s in segs], dtype=np.int64),
         load_va=np.array([s.own_load_va for s in segs], dtype=complex) * diversity,
@@ -220,6 +236,19 @@ def network_of(prep: Prepared, choice: np.ndarray) -> Network:
         xfmr_z_pct=z_pct,
         xfmr_secondary_v=secondary,
     )
+    _NETWORK_OF[key] = (weakref.ref(prep, partial(_forget_network, key)), net)
+    return net
+
+
+def network_of(prep: Prepared, choice: np.ndarray) -> Network:
+    """The load-flow network of the chosen rows.
+
+    Voltages, loads, transformers and the tree's walks are laid out once per prepared
+    scenario (each load-flow round and every frontier design reuses them); only the
+    chosen rows' impedances are new.
+    """
+    t = prep.table
+    return _fixed_network(prep).with_z_ohm(t.r_ohm[choice] + 1j * t.x_ohm[choice])
 
 
 def chosen_impedance_ohm(prep: Prepared, choice: np.ndarray, temp_c: np.ndarray) -> np.ndarray:

@@ -12,6 +12,7 @@ random (infinite and NaN levels included).
 
 from __future__ import annotations
 
+import gc
 import math
 import random
 from dataclasses import replace
@@ -27,8 +28,9 @@ from sizer.faults import disconnection_time_s
 from sizer.model import Violation
 from sizer.optimize import Objective, Prepared, optimise, prepare
 from sizer.scenario import load_scenario
-from sizer.verify import load_flow, motor_start_dip_pct
+from sizer.verify import Network, load_flow, motor_start_dip_pct
 from sizer.workflow import (
+    _NETWORK_OF,
     _interrupting_findings,
     _ka,
     _withstand_findings,
@@ -308,3 +310,43 @@ def test_with_verification_equals_replacing_each_result(prepared):
     assert all(type(a) is type(b) for g, w in zip(got.segments, want, strict=True)
                for a, b in zip(vars(g).values(), vars(w).values(), strict=True))
     assert got.violations == design.violations + ver.findings
+
+
+def network_afresh(prep: Prepared, choice: np.ndarray) -> Network:
+    """The load-flow network built from the segments for this one choice."""
+    segs = prep.segments
+    tx = [s.node.transformer for s in segs]
+    return Network(
+        parent=prep.parent,
+        z_ohm=prep.table.r_ohm[choice] + 1j * prep.table.x_ohm[choice],
+        circuit_v=np.array([s.voltage_v for s in segs], dtype=float),
+        phases=np.array([s.phases for s in segs], dtype=np.int64),
+        load_va=np.array([s.own_load_va for s in segs], dtype=complex)
+        * prep.topology.above_product([s.node.demand_factor for s in segs]),
+        xfmr_rating_va=np.array([0.0 if t is None else t.rating_va for t in tx]),
+        xfmr_z_pct=np.array([0j if t is None else complex(t.r_pct, t.x_pct) for t in tx]),
+        xfmr_secondary_v=np.array([s.voltage_v if t is None else t.secondary_v
+                                   for s, t in zip(segs, tx, strict=True)]),
+    )
+
+
+def test_the_network_of_a_choice_equals_one_built_afresh(prepared):
+    for seed in range(2):
+        rows = random_rows(prepared, seed)
+        got, want = network_of(prepared, rows), network_afresh(prepared, rows)
+        for name in ("parent", "z_ohm", "circuit_v", "phases", "load_va", "xfmr_rating_va",
+                     "xfmr_z_pct", "xfmr_secondary_v"):
+            np.testing.assert_array_equal(getattr(got, name), getattr(want, name))
+        a, b = load_flow(got), load_flow(want)
+        np.testing.assert_array_equal(a.v_bus_pu, b.v_bus_pu)
+        assert a.iterations == b.iterations
+
+
+def test_the_fixed_part_of_the_network_goes_with_its_scenario():
+    prep = prepare(load_scenario(DEMOS[0]))
+    network_of(prep, random_rows(prep, 0))
+    key = id(prep)
+    assert key in _NETWORK_OF
+    del prep
+    gc.collect()
+    assert key not in _NETWORK_OF
