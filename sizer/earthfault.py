@@ -279,7 +279,9 @@ def _loops_around(table: CandidateTable, u0_v: np.ndarray, limit_pu: np.ndarray,
         reach[i] = min(limit_pu[i], most[i] + (reach[p] if p >= 0 else 0.0))
     most_above = np.array([reach[p] if p >= 0 else 0.0 for p in parent.tolist()])[seg]
     least_above = (path_totals(parent, least) - least)[seg]
-    return own, most_above, least_above
+    # Where even the least loop breaks a budget above, no design is feasible (diagnosed
+    # elsewhere); the most above is then never taken below the least.
+    return own, np.maximum(most_above, least_above), least_above
 
 
 def pe_step_rows(segments: tuple[Segment, ...], profile: RuleProfile, catalogue: Catalogue,

@@ -206,6 +206,72 @@ def test_an_impossible_loop_is_diagnosed_with_the_path_and_the_fix(tmp_path):
     assert "FAR" in text and "disconnect" in text
 
 
+_BUDGET_ABOVE_BROKEN = """\
+[project]
+title = "budget above"
+rules = "nec"
+currency = "USD"
+
+[economics]
+energy_price = "0 USD/kWh"
+discount_rate = "0 %"
+lifetime = "1 year"
+load_factor = 0.05
+demand_charge = "0 USD/kW"
+
+[defaults]
+materials = ["Cu"]
+
+[source]
+id = "SRC"
+voltage = "480 V"
+phases = 3
+fault_current = "1 kA"
+
+[[node]]
+id = "MAIN"
+parent = "SRC"
+length = "5 ft"
+
+[[node]]
+id = "LIGHT"
+parent = "MAIN"
+length = "5 ft"
+load = "0.2 A"
+
+[[node]]
+id = "XFMR"
+parent = "MAIN"
+length = "5 ft"
+phases = 1
+transformer = { rating = "45 kVA", secondary = "208 V", impedance = "2 %", x_r = 1.0 }
+
+[[node]]
+id = "PANEL"
+parent = "XFMR"
+length = "5 ft"
+ocpd = "400 A"
+
+[[node]]
+id = "PUMP"
+parent = "PANEL"
+length = "108 ft"
+load = "70.01 A"
+"""
+
+
+def test_a_budget_above_that_no_choice_meets_is_diagnosed_not_a_crash(tmp_path, capsys):
+    # Found by the fuzz test: behind a 1 kA source and a 45 kVA transformer even the
+    # least loop breaks the feeders' budgets, so "the most loop above" (capped by those
+    # budgets) fell below "the least": the PE steps between them were a negative count.
+    path = tmp_path / "site.toml"
+    path.write_text(_BUDGET_ABOVE_BROKEN, encoding="utf-8")
+    assert main(["solve", str(path), "--quiet"]) == 1
+    captured = capsys.readouterr()
+    assert "Traceback" not in captured.err
+    assert "disconnects" in captured.out and "PANEL" in captured.out
+
+
 def test_tree_engine_with_a_loop_equals_brute_force_on_random_problems():
     rng = np.random.default_rng(14)
     for _ in range(60):
