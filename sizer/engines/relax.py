@@ -46,6 +46,7 @@ _ENGINE = "tree"
 _ROUNDS = 400          # subgradient steps at most
 _REPAIR_ROUNDS = 200   # raises of the broken limits' multipliers when finding a design
 _RAISE = 1.1          # each raise multiplies a broken limit's multiplier by this
+_WARM = 0.5           # a repair starts from this share of the last one's multipliers
 _TARGET_GAP = 1e-4     # stop once the proven gap is this small
 
 
@@ -190,21 +191,30 @@ def solve_relaxed(problem: Problem, usable: np.ndarray | None = None,
         scales.append(scale)
     k = len(values)
 
-    def relaxed(mu: list[np.ndarray]) -> tuple[float, np.ndarray, list[np.ndarray]]:
+    # the steps price in float32 (half the memory traffic); the bound stated is L(μ)
+    # evaluated again in float64 at the best multipliers
+    cost32 = pad_cost.astype(np.float32)
+    values32 = [v.astype(np.float32) for v in values]
+
+    def relaxed(mu: list[np.ndarray], exact: bool = False
+                ) -> tuple[float, np.ndarray, list[np.ndarray]]:
         """L(μ), the relaxed choice (a row per segment) and each limit's excess."""
-        price = pad_cost.copy()
+        price = (pad_cost if exact else cost32).copy()
+        term = np.empty_like(price)
         bound = 0.0
         for j in range(k):
             full = np.zeros(n)
             full[cons[j]] = mu[j]
             w = tree.subtree_sum(full)
-            price += w[:, None] * values[j]
+            np.multiply(values[j] if exact else values32[j], w[:, None].astype(price.dtype),
+                        out=term)
+            price += term
             bound += float(w @ fixes[j]) - float(mu[j] @ lims[j])
         pick = np.argmin(price, axis=1)
         at = (np.arange(n), pick)
         excess = [tree.path_sum(values[j][at] + fixes[j])[cons[j]] - lims[j]
                   for j in range(k)]
-        return bound + float(price[at].sum()), pad_row[at], excess
+        return bound + float(price[at].sum(dtype=np.float64)), pad_row[at], excess
 
     # a price per unit resource at which segments start to trade cost for it
     real = np.isfinite(pad_cost)
@@ -213,14 +223,20 @@ def solve_relaxed(problem: Problem, usable: np.ndarray | None = None,
     base = [spread_c / max(float(np.sum(np.ptp(v, axis=1))), 1e-300) / max(c.size, 1)
             for v, c in zip(values, cons, strict=True)]
 
+    raised: list[np.ndarray] = [np.zeros(c.size) for c in cons]
+
     def repair(mu: list[np.ndarray]) -> np.ndarray | None:
-        """A relaxed choice that breaks no limit, raising the broken limits' multipliers."""
-        m = [x.copy() for x in mu]
+        """A relaxed choice that breaks no limit, raising the broken limits' multipliers.
+
+        Starts a little below the multipliers the last repair ended with.
+        """
+        m = [np.maximum(x, _WARM * r) for x, r in zip(mu, raised, strict=True)]
         for _ in range(_REPAIR_ROUNDS):
             _, pick, excess = relaxed(m)
             # half the tolerance the final check allows (1e-9 in the problem's units)
             broken = [e > 0.5e-9 / sc for e, sc in zip(excess, scales, strict=True)]
             if not any(b.any() for b in broken):
+                raised[:] = m
                 return pick
             for j in range(k):
                 b = broken[j]
@@ -228,13 +244,13 @@ def solve_relaxed(problem: Problem, usable: np.ndarray | None = None,
         return None
 
     mu = [np.zeros(c.size) for c in cons]
-    best_lb, best_ub = -np.inf, np.inf
+    best_lb, best_ub, best_mu = -np.inf, np.inf, mu
     best_pick: np.ndarray | None = None
     theta, stall, steps = 1.0, 0, 0
     for steps in range(1, rounds + 1):
         dual, _, excess = relaxed(mu)
         if dual > best_lb + 1e-12 * abs(dual):
-            best_lb, stall = dual, 0
+            best_lb, best_mu, stall = dual, mu, 0
         else:
             stall += 1
             if stall >= 8:
@@ -259,6 +275,7 @@ def solve_relaxed(problem: Problem, usable: np.ndarray | None = None,
         return _stop(problem, SolveStatus.ERROR,
                      "tree engine: the relaxation of the path limits found no design meeting "
                      "them all", t0)
+    best_lb = relaxed(best_mu, exact=True)[0]
     choice = best_pick
     broken = problem.violations(choice, tol_pct=1e-9)
     if broken:  # pragma: no cover - a guard against a bug, never expected

@@ -346,8 +346,8 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
 
     Further path limits (the earth-fault loop, a second drop): when no drop limit can
     bind and one such resource can, it takes the drop's place here (exact). Down a tree
-    at least ``deep_at`` runs deep (default ``DEEP_AT`` for one resource that binds,
-    ``DEEP_AT_MULTI`` for several) the limits are relaxed instead
+    at least ``deep_at`` runs deep (default ``DEEP_AT`` for one resource,
+    ``DEEP_AT_MULTI`` for several that bind) the limits are relaxed instead
     (``sizer.engines.relax``): the design meets every limit and the solution states its
     proven gap to the least cost.
     """
@@ -372,6 +372,9 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
                                     tol_pct=tol_pct, thin_at=min(thin_at, THIN_AT_MULTI),
                                     thin_to=min(thin_to, THIN_TO_MULTI))
         problem = relaxed  # every further limit holds whatever is chosen: drop alone
+    if tree_depth(problem.parent) >= (DEEP_AT if deep_at is None else deep_at):
+        # the drop alone down thousands of runs: its fronts too grow with the depth
+        return solve_relaxed(problem, usable_rows(problem))
     n = problem.n_segments
     parent = problem.parent
     parent_list = parent.tolist()
