@@ -50,9 +50,10 @@ def solve(problem: Problem, engine: str = "auto", solver: str = "cbc",
     if engine == "milp" or (engine == "auto" and problem.has_side_constraints):
         return solve_milp(problem, solver=solver, time_limit_s=time_limit_s)
     first = _tree.solve_tree(problem, max_front=_tree.DEFAULT_MAX_FRONT)
-    if engine == "auto" and first.status is SolveStatus.BOUNDED \
+    if engine == "auto" and first.status is SolveStatus.BOUNDED and first.gap is None \
             and problem.n_segments <= EXACT_BY_MILP_UP_TO:
         # a small tree whose fronts were thinned: the MILP proves the optimum quickly
+        # (a relaxed deep tree states a proven gap instead: it stays with the tree engine)
         exact = solve_milp(problem, solver=solver, time_limit_s=time_limit_s)
         if exact.status is SolveStatus.OPTIMAL:
             return dataclasses.replace(

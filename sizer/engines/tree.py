@@ -42,6 +42,7 @@ import time
 import numpy as np
 
 from sizer.engines.problem import Problem, Solution, SolveStatus, path_totals
+from sizer.engines.relax import DEEP_AT, DEEP_AT_MULTI, solve_relaxed, tree_depth, usable_rows
 from sizer.errors import InternalError
 from sizer.topology import Topology
 
@@ -330,7 +331,8 @@ def _subtree_requirements(own: list[float], floor: list[float], parent: list[int
 
 def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
                tol_pct: float = 1e-9, max_queries: int = DEFAULT_MAX_QUERIES,
-               thin_at: int = THIN_AT, thin_to: int = THIN_TO) -> Solution:
+               thin_at: int = THIN_AT, thin_to: int = THIN_TO,
+               deep_at: int | None = None) -> Solution:
     """Solve a pure tree problem exactly by the bottom-up Pareto-front program.
 
     ``max_front`` bounds the points of any one front; past it the solve stops with
@@ -341,6 +343,13 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
     (``_thin_1d``); the solution is then ``bounded``, and its message states the
     tolerance: the design meets every limit and costs no more than any design meeting
     the limits tightened by that tolerance.
+
+    Further path limits (the earth-fault loop, a second drop): when no drop limit can
+    bind and one such resource can, it takes the drop's place here (exact). Down a tree
+    at least ``deep_at`` runs deep (default ``DEEP_AT`` for one resource,
+    ``DEEP_AT_MULTI`` for several that bind) the limits are relaxed instead
+    (``sizer.engines.relax``): the design meets every limit and the solution states its
+    proven gap to the least cost.
     """
     t0 = time.perf_counter()
     if problem.has_side_constraints:
@@ -349,12 +358,23 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
             "engine='milp'", field="engine")
     if problem.extra_paths():
         relaxed = _without_slack_paths(problem)
-        if relaxed.extra_paths():
+        single = _one_resource(relaxed)
+        deep = (deep_at if deep_at is not None
+                else DEEP_AT if single is not None else DEEP_AT_MULTI)
+        if relaxed.extra_paths() and tree_depth(problem.parent) >= deep:
+            # fronts down hundreds or thousands of runs: relax the limits, state the gap
+            return solve_relaxed(relaxed, usable_rows(relaxed))
+        if single is not None:
+            relaxed = single
+        elif relaxed.extra_paths():
             return solve_tree_multi(relaxed,
                                     max_front=min(max_front, DEFAULT_MAX_FRONT_MULTI),
                                     tol_pct=tol_pct, thin_at=min(thin_at, THIN_AT_MULTI),
                                     thin_to=min(thin_to, THIN_TO_MULTI))
         problem = relaxed  # every further limit holds whatever is chosen: drop alone
+    if tree_depth(problem.parent) >= (DEEP_AT if deep_at is None else deep_at):
+        # the drop alone down thousands of runs: its fronts too grow with the depth
+        return solve_relaxed(problem, usable_rows(problem))
     n = problem.n_segments
     parent = problem.parent
     parent_list = parent.tolist()
@@ -615,6 +635,26 @@ def _without_slack_paths(problem: Problem) -> Problem:
         elif not np.array_equal(binding, np.isfinite(lim)):
             changes[names[1]] = np.where(binding, lim, np.inf)
     return dataclasses.replace(problem, **changes) if changes else problem  # type: ignore[arg-type]
+
+
+def _one_resource(problem: Problem) -> Problem | None:
+    """The problem as a drop-only one when only one further path resource can bind.
+
+    When no choice can break a drop limit (the worst rows on every path stay within it)
+    and one further resource remains, that resource alone decides: it takes the drop's
+    place (exact), and the one-resource program, much faster, solves it. None otherwise.
+    """
+    extra = problem.extra_paths()
+    if len(extra) != 1:
+        return None
+    worst = path_totals(problem.parent, np.maximum.reduceat(problem.drop_pct,
+                                                            problem.offsets[:-1])
+                        + problem.fixed_drop_pct)
+    if np.any(worst > problem.limit_pct):
+        return None
+    own, lim = extra[0]
+    return Problem(problem.parent, problem.offsets, problem.cost, own,
+                   np.zeros(problem.n_segments), lim)
 
 
 def _undominated_multi(cost: np.ndarray, req: np.ndarray, offsets: np.ndarray,
