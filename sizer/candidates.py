@@ -568,17 +568,16 @@ def _memory_text(n_bytes: float) -> str:
     return f"{n_bytes / 1e9:.1f} GB" if n_bytes >= 1e9 else f"{n_bytes / 1e6:.0f} MB"
 
 
-def check_table_fits(sa: SegmentArrays, n_sizes: int, n_bands: int, file: str | None,
-                     limit_bytes: float | None = None) -> None:
+def check_table_fits(per_segment: np.ndarray, slices: list[tuple[int, int]],
+                     file: str | None, limit_bytes: float | None = None) -> None:
     """Refuse, in one line, a candidate table larger than the memory it may use.
 
-    Raised before anything is built, instead of a traceback or the kernel stopping the
-    process; the message says what to change.
+    ``per_segment``: each run's grid combinations (``segment_combinations``); ``slices``:
+    the runs built at once (``_slices``). Raised before anything is built, instead of a
+    traceback or the kernel stopping the process; the message says what to change.
     """
-    per_segment = segment_combinations(sa, n_sizes, n_bands)
     rows = int(per_segment.sum())
-    largest_slice = max(int(per_segment[lo:hi].sum())
-                        for lo, hi in _slices(sa, per_segment, SLICE_COMBINATIONS))
+    largest_slice = max((int(per_segment[lo:hi].sum()) for lo, hi in slices), default=0)
     need = (largest_slice * PEAK_BYTES_PER_COMBINATION
             + rows * TABLE_BYTES_PER_COMBINATION)
     limit = available_memory_bytes() if limit_bytes is None else limit_bytes
@@ -637,11 +636,12 @@ def build_candidates(
     # Shared routes: one copy of each row per grouping band, its derating at that band.
     tops = band_tops_conductors(profile.grouping_bands, profile.grouping_conductors_per_group)
     per_segment = segment_combinations(sa, len(catalogue.sizes), len(tops))
-    check_table_fits(sa, len(catalogue.sizes), len(tops), file)
+    slices = _slices(sa, per_segment, SLICE_COMBINATIONS)
+    check_table_fits(per_segment, slices, file)
     table = _TableFill(int(per_segment.sum()))
     diagnoses = []
     with_routes = sa.route is not None and bool(np.any(sa.route >= 0))
-    for lo, hi in _slices(sa, per_segment, SLICE_COMBINATIONS):
+    for lo, hi in slices:
         def cut(values: np.ndarray | None, lo: int = lo, hi: int = hi) -> np.ndarray | None:
             return None if values is None else np.asarray(values)[lo:hi]
         part, diagnosis = _build_slice(
