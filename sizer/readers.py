@@ -289,14 +289,18 @@ def read_share(value: Any, text: bool = False) -> float:
     return x
 
 
+def _listed(value: Any, example: str) -> list[Any]:
+    """The items of a TOML list, or of text listing them ("Cu, Al", "B/C")."""
+    if isinstance(value, str):
+        return [p for p in re.split(r"[,;/\s]+", value.strip()) if p]
+    if isinstance(value, list):
+        return value
+    raise ScenarioError(f"must be a list such as {example}, got {show(value)}")
+
+
 def read_materials(value: Any, text: bool = False) -> tuple[str, ...]:
     """A list of materials (or text such as "Cu, Al")."""
-    if isinstance(value, str):
-        parts: list[Any] = [p for p in re.split(r"[,;/\s]+", value.strip()) if p]
-    elif isinstance(value, list):
-        parts = value
-    else:
-        raise ScenarioError(f"must be a list such as [\"Cu\", \"Al\"], got {show(value)}")
+    parts = _listed(value, '["Cu", "Al"]')
     materials = tuple(dict.fromkeys(parse_material(p) for p in parts))
     if not materials:
         raise ScenarioError("must name at least one material (\"Cu\", \"Al\")")
@@ -378,12 +382,7 @@ CURVE_WORDS = ("B", "C", "D")
 
 def read_curves(value: Any, text: bool = False) -> tuple[str, ...]:
     """Miniature-breaker curves the optimiser may choose from: ["B", "C"] (or "B, C")."""
-    if isinstance(value, str):
-        parts: list[Any] = [p for p in re.split(r"[,;/\s]+", value.strip()) if p]
-    elif isinstance(value, list):
-        parts = value
-    else:
-        raise ScenarioError(f"must be a list such as [\"B\", \"C\"], got {show(value)}")
+    parts = _listed(value, '["B", "C"]')
     out = []
     for part in parts:
         word = read_text(part).upper()
