@@ -489,7 +489,7 @@ def optimal_choice(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *
     A run with no candidate at all comes back at once as the diagnosed infeasible Design.
     The closed loop with the load flow re-solves on this, and builds the Design once.
     """
-    if motor_start and any(seg.node.motor is not None for seg in prep.segments):
+    if _motor_start_applies(prep, motor_start):
         side["drop2_pct"], side["limit2_pct"] = motor_start_terms(prep)
     empty = np.diff(prep.table.offsets) == 0
     if empty.any():
@@ -501,13 +501,18 @@ def optimal_choice(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *
         return solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
 
 
+def _motor_start_applies(prep: Prepared, motor_start: bool) -> bool:
+    """The motor-start dip is a further path constraint: asked for, and a motor to start."""
+    return motor_start and any(seg.node.motor is not None for seg in prep.segments)
+
+
 def design_of(prep: Prepared, solution: Solution, objective: Objective, *,
               limit_pct: np.ndarray | None = None, disconnection: bool = True,
               motor_start: bool = False) -> Design:
     """``optimise``'s second half: the Design of a solution, or why there is none."""
     def why() -> list[str]:
         lines = diagnose(prep, limit_pct)
-        if motor_start and any(seg.node.motor is not None for seg in prep.segments):
+        if _motor_start_applies(prep, motor_start):
             lines = [*_motor_start_diagnosis(prep), *lines[:-1]] or lines
         earth = disconnection_diagnosis(prep) if disconnection else []
         if earth:
