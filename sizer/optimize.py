@@ -571,11 +571,12 @@ def diagnose(prep: Prepared, limit_pct: np.ndarray | None = None) -> list[str]:
     best = np.full(len(prep.segments), np.inf)
     np.minimum.at(best, t.segment, t.vd_pct)
     path = path_drops_pct(prep.parent, best, prep.fixed_drop_pct)
-    for s in np.flatnonzero(path > limits + 1e-9).tolist():
+    first, below = _first_failures(prep, path > limits + 1e-9)
+    for s in first:
         chain = prep.topology.path(s)
         worst = max(chain, key=lambda k: best[k])
         seg = prep.segments[worst]
-        names = " → ".join([prep.scenario.source.id] + [prep.segments[k].id for k in chain])
+        names = _path_text(prep, chain)
         tx = sum(prep.fixed_drop_pct[k] for k in chain)
         tx_text = f" (of which transformers {tx:.2f} %)" if tx > 0 else ""
         fixes = _drop_fixes(seg, best[worst], best[worst] - (path[s] - limits[s]))
@@ -583,7 +584,50 @@ def diagnose(prep: Prepared, limit_pct: np.ndarray | None = None) -> list[str]:
             f"path {names}: best reachable drop {path[s]:.2f} %{tx_text} with the "
             f"lowest-drop conductors, limit {limits[s]:g} %; largest share on '{seg.id}' "
             f"({best[worst]:.2f} %); fix: {fixes}")
+    lines += _further_failures(below, "drop")
     return lines or ["no design satisfies the combined constraints"]
+
+
+_LISTED_FAILURES = 20
+"""Up to this many failing paths, each is named; beyond, only each branch's first."""
+
+
+def _first_failures(prep: Prepared, failing: np.ndarray) -> tuple[list[int], int]:
+    """The failing segments to name in a diagnosis, and how many others fail.
+
+    A few are all named. Many are cut to the failing segments with no failing segment
+    above them: a path that fails at some run mostly fails for the runs fed through it
+    too, so each branch's first failure names the cause, and the ones below are counted,
+    not spelt out (down a riser thousands of runs deep every path below the first failure
+    would otherwise be printed in full, the text growing with the square of the depth).
+    """
+    every = np.flatnonzero(failing)
+    if every.size <= _LISTED_FAILURES:
+        return every.tolist(), 0
+    clear_above = prep.topology.above_product(~failing) > 0
+    first = np.flatnonzero(failing & clear_above)
+    return first.tolist(), int(every.size - first.size)
+
+
+def _further_failures(count: int, what: str) -> list[str]:
+    """One line for the failing runs fed through a failure already named."""
+    if not count:
+        return []
+    return [f"{count} more run{'s' if count > 1 else ''} fed through the paths above also "
+            f"miss{'' if count > 1 else 'es'} {'their' if count > 1 else 'its'} {what} "
+            f"limit{'s' if count > 1 else ''}; fix the paths above first"]
+
+
+_PATH_ENDS = 4
+"""Runs named at each end of a long path in a diagnosis; the ones between are counted."""
+
+
+def _path_text(prep: Prepared, chain: list[int]) -> str:
+    """``SOURCE → A → B → …`` for a path of segments, its middle counted when long."""
+    ids = [prep.segments[k].id for k in chain]
+    if len(ids) > 2 * _PATH_ENDS + 1:
+        ids = [*ids[:_PATH_ENDS], f"({len(ids) - 2 * _PATH_ENDS} runs)", *ids[-_PATH_ENDS:]]
+    return " → ".join([prep.scenario.source.id, *ids])
 
 
 def disconnection_diagnosis(prep: Prepared) -> list[str]:
@@ -598,10 +642,11 @@ def disconnection_diagnosis(prep: Prepared) -> list[str]:
     path = path_totals(prep.parent, best)
     e = prep.earth
     lines = []
-    for s in np.flatnonzero(path > e.limit_pu + 1e-9).tolist():
+    first, below = _first_failures(prep, path > e.limit_pu + 1e-9)
+    for s in first:
         chain = prep.topology.path(s)
         seg = prep.segments[s]
-        names = " → ".join([prep.scenario.source.id] + [prep.segments[k].id for k in chain])
+        names = _path_text(prep, chain)
         fixed = e.limit_pu[s] - e.c_min * S_BASE_VA / (e.u0_v[s] * e.trip_a[s])  # −source…
         best_a = e.c_min * S_BASE_VA / (e.u0_v[s] * (path[s] - fixed))
         worst = max(chain, key=lambda k: best[k])
@@ -612,7 +657,7 @@ def disconnection_diagnosis(prep: Prepared) -> list[str]:
             f"'{prep.segments[worst].id}'); fix: a device that trips at a lower current "
             f"(curve B, a lower instantaneous setting), residual-current protection, more "
             f"parallel sets (max_sets), or a shorter run")
-    return lines
+    return lines + _further_failures(below, "earth-fault disconnection")
 
 
 def _motor_start_diagnosis(prep: Prepared) -> list[str]:
