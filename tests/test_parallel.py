@@ -28,6 +28,21 @@ def test_answers_come_in_the_order_asked(monkeypatch):
     assert any(pid != os.getpid() for pid, _ in answers)
 
 
+def _blas_threads(_: int) -> tuple[int, int]:
+    from threadpoolctl import threadpool_info
+    return os.getpid(), max((p["num_threads"] for p in threadpool_info()), default=1)
+
+
+def test_each_worker_computes_on_one_thread(monkeypatch):
+    # Two workers on two cores, each with a linear-algebra pool of two spinning threads,
+    # took four times as long as they should (a deep riser's frontier: 76 s, not 19 s).
+    monkeypatch.setenv(parallel.WORKERS_ENV, "2")
+    np.ones(8) @ np.ones(8)             # the library is loaded before the fork
+    answers = parallel.ordered_map(_blas_threads, list(range(4)))
+    assert any(pid != os.getpid() for pid, _ in answers)
+    assert all(threads == 1 for _, threads in answers)
+
+
 def test_one_worker_runs_here(monkeypatch):
     monkeypatch.setenv(parallel.WORKERS_ENV, "1")
     assert parallel.workers() == 1
