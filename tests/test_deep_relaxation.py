@@ -152,3 +152,33 @@ def test_identical_runs_share_their_dominance_check():
     expected = tree_engine._undominated_multi(np.tile(p.cost, 2), np.tile(own, (2, 1)),
                                               repeated.offsets)
     assert np.array_equal(relax.usable_rows(repeated), expected)
+
+
+@pytest.mark.parametrize("seed", range(20))
+def test_one_resource_hulls_choose_a_least_row_like_a_pass_over_every_row(seed):
+    # With one priced resource the relaxed choice is read off each segment's lower convex
+    # hull; a pass over every row (the general method) must find the same least price.
+    rng = np.random.default_rng(seed)
+    n = 60
+    counts = rng.integers(1, 12, n)
+    counts[n // 2:] = counts[: n - n // 2]                  # repeated segments share hulls
+    starts = np.cumsum(counts) - counts
+    cost = np.round(rng.uniform(1, 10, counts.sum()), 1)  # ties in cost and in value too
+    value = np.round(rng.uniform(0, 3, counts.sum()), 1)
+    for s in range(n // 2, n):
+        a, b = starts[s - n // 2], starts[s]
+        cost[b:b + counts[s]] = cost[a:a + counts[s]]
+        value[b:b + counts[s]] = value[a:a + counts[s]]
+    rows = np.arange(counts.sum()) + 7
+    seg = np.repeat(np.arange(n), counts)
+    hulls = relax._Hulls(rows, starts, counts, cost, value)
+    padded = relax._Padded(rows, seg, starts, counts, cost, [value])
+    for w in (np.zeros(n), rng.exponential(2.0, n), np.full(n, 1e6), rng.uniform(0, 5, n)):
+        row_h, (v_h,), total_h = hulls.choose([w], exact=True)
+        row_p, _, total_p = padded.choose([w], exact=True)
+        price_h = cost[row_h - 7] + w * value[row_h - 7]
+        price_p = cost[row_p - 7] + w * value[row_p - 7]
+        np.testing.assert_allclose(price_h, price_p, rtol=1e-12, atol=1e-12)
+        assert np.array_equal(seg[row_h - 7], np.arange(n))  # a row of its own segment
+        assert np.array_equal(v_h, value[row_h - 7])
+        assert total_h == pytest.approx(total_p, rel=1e-12)

@@ -157,15 +157,7 @@ def solve_relaxed(problem: Problem, usable: np.ndarray | None = None,
     counts = np.bincount(seg, minlength=n)
     if np.any(counts == 0):  # pragma: no cover - every segment keeps its undominated rows
         return _stop(problem, SolveStatus.ERROR, "relaxation: a segment has no usable row", t0)
-    # one padded row of candidates per segment (padding: infinite cost, never chosen), so
-    # a relaxed choice is one argmin along the rows
-    width = int(counts.max())
-    pos = np.arange(rows.size) - np.repeat(np.cumsum(counts) - counts, counts)
-    pad_row = np.zeros((n, width), dtype=np.int64)
-    pad_row[:] = rows[np.cumsum(counts) - 1][:, None]
-    pad_row[seg, pos] = rows
-    pad_cost = np.full((n, width), np.inf)
-    pad_cost[seg, pos] = problem.cost[rows]
+    starts = np.cumsum(counts) - counts
     names = [("drop", "%"), *problem.extra_path_names()]
     resources = [(problem.drop_pct, problem.fixed_drop_pct, problem.limit_pct)]
     resources += [(own, np.zeros(n), lim) for own, lim in problem.extra_paths()]
@@ -184,44 +176,38 @@ def solve_relaxed(problem: Problem, usable: np.ndarray | None = None,
             continue
         # resources in units of a typical limit, so one step size suits them all
         scale = float(np.median(np.abs(limit[kept]))) or 1.0
-        values.append(value[pad_row] / scale)
+        values.append(value[rows] / scale)
         fixes.append(fixed / scale)
         cons.append(kept)
         lims.append(limit[kept] / scale)
         scales.append(scale)
     k = len(values)
-
-    # the steps price in float32 (half the memory traffic); the bound stated is L(μ)
-    # evaluated again in float64 at the best multipliers
-    cost32 = pad_cost.astype(np.float32)
-    values32 = [v.astype(np.float32) for v in values]
+    cost = problem.cost[rows]
+    chooser: _Hulls | _Padded = (_Hulls(rows, starts, counts, cost, values[0]) if k == 1
+                                 else _Padded(rows, seg, starts, counts, cost, values))
 
     def relaxed(mu: list[np.ndarray], exact: bool = False
                 ) -> tuple[float, np.ndarray, list[np.ndarray]]:
         """L(μ), the relaxed choice (a row per segment) and each limit's excess."""
-        price = (pad_cost if exact else cost32).copy()
-        term = np.empty_like(price)
         bound = 0.0
+        prices = []
         for j in range(k):
             full = np.zeros(n)
             full[cons[j]] = mu[j]
             w = tree.subtree_sum(full)
-            np.multiply(values[j] if exact else values32[j], w[:, None].astype(price.dtype),
-                        out=term)
-            price += term
+            prices.append(w)
             bound += float(w @ fixes[j]) - float(mu[j] @ lims[j])
-        pick = np.argmin(price, axis=1)
-        at = (np.arange(n), pick)
-        excess = [tree.path_sum(values[j][at] + fixes[j])[cons[j]] - lims[j]
+        pick, chosen, total = chooser.choose(prices, exact)
+        excess = [tree.path_sum(chosen[j] + fixes[j])[cons[j]] - lims[j]
                   for j in range(k)]
-        return bound + float(price[at].sum(dtype=np.float64)), pad_row[at], excess
+        return bound + total, pick, excess
 
     # a price per unit resource at which segments start to trade cost for it
-    real = np.isfinite(pad_cost)
-    spread_c = float(np.sum(np.max(np.where(real, pad_cost, -np.inf), axis=1)
-                            - np.min(pad_cost, axis=1)))
-    base = [spread_c / max(float(np.sum(np.ptp(v, axis=1))), 1e-300) / max(c.size, 1)
-            for v, c in zip(values, cons, strict=True)]
+    spread_c = float(np.sum(np.maximum.reduceat(cost, starts)
+                            - np.minimum.reduceat(cost, starts)))
+    base = [spread_c / max(float(np.sum(np.maximum.reduceat(v, starts)
+                                        - np.minimum.reduceat(v, starts))), 1e-300)
+            / max(c.size, 1) for v, c in zip(values, cons, strict=True)]
 
     raised: list[np.ndarray] = [np.zeros(c.size) for c in cons]
 
@@ -294,6 +280,135 @@ def solve_relaxed(problem: Problem, usable: np.ndarray | None = None,
     return Solution(status=SolveStatus.OPTIMAL if closed else SolveStatus.BOUNDED,
                     choice=choice, objective=objective, proven_optimal=closed, gap=gap,
                     engine=_ENGINE, message=message, seconds=time.perf_counter() - t0)
+
+
+class _Padded:
+    """The relaxed choice in any number of resources, by one pass over every row.
+
+    One padded row of candidates per segment (padding repeats the last row at infinite
+    cost, never chosen), so a choice is one argmin along the rows.
+    """
+
+    def __init__(self, rows: np.ndarray, seg: np.ndarray, starts: np.ndarray,
+                 counts: np.ndarray, cost: np.ndarray, values: list[np.ndarray]) -> None:
+        n, width = counts.size, int(counts.max())
+        pos = np.arange(rows.size) - np.repeat(starts, counts)
+        last = starts + counts - 1
+        self.row = np.empty((n, width), dtype=np.int64)
+        self.row[:] = rows[last][:, None]
+        self.row[seg, pos] = rows
+        self.cost = np.full((n, width), np.inf)
+        self.cost[seg, pos] = cost
+        self.values = []
+        for v in values:
+            pad = np.empty((n, width))
+            pad[:] = v[last][:, None]
+            pad[seg, pos] = v
+            self.values.append(pad)
+        # the steps price in float32 (half the memory traffic); the bound stated is L(μ)
+        # evaluated again in float64 at the best multipliers
+        self.cost32 = self.cost.astype(np.float32)
+        self.values32 = [v.astype(np.float32) for v in self.values]
+
+    def choose(self, prices: list[np.ndarray], exact: bool
+               ) -> tuple[np.ndarray, list[np.ndarray], float]:
+        """Each segment's row least in cost + Σ price × value; its values; Σ that least."""
+        price = (self.cost if exact else self.cost32).copy()
+        term = np.empty_like(price)
+        for j, w in enumerate(prices):
+            np.multiply(self.values[j] if exact else self.values32[j],
+                        w[:, None].astype(price.dtype), out=term)
+            price += term
+        pick = np.argmin(price, axis=1)
+        at = (np.arange(pick.size), pick)
+        return (self.row[at], [v[at] for v in self.values],
+                float(price[at].sum(dtype=np.float64)))
+
+
+class _Hulls:
+    """The relaxed choice in one resource, from each segment's lower convex hull.
+
+    With one price ``w ≥ 0`` a segment's least ``cost + w · value`` is a vertex of the
+    lower convex hull of its (value, cost) points, the one whose two edges' slopes
+    bracket ``−w``: from the cheapest row at ``w = 0`` to the least value as ``w`` grows.
+    So a choice is a count of breakpoints below ``w``, not a pass over every row; runs
+    with the same candidates (a riser's runs between two taps) share one hull.
+    """
+
+    def __init__(self, rows: np.ndarray, starts: np.ndarray, counts: np.ndarray,
+                 cost: np.ndarray, value: np.ndarray) -> None:
+        n = counts.size
+        group: dict[bytes, int] = {}
+        of_seg = np.empty(n, dtype=np.int64)
+        local: list[np.ndarray] = []
+        breaks: list[np.ndarray] = []
+        for s, (a, m) in enumerate(zip(starts.tolist(), counts.tolist(), strict=True)):
+            c, v = cost[a:a + m], value[a:a + m]
+            key = c.tobytes() + v.tobytes()
+            g = group.get(key)
+            if g is None:
+                g = group[key] = len(local)
+                vertices, at = _lower_hull(c, v)
+                local.append(vertices)
+                breaks.append(at)
+            of_seg[s] = g
+        # each segment's vertices and breaks, gathered from its group's hull
+        n_vert = np.array([x.size for x in local])
+        vert_off = np.concatenate(([0], np.cumsum(n_vert)))
+        nv = n_vert[of_seg]
+        self.seg_vert = np.cumsum(nv) - nv          # each segment's first vertex
+        at = np.repeat(vert_off[:-1][of_seg] - self.seg_vert, nv) + np.arange(nv.sum())
+        at_vertex = np.repeat(starts, nv) + np.concatenate(local)[at]
+        self.row, self.cost, self.value = rows[at_vertex], cost[at_vertex], value[at_vertex]
+        nb = nv - 1                                  # one break fewer than vertices
+        brk_off = vert_off[:-1] - np.arange(n_vert.size)
+        first_b = np.cumsum(nb) - nb
+        self.owner = np.repeat(np.arange(n), nb)
+        at = np.repeat(brk_off[of_seg] - first_b, nb) + np.arange(nb.sum())
+        self.breaks = np.concatenate(breaks)[at]
+        self.n = n
+
+    def choose(self, prices: list[np.ndarray], exact: bool
+               ) -> tuple[np.ndarray, list[np.ndarray], float]:
+        """Each segment's row least in cost + price × value; its value; Σ that least.
+
+        In float64 whether or not ``exact``: counting breaks costs the same in any width.
+        """
+        w = prices[0]
+        below = np.bincount(self.owner, weights=self.breaks < w[self.owner],
+                            minlength=self.n).astype(np.int64)
+        at = self.seg_vert + below
+        value = self.value[at]
+        return self.row[at], [value], float(np.sum(self.cost[at] + w * value))
+
+
+def _lower_hull(cost: np.ndarray, value: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The lower convex hull of (value, cost), cheapest vertex first, and its breaks.
+
+    A break is the price ``w`` at which the least ``cost + w · value`` passes from one
+    vertex to the next: vertex ``i`` is least for ``w`` between breaks ``i − 1`` and
+    ``i`` (ascending). Positions are into the arrays given.
+    """
+    order = np.lexsort((cost, value)).tolist()      # value ascending, then cost
+    c, v = cost.tolist(), value.tolist()
+    hull: list[int] = []
+    cheapest = np.inf
+    for i in order:
+        if c[i] >= cheapest:
+            continue    # no cheaper than a row of less value: never least for any w ≥ 0
+        cheapest = c[i]
+        while len(hull) >= 2:
+            a, b = hull[-2], hull[-1]
+            # b on or above the line from a to i: never strictly least
+            if (v[b] - v[a]) * (c[i] - c[b]) - (c[b] - c[a]) * (v[i] - v[b]) <= 0:
+                hull.pop()
+            else:
+                break
+        hull.append(i)
+    hull.reverse()                                   # cheapest first
+    at = [(c[hull[j + 1]] - c[hull[j]]) / (v[hull[j]] - v[hull[j + 1]])
+          for j in range(len(hull) - 1)]
+    return np.asarray(hull, dtype=np.int64), np.asarray(at, dtype=np.float64)
 
 
 def _stop(problem: Problem, status: SolveStatus, message: str, t0: float) -> Solution:
