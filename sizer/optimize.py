@@ -263,14 +263,15 @@ def build_problem(prep: Prepared, objective: Objective, *, loss_weight: float | 
     )
 
 
-def _curve_of(prep: Prepared, s: int, r: int) -> str | None:
-    """The miniature-breaker curve of run ``s`` on row ``r`` (None: another device)."""
-    t = prep.table
-    if t.curve is not None and t.curve[r]:
-        return str(t.curve[r])
-    device = run_device(prep.segments[s], prep.profile.fault)
-    return device if device in MINIATURE_CURVES and prep.segments[s].node.trip_multiple \
-        is None else None
+def _run_curves(prep: Prepared) -> list[str | None]:
+    """Each run's own miniature-breaker curve (None: another device), before any copy."""
+    fault = prep.profile.fault
+    out: list[str | None] = []
+    for seg in prep.segments:
+        device = run_device(seg, fault)
+        out.append(device if device in MINIATURE_CURVES and seg.node.trip_multiple is None
+                   else None)
+    return out
 
 
 def _route_terms(prep: Prepared) -> dict[str, np.ndarray]:
@@ -342,7 +343,7 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
 
     # Columns of the chosen rows as Python lists: one conversion per column, not one per
     # value (the same numbers).
-    def column(values: np.ndarray | None, default: float | int) -> list[Any]:
+    def column(values: np.ndarray | None, default: float | str) -> list[Any]:
         return [default] * n if values is None else values[choice].tolist()
 
     material, size_k, sets = column(t.material, 0), column(t.size_index, 0), column(t.sets, 1)
@@ -353,14 +354,31 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
     term_capex, race_capex = column(t.termination_capex, 0.0), column(t.raceway_capex, 0.0)
     race_k, pe_step = column(t.raceway_size, -1), column(t.pe_step, 0)
     route_top = column(t.route_top, 0.0)
+    neutral_k = column(t.neutral_size_index, -1)
+    curve_row = column(t.curve, "")
+    run_curve = _run_curves(prep)
+    phase = prep.phases.phase
+    sizing, neutral_a = prep.phases.sizing_a.tolist(), prep.phases.neutral_a.tolist()
+    labels: dict[tuple[str, int, int], str] = {}   # raceway wording, once per kind
     vd_list, path_list = vd.tolist(), path.tolist()
     operating, kwh_list, cost_list = (prep.runs.operating_a.tolist(), kwh.tolist(),
                                       cost_year.tolist())
     ids = [node.id for node in prep.scenario.nodes]
     for s, seg in enumerate(prep.segments):
-        r = int(choice[s])
         parent_id = (ids[seg.parent_index] if seg.parent_index >= 0
                      else prep.scenario.source.id)
+        # ``phase`` of a single-phase run, phase and neutral currents of a three-phase one
+        if seg.phases == 1:
+            phase_fields: dict[str, Any] = {"phase": phase[s]}
+        else:
+            phase_fields = {"phase_currents_a": tuple(sizing[s]), "neutral_a": neutral_a[s]}
+            if seg.neutral and t.neutral_size_index is not None:
+                phase_fields["neutral_size"] = sizes[neutral_k[s]]
+        cable = seg.node.cable
+        if race is not None:
+            key = (cable.installation, 1 if cable.sets_in_one_raceway else sets[s], race_k[s])
+            if key not in labels:
+                labels[key] = race.label(*key)
         results.append(SegmentResult(
             id=seg.id, parent=parent_id, kind=seg.kind,
             material=MATERIALS[material[s]],
@@ -375,20 +393,17 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
             loss_pv=loss_pv[s], temp_c=temp[s],
             voltage_v=seg.voltage_v, phases=seg.phases, pinned=seg.node.pin is not None,
             operating_a=operating[s], loss_kwh_per_year=kwh_list[s],
-            loss_cost_per_year=cost_list[s], **_phase_fields(prep, s, r),
+            loss_cost_per_year=cost_list[s], **phase_fields,
             terminal_max=sizes[top_k[s]] if top_k[s] >= 0 else "",
             termination="reducing splice" if ends[s] > 0 else "direct",
-            raceway=(race.label(seg.node.cable.installation,
-                                1 if seg.node.cable.sets_in_one_raceway else sets[s],
-                                race_k[s])
-                     if race is not None else ""),
+            raceway=labels[key] if race is not None else "",
             conductor_capex=capex[s] - term_capex[s] - race_capex[s],
             termination_capex=term_capex[s], raceway_capex=race_capex[s],
             route=seg.node.route,
             route_conductors=(int(min(route_top[s], 10**6))
                               if seg.node.route and t.route_top is not None else 0),
             pe_step=pe_step[s],
-            curve=_curve_of(prep, s, r),
+            curve=str(curve_row[s]) if curve_row[s] else run_curve[s],
         ))
     totals = Totals(
         capex=float(t.capex[choice].sum()),
@@ -405,20 +420,6 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
         notes=(solution.message,) if solution and solution.message else (),
         choice=tuple(int(r) for r in choice),
     )
-
-
-def _phase_fields(prep: Prepared, s: int, row: int) -> dict[str, Any]:
-    """``phase`` of a single-phase run, phase and neutral currents of a three-phase one."""
-    seg = prep.segments[s]
-    if seg.phases == 1:
-        return {"phase": prep.phases.phase[s]}
-    a, b, c = (float(v) for v in prep.phases.sizing_a[s])
-    out: dict[str, Any] = {"phase_currents_a": (a, b, c),
-                           "neutral_a": float(prep.phases.neutral_a[s])}
-    t = prep.table
-    if seg.neutral and t.neutral_size_index is not None:
-        out["neutral_size"] = prep.catalogue.sizes[int(t.neutral_size_index[row])]
-    return out
 
 
 def empty_design(prep: Prepared, status: DesignStatus, objective: str,
