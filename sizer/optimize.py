@@ -43,7 +43,7 @@ from sizer.earthfault import (
     with_larger_pe,
 )
 from sizer.economics import EconomicParams, demand_charge_per_w_year
-from sizer.engines import Problem, Solution, SolveStatus, solve
+from sizer.engines import KeptFronts, Problem, Solution, SolveStatus, solve
 from sizer.engines.problem import path_totals
 from sizer.faults import (
     S_BASE_VA,
@@ -473,7 +473,7 @@ def optimise(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
     solved = optimal_choice(prep, objective, engine=engine, solver=solver,
                             time_limit_s=time_limit_s, limit_pct=limit_pct,
                             loss_weight=loss_weight, motor_start=motor_start,
-                            disconnection=disconnection, **side)
+                            disconnection=disconnection, **side)  # type: ignore[arg-type]
     if isinstance(solved, Design):
         return solved
     return design_of(prep, solved, objective, limit_pct=limit_pct,
@@ -484,11 +484,13 @@ def optimal_choice(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *
                    engine: str = "auto", solver: str = "cbc",
                    time_limit_s: float | None = None, limit_pct: np.ndarray | None = None,
                    loss_weight: float | None = None, motor_start: bool = False,
-                   disconnection: bool = True, **side: object) -> Solution | Design:
+                   disconnection: bool = True, reuse: KeptFronts | None = None,
+                   **side: object) -> Solution | Design:
     """The solver's outcome alone, before any Design is assembled (``optimise``'s first half).
 
     A run with no candidate at all comes back at once as the diagnosed infeasible Design.
-    The closed loop with the load flow re-solves on this, and builds the Design once.
+    The closed loop with the load flow re-solves on this, and builds the Design once;
+    ``reuse`` carries the tree engine's fronts from one of its rounds to the next.
     """
     if _motor_start_applies(prep, motor_start):
         side["drop2_pct"], side["limit2_pct"] = motor_start_terms(prep)
@@ -499,7 +501,8 @@ def optimal_choice(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *
     with stage("engine"):
         problem = build_problem(prep, objective, loss_weight=loss_weight,
                                 limit_pct=limit_pct, disconnection=disconnection, **side)
-        return solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s)
+        return solve(problem, engine=engine, solver=solver, time_limit_s=time_limit_s,
+                     reuse=reuse)
 
 
 def _motor_start_applies(prep: Prepared, motor_start: bool) -> bool:

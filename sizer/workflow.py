@@ -22,7 +22,7 @@ from sizer.candidates import (
     withstand_i2t_a2s,
 )
 from sizer.conductors import impedance_ohm_per_m
-from sizer.engines import solve
+from sizer.engines import KeptFronts, solve
 from sizer.errors import InternalError
 from sizer.faults import S_BASE_VA, disconnection_time_s, earth_fault_a, loop_pu
 from sizer.model import Design, DesignStatus, Scenario, SegmentResult, Violation
@@ -597,10 +597,11 @@ def solve_verified(prep: Prepared, objective: Objective, *, engine: str = "auto"
     """
     limits = prep.leaf_limit_pct.copy()
     rounds = 0
+    fronts = KeptFronts()   # a round re-solves only the subtrees whose limits moved
     while True:
         solved = optimal_choice(prep, objective, engine=engine, solver=solver,
                                 time_limit_s=time_limit_s, limit_pct=limits,
-                                motor_start=motor_start)
+                                motor_start=motor_start, reuse=fronts)
         if isinstance(solved, Design):
             return solved, None
         if not solved.has_solution:

@@ -14,9 +14,10 @@ from sizer.engines import tree as _tree
 from sizer.engines.milp import SOLVERS, solve_milp, solver_available
 from sizer.engines.problem import Problem, Solution, SolveStatus
 from sizer.engines.routes import solve_tree_routes
+from sizer.engines.tree import KeptFronts
 from sizer.errors import ScenarioError
 
-__all__ = ["ENGINES", "SOLVERS", "Problem", "Solution", "SolveStatus", "solve",
+__all__ = ["ENGINES", "SOLVERS", "KeptFronts", "Problem", "Solution", "SolveStatus", "solve",
            "solver_available"]
 
 ENGINES = ("auto", "tree", "milp")
@@ -26,14 +27,15 @@ EXACT_BY_MILP_UP_TO = 2_000
 
 
 def solve(problem: Problem, engine: str = "auto", solver: str = "cbc",
-          time_limit_s: float | None = None) -> Solution:
+          time_limit_s: float | None = None, reuse: KeptFronts | None = None) -> Solution:
     """Solve ``problem`` with the named engine.
 
     ``auto`` runs the tree engine when the problem has no side constraints (shared
     routes aside: the tree engine bounds them and hands what it cannot prove to the
     MILP), else the MILP; when the tree engine's front bound is hit it falls back to the
     MILP and says so in the message. ``solver`` ("cbc" | "highs") and ``time_limit_s`` (wall clock,
-    seconds) apply to the MILP; the tree engine has no time limit.
+    seconds) apply to the MILP; the tree engine has no time limit. ``reuse``: the tree
+    engine's fronts from the last solve of this problem with other limits, to reuse.
     """
     if engine not in ENGINES:
         raise ScenarioError(f"unknown engine {engine!r}; choose one of {', '.join(ENGINES)}",
@@ -49,7 +51,7 @@ def solve(problem: Problem, engine: str = "auto", solver: str = "cbc",
                             "caps, frontier caps); use engine 'auto' or 'milp'", field="engine")
     if engine == "milp" or (engine == "auto" and problem.has_side_constraints):
         return solve_milp(problem, solver=solver, time_limit_s=time_limit_s)
-    first = _tree.solve_tree(problem, max_front=_tree.DEFAULT_MAX_FRONT)
+    first = _tree.solve_tree(problem, max_front=_tree.DEFAULT_MAX_FRONT, reuse=reuse)
     if engine == "auto" and first.status is SolveStatus.BOUNDED and first.gap is None \
             and problem.n_segments <= EXACT_BY_MILP_UP_TO:
         # a small tree whose fronts were thinned: the MILP proves the optimum quickly

@@ -47,7 +47,7 @@ from sizer.errors import InternalError
 from sizer.topology import Topology
 
 __all__ = ["DEFAULT_MAX_FRONT", "DEFAULT_MAX_FRONT_MULTI", "DEFAULT_MAX_QUERIES",
-           "exact_grid_pct", "solve_tree", "solve_tree_multi", "undominated_rows"]
+           "KeptFronts", "exact_grid_pct", "solve_tree", "solve_tree_multi", "undominated_rows"]
 
 DEFAULT_MAX_FRONT = 100_000
 DEFAULT_MAX_FRONT_MULTI = 4_000
@@ -332,7 +332,7 @@ def _subtree_requirements(own: list[float], floor: list[float], parent: list[int
 def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
                tol_pct: float = 1e-9, max_queries: int = DEFAULT_MAX_QUERIES,
                thin_at: int = THIN_AT, thin_to: int = THIN_TO,
-               deep_at: int | None = None) -> Solution:
+               deep_at: int | None = None, reuse: KeptFronts | None = None) -> Solution:
     """Solve a pure tree problem exactly by the bottom-up Pareto-front program.
 
     ``max_front`` bounds the points of any one front; past it the solve stops with
@@ -350,6 +350,9 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
     ``DEEP_AT_MULTI`` for several that bind) the limits are relaxed instead
     (``sizer.engines.relax``): the design meets every limit and the solution states its
     proven gap to the least cost.
+
+    ``reuse``: fronts kept from the last solve of this problem with other limits (see
+    ``solve_tree_multi``), updated by this one.
     """
     t0 = time.perf_counter()
     if problem.has_side_constraints:
@@ -370,7 +373,7 @@ def solve_tree(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT,
             return solve_tree_multi(relaxed,
                                     max_front=min(max_front, DEFAULT_MAX_FRONT_MULTI),
                                     tol_pct=tol_pct, thin_at=min(thin_at, THIN_AT_MULTI),
-                                    thin_to=min(thin_to, THIN_TO_MULTI))
+                                    thin_to=min(thin_to, THIN_TO_MULTI), reuse=reuse)
         problem = relaxed  # every further limit holds whatever is chosen: drop alone
     if tree_depth(problem.parent) >= (DEEP_AT if deep_at is None else deep_at):
         # the drop alone down thousands of runs: its fronts too grow with the depth
@@ -807,9 +810,122 @@ def _merge_staircases(kids: list[int], floor: np.ndarray, f_cost: list[np.ndarra
     return c[::-1].copy(), req[::-1].copy(), kid[::-1].copy()
 
 
+class _MultiSetup:
+    """What a solve in several resources works out before its fronts.
+
+    It depends on the problem and on which limits are finite, not on the limits' values,
+    so the closed loop's re-solves (``KeptFronts``) take it as it was.
+    """
+
+    def __init__(self, problem: Problem, values: list[np.ndarray], limits: list[np.ndarray],
+                 tol_pct: float) -> None:
+        n = problem.n_segments
+        k = len(values)
+        self.parent = parent = problem.parent.tolist()
+        self.children = _children(problem.parent)
+        fixed = [problem.fixed_drop_pct] + [np.zeros(n)] * (k - 1)
+        seg_of = problem.segment_of_row
+        # A resource matters to a segment only when its subtree holds a finite limit of
+        # it; elsewhere its values never enter a constrained sum and are set to 0 (exact).
+        columns = []
+        for lim in limits:  # children come after their parents: one backward pass each
+            col = np.isfinite(lim).tolist()
+            for s in range(n - 1, -1, -1):
+                if col[s] and parent[s] >= 0:
+                    col[parent[s]] = True
+            columns.append(col)
+        relevant = np.array(columns, dtype=bool).T.reshape(n, len(limits))
+        self.own = own = np.column_stack(values) * relevant[seg_of]  # [rows, k]
+        multi: np.ndarray = np.any(relevant[:, 1:], axis=1)
+        usable = np.zeros(problem.n_candidates, dtype=bool)
+        rows_1d, _ = undominated_rows(problem)  # drop alone: the fast running minimum
+        usable[rows_1d] = ~multi[seg_of[rows_1d]]
+        if multi.any():
+            pick = np.flatnonzero(multi[seg_of])
+            sub_off = np.concatenate(([0], np.cumsum(np.diff(problem.offsets)[multi])))
+            usable[pick] = _undominated_multi(problem.cost[pick], own[pick], sub_off)
+        self.seg_rows = np.split(np.flatnonzero(usable),
+                                 np.cumsum(np.bincount(seg_of[usable], minlength=n))[:-1])
+        self.fix = fix = np.column_stack(fixed)                 # [n, k]
+        # least value above each segment, per resource: requirements beyond tol − that fail
+        least_own = np.column_stack([np.minimum.reduceat(v, problem.offsets[:-1])
+                                     for v in values]) + fix
+        most_own = np.column_stack([np.maximum.reduceat(v, problem.offsets[:-1])
+                                    for v in values]) + fix
+        # Σ over the strict ancestors = the parent's path sum (the same additions in order)
+        topo = Topology(problem.parent)
+        has = problem.parent >= 0
+        above = np.zeros((n, k))
+        above_most = np.zeros((n, k))
+        for j in range(k):
+            above[has, j] = topo.path_sum(least_own[:, j])[problem.parent[has]]
+            above_most[has, j] = topo.path_sum(most_own[:, j])[problem.parent[has]]
+        self.cap = tol_pct - above
+        # A requirement the path above always leaves room for, whatever it chooses, is as
+        # good as any lower one: clamping to it lets such points collapse (exact).
+        self.low = -above_most  # (not tol − …: keeps the whole tolerance against rounding)
+        self.simple = np.array([not c for c in self.children]) & ~multi
+
+
+class KeptFronts:
+    """The fronts of one solve of several path resources, for the next with new limits.
+
+    Holds a digest of what the fronts were worked out from and the limits themselves;
+    ``changed`` says which segments a new solve must work out again: those whose limit
+    moved and every run above them. None when anything but the limits differs.
+    """
+
+    def __init__(self) -> None:
+        self.inputs: tuple | None = None
+        self.floor = np.empty((0, 0))
+        self.setup: _MultiSetup | None = None
+        self.fronts: tuple[list[np.ndarray], ...] = ([], [], [], [])
+        self.lost = np.empty((0, 0))
+        self.thinned_at = np.empty(0, dtype=np.int64)
+
+    def changed(self, inputs: tuple, floor: np.ndarray) -> np.ndarray | None:
+        """Segments to work out again (a mask), or None when nothing can be kept."""
+        if (self.setup is None or self.floor.shape != floor.shape
+                or self.inputs != _digest(inputs)):
+            return None
+        moved = np.any(self.floor != floor, axis=1).tolist()
+        up = self.setup.parent
+        for s in range(len(moved) - 1, -1, -1):   # a moved limit moves every front above
+            if moved[s] and up[s] >= 0:
+                moved[up[s]] = True
+        return np.asarray(moved, dtype=bool)
+
+    def keep(self, inputs: tuple, floor: np.ndarray, setup: _MultiSetup,
+             fronts: tuple[list[np.ndarray], ...], lost: np.ndarray,
+             thinned_at: np.ndarray) -> None:
+        """Remember a finished solve."""
+        self.inputs, self.floor, self.setup = _digest(inputs), floor.copy(), setup
+        self.fronts, self.lost, self.thinned_at = fronts, lost, thinned_at
+
+
+def _digest(inputs: tuple) -> tuple:
+    """What a solve's fronts were worked out from, other than the limits, to compare.
+
+    Arrays of a segment each (and plain values) whole; the candidates' costs and values
+    (millions of rows) by their shape, sum and every 997th value: they come from the
+    same table in every round of one closed loop, and a digest that differs only means
+    working everything out again.
+    """
+    out: list[object] = []
+    for a in inputs:
+        if not isinstance(a, np.ndarray):
+            out.append(a)
+        elif a.size <= 1_000_000:
+            out.append((a.shape, a.tobytes()))
+        else:
+            out.append((a.shape, float(np.sum(a)), a.ravel()[::997].tobytes()))
+    return tuple(out)
+
+
 def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MULTI,
                      tol_pct: float = 1e-9, thin_at: int = THIN_AT_MULTI,
-                     thin_to: int = THIN_TO_MULTI) -> Solution:
+                     thin_to: int = THIN_TO_MULTI, reuse: KeptFronts | None = None
+                     ) -> Solution:
     """Exact bottom-up program with several additive path resources.
 
     The same recursion as :func:`solve_tree`, with a requirement vector per point: for
@@ -822,69 +938,47 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
     stops with status ERROR (``solve(engine="auto")`` then falls back to the MILP).
     Past ``thin_at`` points a front is thinned by ε-dominance (``_thin_multi``) and the
     solution is ``bounded``, with the tolerance per resource in its message.
+
+    ``reuse``: the fronts of the last solve of the same problem with other limits (the
+    closed loop with the load flow tightens a few loads' limits and solves again). A
+    subtree whose limits are all unchanged has the same front, so only the loads whose
+    limits changed and the runs above them are worked out again; the answer is the same
+    as a solve from nothing.
     """
     t0 = time.perf_counter()
     n = problem.n_segments
-    parent = problem.parent.tolist()
-    children = _children(problem.parent)
     values = [problem.drop_pct] + [own for own, _ in problem.extra_paths()]
     limits = [problem.limit_pct] + [lim for _, lim in problem.extra_paths()]
-    fixed = [problem.fixed_drop_pct] + [np.zeros(n)] * (len(values) - 1)
     k = len(values)
-    seg_of = problem.segment_of_row
-    # A resource matters to a segment only when its subtree holds a finite limit of it;
-    # elsewhere its values never enter a constrained sum and are set to 0 (exact).
-    columns = []
-    for lim in limits:  # children come after their parents: one backward pass each
-        col = np.isfinite(lim).tolist()
-        for s in range(n - 1, -1, -1):
-            if col[s] and parent[s] >= 0:
-                col[parent[s]] = True
-        columns.append(col)
-    relevant = np.array(columns, dtype=bool).T.reshape(n, len(limits))
-    own = np.column_stack(values) * relevant[seg_of]  # [rows, k]
-    multi: np.ndarray = np.any(relevant[:, 1:], axis=1)
-    usable = np.zeros(problem.n_candidates, dtype=bool)
-    rows_1d, _ = undominated_rows(problem)  # drop alone: the fast running minimum
-    usable[rows_1d] = ~multi[seg_of[rows_1d]]
-    if multi.any():
-        pick = np.flatnonzero(multi[seg_of])
-        sub_off = np.concatenate(([0], np.cumsum(np.diff(problem.offsets)[multi])))
-        usable[pick] = _undominated_multi(problem.cost[pick], own[pick], sub_off)
-    seg_rows = np.split(np.flatnonzero(usable),
-                        np.cumsum(np.bincount(seg_of[usable], minlength=n))[:-1])
-    fix = np.column_stack(fixed)                 # [n, k]
     floor = -np.column_stack(limits)             # [n, k]: −limit (−inf: unconstrained)
-    # least value above each segment, per resource: requirements beyond tol − that fail
-    least_own = np.column_stack([np.minimum.reduceat(v, problem.offsets[:-1])
-                                 for v in values]) + fix
-    most_own = np.column_stack([np.maximum.reduceat(v, problem.offsets[:-1])
-                                for v in values]) + fix
-    # Σ over the strict ancestors = the parent's path sum (the same additions in order)
-    topo = Topology(problem.parent)
-    has = problem.parent >= 0
-    above = np.zeros((n, k))
-    above_most = np.zeros((n, k))
-    for j in range(k):
-        above[has, j] = topo.path_sum(least_own[:, j])[problem.parent[has]]
-        above_most[has, j] = topo.path_sum(most_own[:, j])[problem.parent[has]]
-    cap = tol_pct - above
-    # A requirement the path above always leaves room for, whatever it chooses, is as
-    # good as any lower one: clamping to it lets such points collapse (exact).
-    low = -above_most  # (not tol − …: keeps the whole tolerance against rounding)
-
-    f_cost: list[np.ndarray] = [np.empty(0)] * n
-    f_req: list[np.ndarray] = [np.empty((0, k))] * n
-    f_row: list[np.ndarray] = [np.empty(0, dtype=np.int64)] * n
-    f_kid: list[np.ndarray] = [np.empty((0, 0), dtype=np.int64)] * n
-    lost = np.zeros((n, k))  # ε-dominance tolerance used at or below each segment
-    thinned = 0
+    # all a solve works out before its fronts depends on these, and on which limits are
+    # finite, but not on the limits' values
+    inputs = (problem.parent, problem.offsets, problem.cost, problem.fixed_drop_pct,
+              *values, np.isfinite(floor), (tol_pct, thin_at, thin_to, max_front))
+    todo = reuse.changed(inputs, floor) if reuse is not None else None
+    if todo is not None and reuse is not None and reuse.setup is not None:
+        setup = reuse.setup
+        f_cost, f_req, f_row, f_kid = (list(reuse.fronts[0]), list(reuse.fronts[1]),
+                                       list(reuse.fronts[2]), list(reuse.fronts[3]))
+        lost, thinned_at = reuse.lost.copy(), reuse.thinned_at.copy()
+        lost[todo] = 0.0
+        thinned_at[todo] = 0
+    else:
+        setup = _MultiSetup(problem, values, limits, tol_pct)
+        todo = np.ones(n, dtype=bool)
+        f_cost = [np.empty(0)] * n
+        f_req = [np.empty((0, k))] * n
+        f_row = [np.empty(0, dtype=np.int64)] * n
+        f_kid = [np.empty((0, 0), dtype=np.int64)] * n
+        lost = np.zeros((n, k))  # ε-dominance tolerance used at or below each segment
+        thinned_at = np.zeros(n, dtype=np.int64)  # fronts thinned at each segment
+    parent, children, own, fix = setup.parent, setup.children, setup.own, setup.fix
+    seg_rows, simple, cap, low = setup.seg_rows, setup.simple, setup.cap, setup.low
     # Leaves where only the drop matters (most of a large tree) all at once: their
     # fronts are staircases in the drop alone.
-    simple = np.array([not c for c in children]) & ~multi
-    largest = _simple_leaf_fronts(np.flatnonzero(simple), seg_rows, problem.cost, own, fix,
-                                  floor, cap, low, f_cost, f_req, f_row, f_kid)
-    for s in range(n - 1, -1, -1):
+    _simple_leaf_fronts(np.flatnonzero(simple & todo), seg_rows, problem.cost, own, fix,
+                        floor, cap, low, f_cost, f_req, f_row, f_kid)
+    for s in np.flatnonzero(todo)[::-1].tolist():
         kids = children[s]
         if simple[s]:
             if f_cost[s].size == 0:
@@ -918,7 +1012,7 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
             m_cost, m_req, m_kid = m_cost[keep], m_req[keep], m_kid[keep]
             if eps is not None:
                 lost[s] += eps
-                thinned += 1
+                thinned_at[s] += 1
             if m_cost.size > max_front:
                 return _failure(problem, SolveStatus.ERROR,
                                 _bound_message(f"segment {s}", max_front), t0)
@@ -937,7 +1031,7 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
         cost, req, row, kid = cost[keep], req[keep], row[keep], kid[keep]
         if eps is not None:
             lost[s] += eps
-            thinned += 1
+            thinned_at[s] += 1
         if cost.size == 0:
             return _failure(
                 problem, SolveStatus.INFEASIBLE,
@@ -945,10 +1039,14 @@ def solve_tree_multi(problem: Problem, *, max_front: int = DEFAULT_MAX_FRONT_MUL
         if cost.size > max_front:
             return _failure(problem, SolveStatus.ERROR,
                             _bound_message(f"segment {s}", max_front), t0)
-        largest = max(largest, cost.size)
         f_cost[s], f_req[s], f_row[s], f_kid[s] = cost, req, row, kid
-        for c in kids:  # children's fronts are only needed through the back pointers
-            f_req[c] = np.empty((0, k))
+        if reuse is None:
+            for c in kids:  # children's fronts are only needed through the back pointers
+                f_req[c] = np.empty((0, k))
+    largest = max((f.size for f in f_cost), default=0)
+    thinned = int(thinned_at.sum())
+    if reuse is not None:
+        reuse.keep(inputs, floor, setup, (f_cost, f_req, f_row, f_kid), lost, thinned_at)
 
     point = [0] * n
     choice = np.empty(n, dtype=np.int64)
