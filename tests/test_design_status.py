@@ -47,7 +47,7 @@ load = "8 kW"
 """
 
 
-def _no_design_solver(problem, engine="auto", solver="cbc", time_limit_s=None):
+def _no_design_solver(problem, engine="auto", solver="cbc", time_limit_s=None, reuse=None):
     """What the MILP returns when its time limit passes before any incumbent."""
     return Solution(status=SolveStatus.TIME_LIMIT,
                     choice=np.full(problem.n_segments, -1, dtype=np.int64),
