@@ -37,8 +37,7 @@ T = TypeVar("T")
 
 # The top-level stages the CLI marks (sizer.stages), in the order they run.
 STAGES = ("read", "currents", "candidates", "engine", "design", "audit", "verify",
-          "findings", "options", "drivers", "frontier", "frontier_verify", "write",
-          "summary")
+          "findings", "alternatives", "frontier", "frontier_verify", "write", "summary")
 # Start-up: a fresh interpreter running a command that needs no optimiser, plotting or
 # load flow (issue 17): what a user waits for before sizer starts its work.
 STARTUP_COMMANDS: dict[str, tuple[str, ...]] = {

@@ -21,14 +21,16 @@ from sizer.workflow import (
     DisconnectionDriver,
     FrontierPoint,
     Option,
+    Plan,
     Progress,
     Verification,
     check_verified,
-    compare_options,
-    disconnection_drivers,
-    frontier,
+    drivers_plan,
     frontier_designs,
+    frontier_plan,
+    options_plan,
     quiet,
+    run_plans,
     solve_verified,
 )
 
@@ -131,21 +133,27 @@ def solve_results(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
     options: tuple[Option, ...] = ()
     points: tuple[FrontierPoint, ...] = ()
     drivers: tuple[DisconnectionDriver, ...] = ()
+    plans: list[Plan[Any]] = []
     if compare and design.segments:
-        with stage("options"):
-            options = tuple(compare_options(prep, engine=engine, solver=solver,
-                                            time_limit_s=time_limit_s, progress=progress,
-                                            solved=[design]))
+        plans.append(options_plan(prep, engine=engine, solver=solver,
+                                  time_limit_s=time_limit_s, progress=progress,
+                                  solved=[design]))
         progress("runs sized by disconnection rather than drop")
-        with stage("drivers"):
-            drivers = disconnection_drivers(prep, design)
+        plans.append(drivers_plan(prep, design))
     if frontier_points and design.segments:
         progress("frontier of upfront cost against losses")
-        with stage("frontier"):
-            points = tuple(frontier(
-                prep, frontier_points, engine=engine, solver=solver,
-                time_limit_s=REPORT_FRONTIER_TIME_LIMIT_S if time_limit_s is None
-                else min(time_limit_s, REPORT_FRONTIER_TIME_LIMIT_S), progress=progress))
+        plans.append(frontier_plan(
+            prep, frontier_points, engine=engine, solver=solver,
+            time_limit_s=REPORT_FRONTIER_TIME_LIMIT_S if time_limit_s is None
+            else min(time_limit_s, REPORT_FRONTIER_TIME_LIMIT_S), progress=progress))
+    # the options, the drivers' solve and the frontier's weights side by side, so that
+    # no core waits for the longest of one of them
+    with stage("alternatives"):
+        answers = run_plans(*plans)
+    if compare and design.segments:
+        options, drivers = tuple(answers.pop(0)), answers.pop(0)
+    if frontier_points and design.segments:
+        points = tuple(answers.pop(0))
     progress("verifying the frontier's designs")
     with stage("frontier_verify"):
         designs = frontier_designs(prep, points)

@@ -12,6 +12,7 @@ import weakref
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
 from functools import partial
+from typing import Any, Generic, TypeVar
 
 import numpy as np
 
@@ -83,6 +84,33 @@ class FrontierPoint:
 FRONTIER_FILL_MAX_SEGMENTS = 2000
 
 
+R = TypeVar("R")
+
+
+@dataclass(frozen=True)
+class Plan(Generic[R]):
+    """Independent solves, and how their answers make one result.
+
+    Plans run together (``run_plans``) share the machine's cores: a long option and the
+    frontier's weights keep both busy, where one after another a core waits for the
+    longest solve of each.
+    """
+
+    calls: Sequence[Callable[[], object]]
+    finish: Callable[[list[object]], R]
+
+
+def run_plans(*plans: Plan[Any]) -> list[Any]:
+    """Every plan's result; all their solves side by side, in the order given."""
+    calls = [c for p in plans for c in p.calls]
+    answers = ordered_map(lambda k: calls[k](), list(range(len(calls))))
+    out, at = [], 0
+    for p in plans:
+        out.append(p.finish(answers[at:at + len(p.calls)]))
+        at += len(p.calls)
+    return out
+
+
 def frontier(prep: Prepared, points: int = 12, *, engine: str = "auto", solver: str = "cbc",
              time_limit_s: float | None = 60.0, fill: bool = True,
              progress: Progress = quiet) -> list[FrontierPoint]:
@@ -93,10 +121,18 @@ def frontier(prep: Prepared, points: int = 12, *, engine: str = "auto", solver: 
     the gap's middle) looks for a design inside it, when it can finish in the time limit
     and the tree has at most FRONTIER_FILL_MAX_SEGMENTS runs.
     """
+    plan = frontier_plan(prep, points, engine=engine, solver=solver,
+                         time_limit_s=time_limit_s, fill=fill, progress=progress)
+    return run_plans(plan)[0]
+
+
+def frontier_plan(prep: Prepared, points: int = 12, *, engine: str = "auto",
+                  solver: str = "cbc", time_limit_s: float | None = 60.0, fill: bool = True,
+                  progress: Progress = quiet) -> Plan[list[FrontierPoint]]:
+    """``frontier`` as a plan: its weighted solves, and how their answers make it."""
     t = prep.table
-    found: dict[tuple[int, ...], FrontierPoint] = {}
     # Weights from pure capex (0) to losses weighing 50× their present value.
-    weights = [0.0, *list(np.geomspace(0.05, 50.0, max(points - 1, 1)))]
+    weights = [0.0, *[float(w) for w in np.geomspace(0.05, 50.0, max(points - 1, 1))]]
     progress(f"frontier: {len(weights)} loss weights, {min(workers(), len(weights))} "
              f"at a time")
 
@@ -107,17 +143,30 @@ def frontier(prep: Prepared, points: int = 12, *, engine: str = "auto", solver: 
             return None
         return tuple(int(r) for r in sol.choice), sol.proven_optimal
 
-    # The weights are independent solves: side by side where the machine has the cores.
-    for w, answer in zip(weights, ordered_map(weighted, [float(w) for w in weights]),
-                         strict=True):
-        if answer is None:
-            return []
-        key, proven = answer
-        if key not in found:
-            chosen = np.asarray(key, dtype=np.int64)
-            found[key] = FrontierPoint(float(t.capex[chosen].sum()),
-                                       float(t.loss_pv[chosen].sum()), "weighted sum",
-                                       float(w), proven, key)
+    def finish(answers: list[object]) -> list[FrontierPoint]:
+        found: dict[tuple[int, ...], FrontierPoint] = {}
+        for w, answer in zip(weights, answers, strict=True):
+            if answer is None:
+                return []
+            assert isinstance(answer, tuple)
+            key: tuple[int, ...] = answer[0]
+            proven: bool = answer[1]
+            if key not in found:
+                chosen = np.asarray(key, dtype=np.int64)
+                found[key] = FrontierPoint(float(t.capex[chosen].sum()),
+                                           float(t.loss_pv[chosen].sum()), "weighted sum",
+                                           float(w), proven, key)
+        return _filled(prep, found, points, solver=solver, time_limit_s=time_limit_s,
+                       fill=fill, progress=progress)
+
+    return Plan([partial(weighted, w) for w in weights], finish)
+
+
+def _filled(prep: Prepared, found: dict[tuple[int, ...], FrontierPoint], points: int, *,
+            solver: str, time_limit_s: float | None, fill: bool,
+            progress: Progress) -> list[FrontierPoint]:
+    """The weighted sums' points, gaps filled by ε-constraint MILPs on small trees."""
+    t = prep.table
     pts = sorted(found.values(), key=lambda p: (p.capex, p.loss_pv))
     # The gap-filling MILP is worth its time on small trees only; on large ones the
     # weighted sums by the tree engine are the frontier.
@@ -501,6 +550,12 @@ def _conductor_text(s: SegmentResult, with_pe: bool, profile: str, with_curve: b
     return text
 
 
+def drivers_plan(prep: Prepared, design: Design) -> Plan[tuple[DisconnectionDriver, ...]]:
+    """``disconnection_drivers`` as a plan of one solve."""
+    return Plan([partial(disconnection_drivers, prep, design)],
+                lambda answers: answers[0])  # type: ignore[arg-type,return-value]
+
+
 def disconnection_drivers(prep: Prepared, design: Design) -> tuple[DisconnectionDriver, ...]:
     """Runs upsized by the disconnection rule, not by drop.
 
@@ -681,6 +736,18 @@ def compare_options(prep: Prepared, *, engine: str = "auto", solver: str = "cbc"
                     solved: Sequence[Design] = ()) -> list[Option]:
     """Code minimum, lifecycle optimum, all copper, without spare and pinned options.
 
+    See ``options_plan``.
+    """
+    return run_plans(options_plan(prep, engine=engine, solver=solver,
+                                  time_limit_s=time_limit_s, progress=progress,
+                                  solved=solved))[0]
+
+
+def options_plan(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",
+                 time_limit_s: float | None = None, progress: Progress = quiet,
+                 solved: Sequence[Design] = ()) -> Plan[list[Option]]:
+    """``compare_options`` as a plan: the options to solve, and how they are listed.
+
     The option without the spare capacity is there when a node reserves some; the pinned
     design when pins exist.
 
@@ -723,17 +790,15 @@ def compare_options(prep: Prepared, *, engine: str = "auto", solver: str = "cbc"
                      without_spare_option))
     if any(n.pin is not None for n in prep.scenario.nodes):
         jobs.append(("as_pinned", "Your pinned design (rest at least cost)", pinned_option))
-    # The options are independent solves: side by side where the machine has the cores.
     progress(f"options: {', '.join(key for key, _, _ in jobs)}")
+    todo = [job for _, _, job in jobs if not isinstance(job, Design)]
 
-    def run(k: int) -> Design:
-        job = jobs[k][2]
-        return job if isinstance(job, Design) else job()
+    def finish(answers: list[object]) -> list[Option]:
+        done = iter(answers)
+        return [Option(key, title, job if isinstance(job, Design) else next(done))  # type: ignore[arg-type]
+                for key, title, job in jobs]
 
-    todo = [k for k, (_, _, job) in enumerate(jobs) if not isinstance(job, Design)]
-    done = dict(zip(todo, ordered_map(run, todo), strict=True))
-    return [Option(key, title, done[k] if k in done else run(k))
-            for k, (key, title, _) in enumerate(jobs)]
+    return Plan(todo, finish)
 
 
 # --- an independent look at the answer ---------------------------------------------------

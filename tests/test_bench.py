@@ -119,7 +119,8 @@ def test_the_report_options_do_not_overwrite_the_runs_own_counts(tmp_path, monke
     assert main(["solve", str(path), "--report", str(tmp_path / "r.html"), "--quiet"]) == 0
     doc = json.loads(log.read_text())
     assert doc["counts"]["candidate_rows"] == alone   # not the all-copper option's table
-    assert "options" in {s["stage"] for s in doc["stages"]}
+    # the options, the drivers' solve and the frontier's weights run side by side
+    assert "alternatives" in {s["stage"] for s in doc["stages"]}
 
 
 def test_frontier_marks_its_stage(tmp_path, monkeypatch):
