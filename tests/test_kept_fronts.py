@@ -83,3 +83,28 @@ def test_a_problem_with_other_costs_is_worked_out_whole():
     fresh = tree_engine.solve_tree(dearer)
     assert np.array_equal(again.choice, fresh.choice)
     assert again.objective == fresh.objective
+
+
+def test_a_load_that_can_never_bind_under_either_limit_is_not_worked_out_again(monkeypatch):
+    # Every row of such a load needs less than the path above always leaves: its front is
+    # the same whatever its limit (requirements clamped), so moving the limit redoes
+    # nothing, and the answer is still that of a solve from nothing.
+    p = random_chain(7, 60, 4)
+    leaf = int(np.flatnonzero(np.bincount(p.parent[1:], minlength=p.n_segments) == 0)[-1])
+    lim, loop = p.limit_pct.copy(), p.loop_limit_pu.copy()
+    lim[leaf], loop[leaf] = 1e6, np.inf
+    p = dataclasses.replace(p, limit_pct=lim, loop_limit_pu=loop)
+    fronts = KeptFronts()
+    tree_engine.solve_tree(p, reuse=fronts)
+    lim = lim.copy()
+    lim[leaf] = 2e6
+    moved = dataclasses.replace(p, limit_pct=lim)
+    seen = []
+    real = tree_engine._reduce_multi
+    monkeypatch.setattr(tree_engine, "_reduce_multi",
+                        lambda *a: seen.append(1) or real(*a))
+    again = tree_engine.solve_tree(moved, reuse=fronts)
+    assert seen == []
+    monkeypatch.setattr(tree_engine, "_reduce_multi", real)
+    fresh = tree_engine.solve_tree(moved)
+    assert np.array_equal(again.choice, fresh.choice) and again.message == fresh.message

@@ -865,6 +865,14 @@ class _MultiSetup:
         # good as any lower one: clamping to it lets such points collapse (exact).
         self.low = -above_most  # (not tol − …: keeps the whole tolerance against rounding)
         self.simple = np.array([not c for c in self.children]) & ~multi
+        # each load's largest value of each resource, for ``KeptFronts.changed``
+        kept_rows = np.flatnonzero(usable)
+        has_rows = np.bincount(seg_of[kept_rows], minlength=n) > 0
+        self.max_own = np.full((n, k), -np.inf)
+        if kept_rows.size:
+            starts = np.searchsorted(kept_rows, problem.offsets[:-1][has_rows])
+            self.max_own[has_rows] = np.maximum.reduceat(own[kept_rows], starts)
+        self.leaf = np.array([not c for c in self.children])
 
 
 class KeptFronts:
@@ -888,8 +896,16 @@ class KeptFronts:
         if (self.setup is None or self.floor.shape != floor.shape
                 or self.inputs != _digest(inputs)):
             return None
-        moved = np.any(self.floor != floor, axis=1).tolist()
-        up = self.setup.parent
+        moved = np.any(self.floor != floor, axis=1)
+        # A load whose every row needs less than the path above always leaves, under its
+        # old limits and its new, has every requirement clamped to that (the front's
+        # ``low``): its front is the same, whatever the limits' values.
+        st = self.setup
+        with np.errstate(invalid="ignore"):   # −inf limits: nothing required
+            quiet = (st.leaf & np.all(st.max_own + st.fix + self.floor <= st.low, axis=1)
+                     & np.all(st.max_own + st.fix + floor <= st.low, axis=1))
+        moved = (moved & ~quiet).tolist()
+        up = st.parent
         for s in range(len(moved) - 1, -1, -1):   # a moved limit moves every front above
             if moved[s] and up[s] >= 0:
                 moved[up[s]] = True
