@@ -148,8 +148,10 @@ def solve_results(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
             else min(time_limit_s, REPORT_FRONTIER_TIME_LIMIT_S), progress=progress))
     # the options, the drivers' solve and the frontier's weights side by side, so that
     # no core waits for the longest of one of them
-    with stage("alternatives"):
-        answers = run_plans(*plans)
+    answers: list[Any] = []
+    if plans:
+        with stage("alternatives"):
+            answers = run_plans(*plans)
     if compare and design.segments:
         options, drivers = tuple(answers.pop(0)), answers.pop(0)
     if frontier_points and design.segments:
