@@ -552,8 +552,12 @@ def _conductor_text(s: SegmentResult, with_pe: bool, profile: str, with_curve: b
 
 def drivers_plan(prep: Prepared, design: Design) -> Plan[tuple[DisconnectionDriver, ...]]:
     """``disconnection_drivers`` as a plan of one solve."""
-    return Plan([partial(disconnection_drivers, prep, design)],
-                lambda answers: answers[0])  # type: ignore[arg-type,return-value]
+    def finish(answers: list[object]) -> tuple[DisconnectionDriver, ...]:
+        drivers = answers[0]
+        assert isinstance(drivers, tuple)
+        return drivers
+
+    return Plan([partial(disconnection_drivers, prep, design)], finish)
 
 
 def disconnection_drivers(prep: Prepared, design: Design) -> tuple[DisconnectionDriver, ...]:
