@@ -146,13 +146,17 @@ def _toml_inline(value: object) -> str:
 
 
 
-def deep_chain_scenario(depth: int) -> str:
-    """A riser ``depth`` runs deep: short runs in series, a small load every 100 floors."""
+def deep_chain_scenario(depth: int, run_ft: float = 0.5, tap_every: int = 100) -> str:
+    """A riser ``depth`` runs deep, runs of ``run_ft`` in series.
+
+    A small 277 V load hangs every ``tap_every`` floors and at the top.
+    """
     lines = [_HEAD.format(n=depth, seed=0)]
     parent = "UTIL"
     for i in range(depth):
-        lines += ["[[node]]", f'id = "R{i}"', f'parent = "{parent}"', 'length = "0.5 ft"', ""]
-        if i % 100 == 99 or i == depth - 1:
+        lines += ["[[node]]", f'id = "R{i}"', f'parent = "{parent}"',
+                  f'length = "{run_ft:g} ft"', ""]
+        if i % tap_every == tap_every - 1 or i == depth - 1:
             lines += ["[[node]]", f'id = "L{i}"', f'parent = "R{i}"', 'length = "30 ft"',
                       "phases = 1", 'voltage = "277 V"', 'load = "0.5 A"', ""]
         parent = f"R{i}"
