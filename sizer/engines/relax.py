@@ -105,13 +105,9 @@ def usable_rows(problem: Problem) -> np.ndarray:
 
     own = np.column_stack([problem.drop_pct] + [v for v, _ in problem.extra_paths()])
     off = problem.offsets.tolist()
-    first: dict[bytes, int] = {}
-    rep = np.empty(problem.n_segments, dtype=np.int64)
-    for s in range(problem.n_segments):
-        key = problem.cost[off[s]:off[s + 1]].tobytes() + own[off[s]:off[s + 1]].tobytes()
-        rep[s] = first.setdefault(key, s)
-    uniq = np.unique(rep)
     counts = np.diff(problem.offsets)
+    rep = _alike((problem.cost, own), problem.offsets[:-1], counts)
+    uniq = np.unique(rep)
     sub_off = np.concatenate(([0], np.cumsum(counts[uniq])))
     pick = np.concatenate([np.arange(off[s], off[s + 1]) for s in uniq.tolist()])
     keep_u = _undominated_multi(problem.cost[pick], own[pick], sub_off)
@@ -338,20 +334,14 @@ class _Hulls:
     def __init__(self, rows: np.ndarray, starts: np.ndarray, counts: np.ndarray,
                  cost: np.ndarray, value: np.ndarray) -> None:
         n = counts.size
-        group: dict[bytes, int] = {}
-        of_seg = np.empty(n, dtype=np.int64)
+        firsts, of_seg = np.unique(_alike((cost, value), starts, counts),
+                                   return_inverse=True)
         local: list[np.ndarray] = []
         breaks: list[np.ndarray] = []
-        for s, (a, m) in enumerate(zip(starts.tolist(), counts.tolist(), strict=True)):
-            c, v = cost[a:a + m], value[a:a + m]
-            key = c.tobytes() + v.tobytes()
-            g = group.get(key)
-            if g is None:
-                g = group[key] = len(local)
-                vertices, at = _lower_hull(c, v)
-                local.append(vertices)
-                breaks.append(at)
-            of_seg[s] = g
+        for a, m in zip(starts[firsts].tolist(), counts[firsts].tolist(), strict=True):
+            vertices, at = _lower_hull(cost[a:a + m], value[a:a + m])
+            local.append(vertices)
+            breaks.append(at)
         # each segment's vertices and breaks, gathered from its group's hull
         n_vert = np.array([x.size for x in local])
         vert_off = np.concatenate(([0], np.cumsum(n_vert)))
@@ -380,6 +370,20 @@ class _Hulls:
         at = self.seg_vert + below
         value = self.value[at]
         return self.row[at], [value], float(np.sum(self.cost[at] + w * value))
+
+
+def _alike(columns: tuple[np.ndarray, ...], starts: np.ndarray,
+           counts: np.ndarray) -> np.ndarray:
+    """For each segment, the first segment whose rows are the same in every column.
+
+    Segment ``s`` has rows ``starts[s] : starts[s] + counts[s]``. A riser's runs between
+    two taps have the same candidates: their work is done once.
+    """
+    first: dict[bytes, int] = {}
+    rep = np.empty(counts.size, dtype=np.int64)
+    for s, (a, m) in enumerate(zip(starts.tolist(), counts.tolist(), strict=True)):
+        rep[s] = first.setdefault(b"".join(c[a:a + m].tobytes() for c in columns), s)
+    return rep
 
 
 def _lower_hull(cost: np.ndarray, value: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
