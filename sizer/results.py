@@ -130,32 +130,28 @@ def solve_results(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
         design, verification = solve_verified(prep, objective, engine=engine, solver=solver,
                                               time_limit_s=time_limit_s,
                                               motor_start=motor_start)
-    options: tuple[Option, ...] = ()
-    points: tuple[FrontierPoint, ...] = ()
-    drivers: tuple[DisconnectionDriver, ...] = ()
-    plans: list[Plan[Any]] = []
+    plans: dict[str, Plan[Any]] = {}
     if compare and design.segments:
-        plans.append(options_plan(prep, engine=engine, solver=solver,
-                                  time_limit_s=time_limit_s, progress=progress,
-                                  solved=[design]))
+        plans["options"] = options_plan(prep, engine=engine, solver=solver,
+                                        time_limit_s=time_limit_s, progress=progress,
+                                        solved=[design])
         progress("runs sized by disconnection rather than drop")
-        plans.append(drivers_plan(prep, design))
+        plans["drivers"] = drivers_plan(prep, design)
     if frontier_points and design.segments:
         progress("frontier of upfront cost against losses")
-        plans.append(frontier_plan(
+        plans["frontier"] = frontier_plan(
             prep, frontier_points, engine=engine, solver=solver,
             time_limit_s=REPORT_FRONTIER_TIME_LIMIT_S if time_limit_s is None
-            else min(time_limit_s, REPORT_FRONTIER_TIME_LIMIT_S), progress=progress))
+            else min(time_limit_s, REPORT_FRONTIER_TIME_LIMIT_S), progress=progress)
     # the options, the drivers' solve and the frontier's weights side by side, so that
     # no core waits for the longest of one of them
-    answers: list[Any] = []
+    done: dict[str, Any] = {}
     if plans:
         with stage("alternatives"):
-            answers = run_plans(*plans)
-    if compare and design.segments:
-        options, drivers = tuple(answers.pop(0)), answers.pop(0)
-    if frontier_points and design.segments:
-        points = tuple(answers.pop(0))
+            done = dict(zip(plans, run_plans(*plans.values()), strict=True))
+    options: tuple[Option, ...] = tuple(done.get("options", ()))
+    drivers: tuple[DisconnectionDriver, ...] = done.get("drivers", ())
+    points: tuple[FrontierPoint, ...] = tuple(done.get("frontier", ()))
     progress("verifying the frontier's designs")
     with stage("frontier_verify"):
         designs = frontier_designs(prep, points)
