@@ -864,7 +864,8 @@ class _MultiSetup:
         # A requirement the path above always leaves room for, whatever it chooses, is as
         # good as any lower one: clamping to it lets such points collapse (exact).
         self.low = -above_most  # (not tol − …: keeps the whole tolerance against rounding)
-        self.simple = np.array([not c for c in self.children]) & ~multi
+        self.leaf = np.array([not c for c in self.children])
+        self.simple = self.leaf & ~multi
         # each load's largest value of each resource, for ``KeptFronts.changed``
         kept_rows = np.flatnonzero(usable)
         has_rows = np.bincount(seg_of[kept_rows], minlength=n) > 0
@@ -872,7 +873,6 @@ class _MultiSetup:
         if kept_rows.size:
             starts = np.searchsorted(kept_rows, problem.offsets[:-1][has_rows])
             self.max_own[has_rows] = np.maximum.reduceat(own[kept_rows], starts)
-        self.leaf = np.array([not c for c in self.children])
 
 
 class KeptFronts:
