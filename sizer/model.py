@@ -571,6 +571,41 @@ class Design:
         """The largest source-to-end drop over all segments (estimate)."""
         return max((s.path_vd_pct for s in self.segments), default=0.0)
 
+    def key_figures(self) -> KeyFigures:
+        """Its totals and the few figures a page compares designs by."""
+        segs = self.segments
+        flows = [s.loadflow_drop_pct for s in segs if s.loadflow_drop_pct is not None]
+        by_flow = bool(segs) and len(flows) == len(segs)
+        return KeyFigures(
+            totals=self.totals,
+            loss_w=1e3 * sum(s.loss_kw for s in segs),
+            loss_cost_per_year=sum(s.loss_cost_per_year for s in segs),
+            findings=len(self.violations),
+            worst_drop_pct=max(flows) if by_flow else self.worst_path_drop_pct(),
+            drop_basis=LOADFLOW_BASIS if by_flow else ESTIMATE_BASIS,
+            conductors=tuple((s.material, s.size, s.sets) for s in segs))
+
+
+LOADFLOW_BASIS = "AC load flow"
+ESTIMATE_BASIS = "linear estimate"
+
+
+@dataclass(frozen=True)
+class KeyFigures:
+    """What a page shows of a design beside the others: totals and a few figures.
+
+    Money in the design's currency. ``conductors`` is each run's (material, size, sets)
+    in run order: two designs with the same conductors are one design on a page.
+    """
+
+    totals: Totals
+    loss_w: float                  # peak losses, W
+    loss_cost_per_year: float      # first year, each run at its own loss-load factor
+    findings: int                  # rule findings, verification included
+    worst_drop_pct: float          # source to end: by load flow when it ran for every run
+    drop_basis: str                # LOADFLOW_BASIS | ESTIMATE_BASIS
+    conductors: tuple[tuple[str, str, int], ...]
+
 
 def finite_positive(value: float) -> bool:
     """True for a finite number above zero."""

@@ -318,6 +318,20 @@ def path_drops_pct(parent: np.ndarray, own_pct: np.ndarray, fixed_pct: np.ndarra
     return path_totals(parent, own_pct + fixed_pct)
 
 
+def loss_energy(prep: Prepared, choice: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per chosen row: its first-year loss energy (kWh) and that energy's cost."""
+    loss_w = prep.table.loss_w[choice]
+    return (loss_w * prep.runs.kwh_per_w(prep.economics),
+            loss_w * prep.runs.annual_cost_per_w(prep.economics))
+
+
+def choice_totals(prep: Prepared, choice: np.ndarray, kwh: np.ndarray) -> Totals:
+    """The chosen rows' upfront cost and loss PV, and their loss energy ``kwh`` summed."""
+    t = prep.table
+    return Totals(capex=float(t.capex[choice].sum()), loss_pv=float(t.loss_pv[choice].sum()),
+                  loss_kwh_per_year=float(kwh.sum()))
+
+
 def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStatus,
                        objective: str,
                        solution: Solution | None = None,
@@ -333,9 +347,7 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
     vd = t.vd_pct[choice]
     path = path_drops_pct(prep.parent, vd, prep.fixed_drop_pct)
     service = [seg.service and prep.profile.bonds_service() for seg in prep.segments]
-    loss_w = t.loss_w[choice]
-    kwh = loss_w * prep.runs.kwh_per_w(prep.economics)
-    cost_year = loss_w * prep.runs.annual_cost_per_w(prep.economics)
+    kwh, cost_year = loss_energy(prep, choice)
     results = []
     race = prep.profile.raceway
     sizes = cat.sizes
@@ -405,14 +417,10 @@ def design_from_choice(prep: Prepared, choice: np.ndarray, *, status: DesignStat
             pe_step=pe_step[s],
             curve=str(curve_row[s]) if curve_row[s] else run_curve[s],
         ))
-    totals = Totals(
-        capex=float(t.capex[choice].sum()),
-        loss_pv=float(t.loss_pv[choice].sum()),
-        loss_kwh_per_year=float(kwh.sum()),
-    )
     return Design(
         status=status, objective=objective, rules=prep.profile.name,
-        currency=prep.scenario.currency, totals=totals, segments=tuple(results),
+        currency=prep.scenario.currency, totals=choice_totals(prep, choice, kwh),
+        segments=tuple(results),
         engine=solution.engine if solution else "",
         proven_optimal=solution.proven_optimal if solution else False,
         gap=solution.gap if solution else None,

@@ -13,20 +13,19 @@ from functools import cached_property
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from sizer.model import Design, DesignStatus, Totals
+from sizer.model import Design, DesignStatus, KeyFigures, Totals
 from sizer.optimize import Objective, Prepared
 from sizer.stages import stage
 from sizer.workflow import (
-    LOADFLOW_DROP_RULE,
     DisconnectionDriver,
     FrontierPoint,
     Option,
     Plan,
     Progress,
     Verification,
+    check_frontier,
     check_verified,
     drivers_plan,
-    frontier_designs,
     frontier_plan,
     options_plan,
     quiet,
@@ -36,6 +35,10 @@ from sizer.workflow import (
 
 if TYPE_CHECKING:
     import pandas as pd
+
+# Over this many runs a report sums the schedule by panel and shows a frontier point's
+# key figures only, so the results keep no whole design of one.
+LARGE_TREE_RUNS = 2000
 
 # Frontier points computed when a report asks for them: enough for the curve's shape,
 # few enough to keep a report quick.
@@ -48,8 +51,10 @@ class Results:
     """A design, its verification, the options side by side, the frontier, and notes.
 
     ``options`` and ``frontier_points`` are empty unless the run asked for them (a
-    report does); ``verification`` is None when there is no design. ``frontier_designs``
-    are the frontier points as verified designs (same order), for the report's explorer.
+    report does); ``verification`` is None when there is no design. ``frontier_figures``
+    are the frontier points' key figures, verified by load flow, and ``frontier_designs``
+    the points as whole verified designs (both in the points' order) for the report's
+    explorer; a tree of more than LARGE_TREE_RUNS runs keeps the figures only.
     """
 
     prep: Prepared
@@ -60,6 +65,7 @@ class Results:
     notes: tuple[str, ...] = field(default=())
     frontier_designs: tuple[Design, ...] = ()
     disconnection_drivers: tuple[DisconnectionDriver, ...] = ()
+    frontier_figures: tuple[KeyFigures, ...] = ()
 
     @property
     def title(self) -> str:
@@ -154,14 +160,15 @@ def solve_results(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
     points: tuple[FrontierPoint, ...] = tuple(done.get("frontier", ()))
     progress("verifying the frontier's designs")
     with stage("frontier_verify"):
-        designs = frontier_designs(prep, points)
+        checked = check_frontier(prep, points,
+                                 designs=len(prep.segments) <= LARGE_TREE_RUNS)
     # The frontier's points keep the linear drop estimate within its limits; one the load
     # flow finds over a total limit is not a compliant design, so it is not offered.
-    kept = [(p, d) for p, d in zip(points, designs, strict=True)
-            if not any(v.rule == LOADFLOW_DROP_RULE for v in d.violations)]
-    return Results(prep, design, verification, options, tuple(p for p, _ in kept),
-                   frontier_designs=tuple(d for _, d in kept),
-                   disconnection_drivers=drivers)
+    kept = [c for c in checked if not c.over_limit]
+    return Results(prep, design, verification, options, tuple(c.point for c in kept),
+                   frontier_designs=tuple(c.design for c in kept if c.design is not None),
+                   disconnection_drivers=drivers,
+                   frontier_figures=tuple(c.figures for c in kept))
 
 
 def check_results(prep: Prepared, *, engine: str = "auto", solver: str = "cbc",

@@ -114,7 +114,8 @@ def case(tmp_path_factory):
 
 def _bare(results: Results, design: Design) -> Results:
     """The same run with another design and no options or frontier."""
-    return replace(results, design=design, options=(), frontier_points=())
+    return replace(results, design=design, options=(), frontier_points=(), frontier_designs=(),
+                   frontier_figures=())
 
 
 def test_self_contained(case):

@@ -15,22 +15,32 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from sizer.model import Design, SegmentResult
+from sizer.model import Design, KeyFigures, SegmentResult
 from sizer.report.tree import BINDING_TOLERANCE_PCT, RunView
 
 
 @dataclass(frozen=True)
 class DesignPoint:
-    """One design the page can show: a frontier point, the code minimum or the optimum."""
+    """One design the page can show: a frontier point, the code minimum or the optimum.
+
+    ``design`` (verified: load-flow drops and fault levels filled in) is there when the
+    page shows designs run by run; a large tree's page needs the key figures only.
+    """
 
     label: str
-    design: Design               # verified: load-flow drops and fault levels filled in
+    figures: KeyFigures
+    design: Design | None = None
     method: str = ""             # "weighted sum" | "epsilon constraint" | "" (an option)
+
+    @classmethod
+    def of(cls, label: str, design: Design, method: str = "") -> DesignPoint:
+        """The point of a whole design."""
+        return cls(label, design.key_figures(), design, method)
 
     @property
     def findings(self) -> int:
         """Rule findings of the design (verification included)."""
-        return len(self.design.violations)
+        return self.figures.findings
 
 
 @dataclass(frozen=True)
@@ -74,13 +84,6 @@ def shown_drop(s: SegmentResult) -> float:
     return s.loadflow_drop_pct if s.loadflow_drop_pct is not None else s.path_vd_pct
 
 
-def drop_basis(design: Design) -> str:
-    """Which drop the page shows for a design, in words."""
-    if design.segments and all(s.loadflow_drop_pct is not None for s in design.segments):
-        return "AC load flow"
-    return "linear estimate"
-
-
 def run_views(design: Design, code_minimum: Design | None, parent: Sequence[int],
               kinds: Sequence[str], limits: Sequence[RunLimits],
               descriptions: Sequence[str] = ()) -> list[RunView]:
@@ -118,7 +121,10 @@ def explorer_data(points: Sequence[DesignPoint], shown: int, reference: int,
         return _totals_only(points, shown, reference, code_minimum, currency=currency,
                             cost_per_w_year=cost_per_w_year, kwh_per_w_year=kwh_per_w_year,
                             years=years, drop_limit_pct=drop_limit_pct)
+    if any(p.design is None for p in points):
+        raise ValueError("a page that shows designs run by run needs every whole design")
     first = points[shown].design
+    assert first is not None
     alts: list[list[tuple]] = [[] for _ in first.segments]
     keys: list[dict[tuple, int]] = [{} for _ in first.segments]
     base = points[code_minimum].design if code_minimum is not None else None
@@ -126,6 +132,7 @@ def explorer_data(points: Sequence[DesignPoint], shown: int, reference: int,
     out_points = []
     for p in points:
         d = p.design
+        assert d is not None
         pick, est, lf, fk, ef, up, bind = [], [], [], [], [], [], []
         for i, s in enumerate(d.segments):
             row = (conductor(s), s.egc, round(s.ampacity_a, 1), round(s.vd_pct, 4),
@@ -144,18 +151,8 @@ def explorer_data(points: Sequence[DesignPoint], shown: int, reference: int,
                 up.append(i)
             if binds(s, limits[i]):
                 bind.append(i)
-        loss_w = 1e3 * sum(s.loss_kw for s in d.segments)
-        worst_lf = [s.loadflow_drop_pct for s in d.segments if s.loadflow_drop_pct is not None]
         out_points.append({
-            "label": p.label, "method": p.method,
-            "capex": round(d.totals.capex, 2), "losspv": round(d.totals.loss_pv, 2),
-            "lossw": round(loss_w, 3), "kwh": round(d.totals.loss_kwh_per_year, 1),
-            # First-year loss cost, each run at its own T and peak coincidence.
-            "losscost": round(sum(s.loss_cost_per_year for s in d.segments), 2),
-            "findings": p.findings,
-            "worst": round(max(worst_lf), 4) if len(worst_lf) == len(d.segments) and worst_lf
-            else round(d.worst_path_drop_pct(), 4),
-            "basis": drop_basis(d),
+            **_point_totals(p),
             "pick": pick, "est": est, "lf": lf, "fk": fk, "ef": ef, "up": up, "bind": bind,
         })
     return {
@@ -174,19 +171,14 @@ def explorer_data(points: Sequence[DesignPoint], shown: int, reference: int,
 
 def _point_totals(p: DesignPoint) -> dict:
     """A design's totals and key figures as the page's script reads them."""
-    d = p.design
-    worst_lf = [s.loadflow_drop_pct for s in d.segments if s.loadflow_drop_pct is not None]
+    f = p.figures
     return {
         "label": p.label, "method": p.method,
-        "capex": round(d.totals.capex, 2), "losspv": round(d.totals.loss_pv, 2),
-        "lossw": round(1e3 * sum(s.loss_kw for s in d.segments), 3),
-        "kwh": round(d.totals.loss_kwh_per_year, 1),
+        "capex": round(f.totals.capex, 2), "losspv": round(f.totals.loss_pv, 2),
+        "lossw": round(f.loss_w, 3), "kwh": round(f.totals.loss_kwh_per_year, 1),
         # First-year loss cost, each run at its own T and peak coincidence.
-        "losscost": round(sum(s.loss_cost_per_year for s in d.segments), 2),
-        "findings": p.findings,
-        "worst": round(max(worst_lf), 4) if len(worst_lf) == len(d.segments) and worst_lf
-        else round(d.worst_path_drop_pct(), 4),
-        "basis": drop_basis(d),
+        "losscost": round(f.loss_cost_per_year, 2),
+        "findings": f.findings, "worst": round(f.worst_drop_pct, 4), "basis": f.drop_basis,
     }
 
 
@@ -194,12 +186,12 @@ def _totals_only(points: Sequence[DesignPoint], shown: int, reference: int,
                  code_minimum: int | None, *, currency: str, cost_per_w_year: float,
                  kwh_per_w_year: float, years: float, drop_limit_pct: float) -> dict:
     """The light page's data: per design its totals and how many runs differ."""
-    ref = [(s.material, s.size, s.sets) for s in points[reference].design.segments]
+    ref = points[reference].figures.conductors
     out_points = []
     for p in points:
         entry = _point_totals(p)
-        entry["changed"] = sum(1 for s, r in zip(p.design.segments, ref, strict=True)
-                               if (s.material, s.size, s.sets) != r)
+        entry["changed"] = sum(1 for c, r in zip(p.figures.conductors, ref, strict=True)
+                               if c != r)
         out_points.append(entry)
     return {"currency": currency, "years": years, "costPerW": cost_per_w_year,
             "kwhPerW": kwh_per_w_year, "dropLimit": drop_limit_pct, "shown": shown,
@@ -250,8 +242,8 @@ def frontier_svg(points: Sequence[DesignPoint], shown: int, reference: int,
     """
     w, h = 560, 330
     left, right, top, bottom = 78, 16, 14, 52
-    xs = [p.design.totals.capex for p in points]
-    ys = [p.design.totals.loss_pv for p in points]
+    xs = [p.figures.totals.capex for p in points]
+    ys = [p.figures.totals.loss_pv for p in points]
     x0, x1 = min(xs), max(xs)
     y0, y1 = min(ys), max(ys)
     padx = (x1 - x0) * 0.08 or max(abs(x1) * 0.05, 1.0)

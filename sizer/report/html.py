@@ -15,20 +15,21 @@ import html
 import math
 import re
 from collections.abc import Iterable, Sequence
+from dataclasses import replace
 from importlib import resources
 from pathlib import Path
 from string import Template
 
 from sizer import CAUTION, __version__
 from sizer.catalogue.prices import resolve_price_list
-from sizer.model import Design, DesignStatus, Scenario
+from sizer.model import Design, DesignStatus, KeyFigures, Scenario
 from sizer.optimize import Prepared
 from sizer.report import explore as ex
 from sizer.report import plots
 from sizer.report import tables as tb
 from sizer.report.export import atomic_write
-from sizer.report.tree import LARGE_TREE_RUNS, node_kind, tree_html
-from sizer.results import Results
+from sizer.report.tree import node_kind, tree_html
+from sizer.results import LARGE_TREE_RUNS, Results
 from sizer.rules.profile import RuleProfile
 from sizer.units import M_PER_FT
 from sizer.workflow import DisconnectionDriver, FrontierPoint, Option, Progress, Verification, quiet
@@ -141,7 +142,7 @@ def render_report(results: Results, *, progress: Progress = quiet,
     prep = results.prep
     progress("report: tables and figures")
     page = _Page(prep, results.design, list(results.options), list(results.frontier_points),
-                 results.verification, results.frontier_designs,
+                 results.verification, results.frontier_figures, results.frontier_designs,
                  results.disconnection_drivers)
     body = page.body(today or _dt.date.today(), extra_sections)
     template = Template(resources.files("sizer.report").joinpath("template.html")
@@ -165,6 +166,7 @@ class _Page:
 
     def __init__(self, prep: Prepared, design: Design, options: list[Option],
                  points: list[FrontierPoint], ver: Verification | None,
+                 point_figures: Sequence[KeyFigures] = (),
                  point_designs: Sequence[Design] = (),
                  drivers: Sequence[DisconnectionDriver] = ()) -> None:
         self.prep = prep
@@ -191,7 +193,7 @@ class _Page:
         self.descriptions = [g.node.description for g in prep.segments]
         self.drivers = tuple(drivers)
         self.summary = len(prep.segments) > SUMMARY_OVER
-        self._explorer_points(list(point_designs), points)
+        self._explorer_points(points, point_figures, point_designs)
 
     def _limits(self) -> list[ex.RunLimits]:
         p = self.prep.profile
@@ -206,8 +208,13 @@ class _Page:
         return [node_kind(i in has_children, g.parent_index < 0, g.node.transformer is not None)
                 for i, g in enumerate(segs)]
 
-    def _explorer_points(self, designs: list[Design], points: list[FrontierPoint]) -> None:
-        """The designs the page can switch between: shown first, then by upfront cost."""
+    def _explorer_points(self, points: list[FrontierPoint], figures: Sequence[KeyFigures],
+                         designs: Sequence[Design]) -> None:
+        """The designs the page can switch between: shown first, then by upfront cost.
+
+        ``figures`` and ``designs`` are the frontier points' (same order); a large tree's
+        results have no designs of them.
+        """
         d = self.design
         self.explorer: dict | None = None
         self.xpoints: list[ex.DesignPoint] = []
@@ -216,34 +223,34 @@ class _Page:
         if not d.segments or len(d.segments) != len(self.prep.segments):
             return
         seen: dict[tuple, int] = {}
-        candidates: list[ex.DesignPoint] = [ex.DesignPoint(_objective_words(d), d)]
+        candidates: list[ex.DesignPoint] = [ex.DesignPoint.of(_objective_words(d), d)]
         if self.lifecycle is not None and self.lifecycle is not d:
-            candidates.append(ex.DesignPoint("lifecycle optimum", self.lifecycle))
+            candidates.append(ex.DesignPoint.of("lifecycle optimum", self.lifecycle))
         if self.code_min is not None and self.code_min is not d:
-            candidates.append(ex.DesignPoint("code minimum", self.code_min))
-        methods = {p.choice: p.method for p in points}
-        for k, pd in enumerate(sorted(designs, key=lambda x: (x.totals.capex,
-                                                               x.totals.loss_pv))):
-            candidates.append(ex.DesignPoint(f"frontier point {k + 1}", pd,
-                                             methods.get(pd.choice, "weighted sum")))
+            candidates.append(ex.DesignPoint.of("code minimum", self.code_min))
+        whole: Sequence[Design | None] = designs or [None] * len(points)
+        frontier = [ex.DesignPoint("", f, design, p.method)
+                    for p, f, design in zip(points, figures, whole, strict=True)]
+        frontier.sort(key=lambda x: (x.figures.totals.capex, x.figures.totals.loss_pv))
+        candidates += [replace(c, label=f"frontier point {k + 1}")
+                       for k, c in enumerate(frontier)]
         for c in candidates:
-            key = tuple((s.material, s.size, s.sets) for s in c.design.segments)
-            if len(c.design.segments) != len(d.segments):
+            key = c.figures.conductors
+            if len(key) != len(d.segments):
                 continue
             if key in seen:
                 j = seen[key]
                 if c.method and not self.xpoints[j].method:   # an option on the frontier
-                    self.xpoints[j] = ex.DesignPoint(self.xpoints[j].label,
-                                                     self.xpoints[j].design, c.method)
+                    self.xpoints[j] = replace(self.xpoints[j], method=c.method)
                 continue
             seen[key] = len(self.xpoints)
             self.xpoints.append(c)
         order = sorted(range(len(self.xpoints)),
-                       key=lambda i: (self.xpoints[i].design.totals.capex,
-                                      self.xpoints[i].design.totals.loss_pv))
+                       key=lambda i: (self.xpoints[i].figures.totals.capex,
+                                      self.xpoints[i].figures.totals.loss_pv))
         self.xpoints = [self.xpoints[i] for i in order]
         self.shown = order.index(0)
-        ids = {id(p.design): i for i, p in enumerate(self.xpoints)}
+        ids = {id(p.design): i for i, p in enumerate(self.xpoints) if p.design is not None}
         self.reference = ids.get(id(self.lifecycle), self.shown) if self.lifecycle else self.shown
         self.code_min_index = ids.get(id(self.code_min)) if self.code_min else None
         if self.code_min is d:
@@ -374,7 +381,7 @@ class _Page:
                     f"</button></div>")
         rows = []
         for i, p in enumerate(pts):
-            t = p.design.totals
+            t = p.figures.totals
             rows.append([Cell(p.label, "chosen" if i == self.shown else ""), num(t.capex),
                          num(t.loss_pv), num(t.lifecycle), str(p.findings)])
         listing = table(["Design", f"Upfront {self.cur}", f"Loss PV {self.cur}",
@@ -403,7 +410,8 @@ class _Page:
         views = ex.run_views(d, self.code_min, self.parent, self.kinds, self.limits,
                              self.descriptions)
         return ('<section id="tree"><h2>The distribution tree</h2>'
-                + tree_html(self.scenario.source.id, views, drop_basis=ex.drop_basis(d))
+                + tree_html(self.scenario.source.id, views,
+                            drop_basis=d.key_figures().drop_basis)
                 + "</section>")
 
     def scenario_section(self) -> str:

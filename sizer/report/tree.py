@@ -20,6 +20,8 @@ import html
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 
+from sizer.results import LARGE_TREE_RUNS
+
 # Layout in SVG user units (px at 100 %).
 COLUMN = 250          # one tree level
 BOX_W = 122           # node box width
@@ -31,7 +33,6 @@ MAX_ROWS = 60         # more rows than this: the largest panels close into detai
 MAX_DEPTH = 12        # levels of one picture: deeper runs continue in a detail picture
 # A large tree's page draws at most this many boxes in its detail pictures, and no
 # picture of single leaf circuits (the schedule lists them); the overview is always whole.
-LARGE_TREE_RUNS = 2000
 DETAIL_BOX_BUDGET = 3000
 ID_CHARS = 17         # characters of a node id shown in its box (the full id in its title)
 
