@@ -17,6 +17,7 @@ from sizer.model import Design, DesignStatus, KeyFigures, Totals
 from sizer.optimize import Objective, Prepared
 from sizer.stages import stage
 from sizer.workflow import (
+    CheckedPoint,
     DisconnectionDriver,
     FrontierPoint,
     Option,
@@ -158,10 +159,12 @@ def solve_results(prep: Prepared, objective: Objective = Objective.LIFECYCLE, *,
     options: tuple[Option, ...] = tuple(done.get("options", ()))
     drivers: tuple[DisconnectionDriver, ...] = done.get("drivers", ())
     points: tuple[FrontierPoint, ...] = tuple(done.get("frontier", ()))
-    progress("verifying the frontier's designs")
-    with stage("frontier_verify"):
-        checked = check_frontier(prep, points,
-                                 designs=len(prep.segments) <= LARGE_TREE_RUNS)
+    checked: list[CheckedPoint] = []
+    if points:   # a plain solve has no frontier: no stage to mark
+        progress("verifying the frontier's designs")
+        with stage("frontier_verify"):
+            checked = check_frontier(prep, points,
+                                     designs=len(prep.segments) <= LARGE_TREE_RUNS)
     # The frontier's points keep the linear drop estimate within its limits; one the load
     # flow finds over a total limit is not a compliant design, so it is not offered.
     kept = [c for c in checked if not c.over_limit]

@@ -115,12 +115,15 @@ def test_the_report_options_do_not_overwrite_the_runs_own_counts(tmp_path, monke
     log = tmp_path / "stages.json"
     monkeypatch.setenv(ENV, str(log))
     assert main(["solve", str(path), "--quiet"]) == 0
-    alone = json.loads(log.read_text())["counts"]["candidate_rows"]
+    plain = json.loads(log.read_text())
+    alone = plain["counts"]["candidate_rows"]
+    # a plain solve has no alternatives and no frontier: their stages are not marked
+    assert not {"alternatives", "frontier_verify"} & {s["stage"] for s in plain["stages"]}
     assert main(["solve", str(path), "--report", str(tmp_path / "r.html"), "--quiet"]) == 0
     doc = json.loads(log.read_text())
     assert doc["counts"]["candidate_rows"] == alone   # not the all-copper option's table
     # the options, the drivers' solve and the frontier's weights run side by side
-    assert "alternatives" in {s["stage"] for s in doc["stages"]}
+    assert {"alternatives", "frontier_verify"} <= {s["stage"] for s in doc["stages"]}
 
 
 def test_frontier_marks_its_stage(tmp_path, monkeypatch):
