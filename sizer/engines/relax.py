@@ -288,6 +288,7 @@ class _Padded:
     def __init__(self, rows: np.ndarray, seg: np.ndarray, starts: np.ndarray,
                  counts: np.ndarray, cost: np.ndarray, values: list[np.ndarray]) -> None:
         n, width = counts.size, int(counts.max())
+        self.width = width
         pos = np.arange(rows.size) - np.repeat(starts, counts)
         last = starts + counts - 1
         self.row = np.empty((n, width), dtype=np.int64)
@@ -309,16 +310,22 @@ class _Padded:
     def choose(self, prices: list[np.ndarray], exact: bool
                ) -> tuple[np.ndarray, list[np.ndarray], float]:
         """Each segment's row least in cost + Σ price × value; its values; Σ that least."""
-        price = (self.cost if exact else self.cost32).copy()
-        term = np.empty_like(price)
-        for j, w in enumerate(prices):
-            np.multiply(self.values[j] if exact else self.values32[j],
-                        w[:, None].astype(price.dtype), out=term)
-            price += term
+        cost = self.cost if exact else self.cost32
+        values = self.values if exact else self.values32
+        # price = Σ w·value + cost, summed in the order cost, then each value's term
+        # (IEEE addition commutes: the same numbers as cost + term₀ + term₁ …)
+        price = np.multiply(values[0], prices[0][:, None].astype(cost.dtype))
+        price += cost
+        if len(prices) > 1:
+            term = np.empty_like(price)
+            for j in range(1, len(prices)):
+                np.multiply(values[j], prices[j][:, None].astype(cost.dtype), out=term)
+                price += term
         pick = np.argmin(price, axis=1)
-        at = (np.arange(pick.size), pick)
-        return (self.row[at], [v[at] for v in self.values],
-                float(price[at].sum(dtype=np.float64)))
+        # flat positions: one gather per column instead of a pair of index arrays
+        at = pick + self.width * np.arange(pick.size)
+        return (self.row.ravel()[at], [v.ravel()[at] for v in self.values],
+                float(price.ravel()[at].sum(dtype=np.float64)))
 
 
 class _Hulls:
