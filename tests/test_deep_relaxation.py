@@ -172,7 +172,7 @@ def test_one_resource_hulls_choose_a_least_row_like_a_pass_over_every_row(seed):
     rows = np.arange(counts.sum()) + 7
     seg = np.repeat(np.arange(n), counts)
     hulls = relax._Hulls(rows, starts, counts, cost, value)
-    padded = relax._Padded(rows, seg, starts, counts, cost, [value])
+    padded = relax._Padded(rows, starts, counts, cost, [value])
     for w in (np.zeros(n), rng.exponential(2.0, n), np.full(n, 1e6), rng.uniform(0, 5, n)):
         row_h, (v_h,), total_h = hulls.choose([w], exact=True)
         row_p, _, total_p = padded.choose([w], exact=True)
@@ -182,3 +182,33 @@ def test_one_resource_hulls_choose_a_least_row_like_a_pass_over_every_row(seed):
         assert np.array_equal(seg[row_h - 7], np.arange(n))  # a row of its own segment
         assert np.array_equal(v_h, value[row_h - 7])
         assert total_h == pytest.approx(total_p, rel=1e-12)
+
+
+@pytest.mark.parametrize("seed", range(10))
+@pytest.mark.parametrize("exact", [True, False])
+def test_the_padded_choice_is_each_segments_first_least_row(seed, exact):
+    # Segments of many widths fall in several padded blocks; each must still pick its own
+    # first least row of cost + Σ price × value, and the least total sum in segment order.
+    rng = np.random.default_rng(seed)
+    n = 80
+    counts = rng.integers(1, 40, n)
+    starts = np.cumsum(counts) - counts
+    cost = np.round(rng.uniform(1, 10, counts.sum()), 1)
+    values = [np.round(rng.uniform(0, 3, counts.sum()), 1) for _ in range(2)]
+    rows = np.arange(counts.sum()) + 5
+    padded = relax._Padded(rows, starts, counts, cost, values)
+    assert len(padded.blocks) > 1
+    dtype = np.float64 if exact else np.float32
+    for w in ([np.zeros(n)] * 2, [rng.exponential(2.0, n), rng.uniform(0, 5, n)]):
+        pick, chosen, total = padded.choose(w, exact)
+        least = np.empty(n, dtype=dtype)
+        for s in range(n):
+            span = slice(starts[s], starts[s] + counts[s])
+            price = np.asarray(cost[span], dtype=dtype) + np.asarray(
+                values[0][span], dtype=dtype) * dtype(w[0][s])
+            price += np.asarray(values[1][span], dtype=dtype) * dtype(w[1][s])
+            k = int(np.argmin(price))
+            assert pick[s] == starts[s] + k + 5
+            assert [c[s] for c in chosen] == [v[starts[s] + k] for v in values]
+            least[s] = price[k]
+        assert total == float(least.sum(dtype=np.float64))

@@ -180,7 +180,7 @@ def solve_relaxed(problem: Problem, usable: np.ndarray | None = None,
     k = len(values)
     cost = problem.cost[rows]
     chooser: _Hulls | _Padded = (_Hulls(rows, starts, counts, cost, values[0]) if k == 1
-                                 else _Padded(rows, seg, starts, counts, cost, values))
+                                 else _Padded(rows, starts, counts, cost, values))
 
     def relaxed(mu: list[np.ndarray], exact: bool = False
                 ) -> tuple[float, np.ndarray, list[np.ndarray]]:
@@ -281,35 +281,70 @@ def solve_relaxed(problem: Problem, usable: np.ndarray | None = None,
 class _Padded:
     """The relaxed choice in any number of resources, by one pass over every row.
 
-    One padded row of candidates per segment (padding repeats the last row at infinite
-    cost, never chosen), so a choice is one argmin along the rows.
+    Segments of like candidate count (rounded up to ``_WIDTH_STEP``) share a padded table
+    (``_Block``), so a choice is one argmin along its rows; a run with few candidates
+    does not carry the padding of the run with most (a riser's taps: a fifth of the
+    cells).
     """
 
-    def __init__(self, rows: np.ndarray, seg: np.ndarray, starts: np.ndarray,
+    def __init__(self, rows: np.ndarray, starts: np.ndarray, counts: np.ndarray,
+                 cost: np.ndarray, values: list[np.ndarray]) -> None:
+        self.n = counts.size
+        width_class = -(-counts // _WIDTH_STEP)
+        self.blocks = [_Block(np.flatnonzero(width_class == c), rows, starts, counts, cost,
+                              values) for c in np.unique(width_class).tolist()]
+
+    def choose(self, prices: list[np.ndarray], exact: bool
+               ) -> tuple[np.ndarray, list[np.ndarray], float]:
+        """Each segment's row least in cost + Σ price × value; its values; Σ that least."""
+        pick = np.empty(self.n, dtype=np.int64)
+        chosen = [np.empty(self.n) for _ in prices]
+        least = np.empty(self.n, dtype=np.float64 if exact else np.float32)
+        for b in self.blocks:
+            b.choose([w[b.segs] for w in prices], exact, pick, chosen, least)
+        # one sum over the segments in order, whatever their blocks
+        return pick, chosen, float(least.sum(dtype=np.float64))
+
+
+_WIDTH_STEP = 8   # candidate counts padded to the next multiple of this
+
+
+class _Block:
+    """One padded table of candidates: a row per segment, padding at infinite cost.
+
+    Padding repeats the segment's last candidate at infinite cost, never chosen.
+    """
+
+    def __init__(self, segs: np.ndarray, rows: np.ndarray, starts: np.ndarray,
                  counts: np.ndarray, cost: np.ndarray, values: list[np.ndarray]) -> None:
-        n, width = counts.size, int(counts.max())
+        self.segs = segs
+        k = counts[segs]
+        n, width = segs.size, int(k.max())
         self.width = width
-        pos = np.arange(rows.size) - np.repeat(starts, counts)
-        last = starts + counts - 1
+        first = np.repeat(np.cumsum(k) - k, k)            # each taken row's segment start
+        pos = np.arange(first.size) - first               # its place in the segment
+        take = np.repeat(starts[segs], k) + pos           # its index in ``rows``
+        local = np.repeat(np.arange(n), k)
+        last = starts[segs] + k - 1
         self.row = np.empty((n, width), dtype=np.int64)
         self.row[:] = rows[last][:, None]
-        self.row[seg, pos] = rows
+        self.row[local, pos] = rows[take]
         self.cost = np.full((n, width), np.inf)
-        self.cost[seg, pos] = cost
+        self.cost[local, pos] = cost[take]
         self.values = []
         for v in values:
             pad = np.empty((n, width))
             pad[:] = v[last][:, None]
-            pad[seg, pos] = v
+            pad[local, pos] = v[take]
             self.values.append(pad)
         # the steps price in float32 (half the memory traffic); the bound stated is L(μ)
         # evaluated again in float64 at the best multipliers
         self.cost32 = self.cost.astype(np.float32)
         self.values32 = [v.astype(np.float32) for v in self.values]
 
-    def choose(self, prices: list[np.ndarray], exact: bool
-               ) -> tuple[np.ndarray, list[np.ndarray], float]:
-        """Each segment's row least in cost + Σ price × value; its values; Σ that least."""
+    def choose(self, prices: list[np.ndarray], exact: bool, pick: np.ndarray,
+               chosen: list[np.ndarray], least: np.ndarray) -> None:
+        """Its segments' least rows, their values and least prices, written in place."""
         cost = self.cost if exact else self.cost32
         values = self.values if exact else self.values32
         # price = Σ w·value + cost, summed in the order cost, then each value's term
@@ -321,11 +356,12 @@ class _Padded:
             for j in range(1, len(prices)):
                 np.multiply(values[j], prices[j][:, None].astype(cost.dtype), out=term)
                 price += term
-        pick = np.argmin(price, axis=1)
         # flat positions: one gather per column instead of a pair of index arrays
-        at = pick + self.width * np.arange(pick.size)
-        return (self.row.ravel()[at], [v.ravel()[at] for v in self.values],
-                float(price.ravel()[at].sum(dtype=np.float64)))
+        at = np.argmin(price, axis=1) + self.width * np.arange(self.segs.size)
+        pick[self.segs] = self.row.ravel()[at]
+        for out, v in zip(chosen, self.values, strict=True):
+            out[self.segs] = v.ravel()[at]
+        least[self.segs] = price.ravel()[at]
 
 
 class _Hulls:
