@@ -71,20 +71,50 @@ def undominated_rows(problem: Problem, drop_pct: np.ndarray | None = None
     lowest row survives. ``drop_pct`` replaces the problem's drops when given.
     """
     drop = problem.drop_pct if drop_pct is None else drop_pct
-    n = problem.n_segments
-    seg = problem.segment_of_row
-    pos = np.arange(problem.n_candidates) - problem.offsets[seg]
-    # One padded row per segment, so sorting and the running minimum run over all
-    # segments at once; padding (inf cost) is never kept.
-    width = int(np.diff(problem.offsets).max())
-    pad_d = np.full((n, width), np.inf)
-    pad_c = np.full((n, width), np.inf)
-    pad_d[seg, pos] = drop
-    pad_c[seg, pos] = problem.cost
-    order, keep = _padded_staircase(pad_d, pad_c)
-    kept_offsets = np.zeros(n + 1, dtype=np.int64)
-    np.cumsum(keep.sum(axis=1), out=kept_offsets[1:])
-    return (problem.offsets[:-1, None] + order)[keep], kept_offsets
+    rows, kept = _staircases(np.asarray(drop, dtype=float), problem.cost,
+                             np.diff(problem.offsets))
+    kept_offsets = np.zeros(problem.n_segments + 1, dtype=np.int64)
+    np.cumsum(kept, out=kept_offsets[1:])
+    return rows, kept_offsets
+
+
+# Cells of one padded block of segments: small enough to stay in the cache and to reuse
+# freed memory (the whole table padded at once spent more time in fresh pages than in
+# sorting: 100,000 runs 1.3-1.7 s, by blocks 0.6 s).
+_BLOCK_CELLS = 1 << 18
+
+
+def _staircases(x: np.ndarray, cost: np.ndarray, counts: np.ndarray
+                ) -> tuple[np.ndarray, np.ndarray]:
+    """Each segment's staircase in (x, cost): the rows no earlier row matches or beats.
+
+    Segment ``s`` owns the next ``counts[s]`` entries of ``x`` and ``cost``. Rows are
+    taken by x, then cost, then position; a row is kept when it costs less than every
+    row before it (an infinite cost never is). Returns the kept entries' positions,
+    segment by segment in that order, and how many each segment keeps.
+    """
+    n = counts.size
+    starts = np.cumsum(counts) - counts
+    kept = np.zeros(n, dtype=np.int64)
+    out = []
+    # padded by blocks of segments, so sorting and the running minimum run over a
+    # block at once; padding (inf cost) is never kept
+    step = max(1, _BLOCK_CELLS // max(1, int(counts.max(initial=0))))
+    for a in range(0, n, step):
+        b = min(n, a + step)
+        c = counts[a:b]
+        width = int(c.max())
+        lo, hi = int(starts[a]), int(starts[b - 1] + c[-1])
+        local = np.repeat(np.arange(b - a), c)
+        pos = np.arange(hi - lo) - (starts[a:b] - lo)[local]
+        pad_x = np.full((b - a, width), np.inf)
+        pad_c = np.full((b - a, width), np.inf)
+        pad_x[local, pos] = x[lo:hi]
+        pad_c[local, pos] = cost[lo:hi]
+        order, keep = _padded_staircase(pad_x, pad_c)
+        kept[a:b] = keep.sum(axis=1)
+        out.append((starts[a:b, None] + order)[keep])
+    return (np.concatenate(out) if out else np.zeros(0, dtype=np.int64)), kept
 
 
 def _padded_staircase(pad_x: np.ndarray, pad_c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -770,17 +800,13 @@ def _simple_leaf_fronts(leaves: np.ndarray, seg_rows: list[np.ndarray], cost: np
         req = own[rows] + fix[seg] + floor[seg]
     ok = np.all(req <= cap[seg], axis=1)
     req = np.maximum(req, low[seg])
-    width = int(counts.max())
-    pos = np.arange(rows.size) - np.repeat(np.cumsum(counts) - counts, counts)
-    pad_r = np.full((leaves.size, width), np.inf)
-    pad_c = np.full((leaves.size, width), np.inf)
-    pad_r[which[ok], pos[ok]] = req[ok, 0]
-    pad_c[which[ok], pos[ok]] = cost[rows[ok]]
-    order, keep = _padded_staircase(pad_r, pad_c)
-    start = (np.cumsum(counts) - counts).tolist()
+    # rows over the cap take no part (infinite drop and cost are never kept)
+    at, kept = _staircases(np.where(ok, req[:, 0], np.inf),
+                           np.where(ok, cost[rows], np.inf), counts)
+    ends, sizes = np.cumsum(kept).tolist(), kept.tolist()
     largest = 0
     for i, s in enumerate(leaves.tolist()):
-        idx = order[i][keep[i]][::-1] + start[i]     # cheapest first
+        idx = at[ends[i] - sizes[i]:ends[i]][::-1]     # cheapest first
         f_cost[s] = cost[rows[idx]]
         f_req[s] = req[idx]
         f_row[s] = rows[idx]
