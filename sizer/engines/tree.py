@@ -752,13 +752,27 @@ def _prune_multi(cost: np.ndarray, req: np.ndarray) -> np.ndarray:
         stop = min(start + block, order.size)
         blk = r[start:stop]
         prev = r[:start][keep[:start]]
-        dom = np.zeros(stop - start, dtype=bool)
-        if prev.size:
-            dom = np.any(np.all(prev[None, :, :] <= blk[:, None, :], axis=2), axis=1)
-        inner = np.tril(np.all(blk[None, :, :] <= blk[:, None, :], axis=2), -1)
-        dom |= inner.any(axis=1)
+        dom = (np.any(_no_more(prev, blk), axis=1) if prev.size
+               else np.zeros(stop - start, dtype=bool))
+        # Within the block only the points no kept one beats can matter: one an earlier
+        # beaten point beats is beaten by that kept point too.
+        alive = np.flatnonzero(~dom)
+        if alive.size > 1:
+            b = blk[alive]
+            dom[alive[np.tril(_no_more(b, b), -1).any(axis=1)]] = True
         keep[start:stop] = ~dom
     return order[keep]
+
+
+def _no_more(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """``[i, j]``: point ``a[j]`` needs no more than ``b[i]`` of every requirement.
+
+    One 2-D comparison per requirement (a few), not a 3-D one reduced along them.
+    """
+    out = a[None, :, 0] <= b[:, None, 0]
+    for r in range(1, a.shape[1]):
+        out &= a[None, :, r] <= b[:, None, r]
+    return out
 
 
 def _reduce_multi(cost: np.ndarray, req: np.ndarray, thin_at: int, thin_to: int
