@@ -40,3 +40,29 @@ def test_a_front_of_one_varying_requirement_is_a_staircase():
     req = np.array([[1.0, 2.0], [2.0, 2.0], [2.0, 2.0], [0.5, 2.0], [3.0, 2.0]])
     kept = tree_engine._prune_multi(cost, req)
     assert sorted(kept.tolist()) == sorted(brute_force(cost, req).tolist()) == [1, 3, 4]
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_staircases_by_blocks_are_the_whole_tables(seed, monkeypatch):
+    # Blocks of a few segments (some with no rows) give what one padded table gives.
+    rng = np.random.default_rng(seed)
+    counts = rng.integers(0, 30, 200)
+    x = np.round(rng.uniform(0, 5, counts.sum()), 1)
+    cost = np.round(rng.uniform(0, 9, counts.sum()))
+    cost[rng.random(cost.size) < 0.1] = np.inf          # rows that take no part
+    whole = tree_engine._staircases(x, cost, counts)
+    monkeypatch.setattr(tree_engine, "_BLOCK_CELLS", 40)
+    blocks = tree_engine._staircases(x, cost, counts)
+    assert all(np.array_equal(a, b) for a, b in zip(whole, blocks, strict=True))
+    # and each segment's staircase by hand: by x, then cost, kept while it costs less
+    at, kept = whole
+    ends = np.cumsum(kept)
+    starts = np.cumsum(counts) - counts
+    for s in range(counts.size):
+        rows = range(starts[s], starts[s] + counts[s])
+        best, expect = np.inf, []
+        for r in sorted(rows, key=lambda r: (x[r], cost[r], r)):
+            if cost[r] < best:
+                best = cost[r]
+                expect.append(r)
+        assert at[ends[s] - kept[s]:ends[s]].tolist() == expect

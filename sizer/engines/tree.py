@@ -104,6 +104,8 @@ def _staircases(x: np.ndarray, cost: np.ndarray, counts: np.ndarray
         b = min(n, a + step)
         c = counts[a:b]
         width = int(c.max())
+        if width == 0:
+            continue
         lo, hi = int(starts[a]), int(starts[b - 1] + c[-1])
         local = np.repeat(np.arange(b - a), c)
         pos = np.arange(hi - lo) - (starts[a:b] - lo)[local]
