@@ -47,6 +47,7 @@ from sizer.faults import (
     default_device,
     disconnection_time_s,
     loop_pu,
+    rows_loop_pu,
     source_loop_ohm,
     trip_current_a,
     trip_multiple,
@@ -268,11 +269,15 @@ def _loops_around(table: CandidateTable, u0_v: np.ndarray, limit_pu: np.ndarray,
     """
     n = parent.size
     seg = table.segment
-    own = np.abs(loop_pu(table.loop_ohm, u0_v[seg], S_BASE_VA)) + shift_pu
+    own = rows_loop_pu(table.loop_ohm, u0_v, seg, S_BASE_VA) + shift_pu
+    # a run's rows are consecutive: its most and least by one reduction over each run
+    has = np.diff(table.offsets) > 0
+    first = table.offsets[:-1][has]
     most = np.zeros(n)
-    np.maximum.at(most, seg, own)
     least = np.full(n, np.inf)
-    np.minimum.at(least, seg, own)
+    if first.size:
+        most[has] = np.maximum(np.maximum.reduceat(own, first), 0.0)
+        least[has] = np.minimum.reduceat(own, first)
     least[~np.isfinite(least)] = 0.0  # a run with no rows: diagnosed elsewhere
     reach = np.empty(n)
     for i, p in enumerate(parent.tolist()):

@@ -47,7 +47,7 @@ from sizer.engines import KeptFronts, Problem, Solution, SolveStatus, solve
 from sizer.engines.problem import path_totals
 from sizer.faults import (
     S_BASE_VA,
-    loop_pu,
+    rows_loop_pu,
 )
 from sizer.loads import design_segments
 from sizer.model import (
@@ -219,7 +219,7 @@ def loop_pu_of_rows(prep: Prepared) -> np.ndarray:
     budgets (``sizer.earthfault.curve_shift_pu``), so one budget per run holds for all.
     """
     t = prep.table
-    return (np.abs(loop_pu(t.loop_ohm, prep.earth.u0_v[t.segment], S_BASE_VA))
+    return (rows_loop_pu(t.loop_ohm, prep.earth.u0_v, t.segment, S_BASE_VA)
             + curve_shift_pu(t, prep.earth.u0_v, prep.earth.c_min, prep.earth.trip_a))
 
 

@@ -26,6 +26,7 @@ from sizer.faults import (
     default_device,
     disconnection_time_s,
     loop_pu,
+    rows_loop_pu,
     trip_current_a,
     trip_multiple,
 )
@@ -853,3 +854,15 @@ def test_curves_in_the_json_and_bad_curves_are_one_line(tmp_path, capsys):
     assert main(["solve", str(path), "--json", str(out)]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "curves" in err[0] and "unknown curve" in err[0]
+
+
+@pytest.mark.parametrize("block", [1, 7, 1 << 20])
+def test_rows_loop_by_blocks_is_the_whole_expression(block):
+    # The per-row loop (pu) worked out a block at a time: the very numbers of one pass.
+    rng = np.random.default_rng(3)
+    m = 50
+    z = rng.uniform(0.01, 2.0, m) + 1j * rng.uniform(0.0, 0.5, m)
+    u0 = np.array([230.0, 277.0, 120.0])
+    seg = rng.integers(0, 3, m)
+    got = rows_loop_pu(z, u0, seg, 1e6, block=block)
+    assert np.array_equal(got, np.abs(loop_pu(z, u0[seg], 1e6)))
