@@ -310,7 +310,7 @@ _WIDTH_STEP = 8   # candidate counts padded to the next multiple of this
 
 
 class _Block:
-    """One padded table of candidates: a row per segment, padding at infinite cost.
+    """One padded table of candidates, a row per segment.
 
     Padding repeats the segment's last candidate at infinite cost, never chosen.
     """

@@ -799,15 +799,15 @@ def _simple_leaf_fronts(leaves: np.ndarray, seg_rows: list[np.ndarray], cost: np
                         own: np.ndarray, fix: np.ndarray, floor: np.ndarray,
                         cap: np.ndarray, low: np.ndarray, f_cost: list[np.ndarray],
                         f_req: list[np.ndarray], f_row: list[np.ndarray],
-                        f_kid: list[np.ndarray]) -> int:
+                        f_kid: list[np.ndarray]) -> None:
     """Fronts of leaves where only the drop varies, in one vectorised pass.
 
     The same points :func:`solve_tree_multi` keeps one leaf at a time: rows within the
     cap, requirements clamped at ``low``, then the staircase in (drop requirement, cost),
-    cheapest first, of exact ties the lowest row. Returns the largest front.
+    cheapest first, of exact ties the lowest row; written into the ``f_`` lists.
     """
     if not leaves.size:
-        return 0
+        return
     counts = np.array([seg_rows[s].size for s in leaves.tolist()], dtype=np.int64)
     rows = np.concatenate([seg_rows[s] for s in leaves.tolist()])
     which = np.repeat(np.arange(leaves.size), counts)
@@ -820,15 +820,12 @@ def _simple_leaf_fronts(leaves: np.ndarray, seg_rows: list[np.ndarray], cost: np
     at, kept = _staircases(np.where(ok, req[:, 0], np.inf),
                            np.where(ok, cost[rows], np.inf), counts)
     ends, sizes = np.cumsum(kept).tolist(), kept.tolist()
-    largest = 0
     for i, s in enumerate(leaves.tolist()):
         idx = at[ends[i] - sizes[i]:ends[i]][::-1]     # cheapest first
         f_cost[s] = cost[rows[idx]]
         f_req[s] = req[idx]
         f_row[s] = rows[idx]
         f_kid[s] = np.zeros((idx.size, 0), dtype=np.int64)
-        largest = max(largest, idx.size)
-    return largest
 
 
 def _merge_staircases(kids: list[int], floor: np.ndarray, f_cost: list[np.ndarray],
@@ -906,7 +903,7 @@ class _MultiSetup:
         # A requirement the path above always leaves room for, whatever it chooses, is as
         # good as any lower one: clamping to it lets such points collapse (exact).
         self.low = -above_most  # (not tol − …: keeps the whole tolerance against rounding)
-        self.leaf = np.array([not c for c in self.children])
+        self.leaf = topo.is_leaf
         self.simple = self.leaf & ~multi
         # each load's largest value of each resource, for ``KeptFronts.changed``
         kept_rows = np.flatnonzero(usable)
